@@ -1,0 +1,213 @@
+package constraints
+
+import (
+	"math"
+	"time"
+
+	"github.com/nightloom/nightloom/ephem"
+)
+
+// Request is one block's question to the grid: may its target be observed
+// under its constraint set, with this exposure length and tracking?
+type Request struct {
+	Set      *Set
+	Exposure time.Duration
+	// NonSidereal says the mount tracks the moving target, so trailing
+	// limits do not apply.
+	NonSidereal bool
+}
+
+// Visibility is the answer for one block on one grid.
+type Visibility struct {
+	// Reason is OK where the step is observable, else the first failing
+	// constraint.
+	Reason []Reason
+	// Quality is in (0, 1] where observable (see the package doc), 0 elsewhere.
+	Quality []float32
+	// Windows are the maximal runs of observable steps, in time order.
+	Windows []Window
+	// TrailLimit is the longest exposure that trails less than the limit
+	// at the fastest rate on the grid (0 for fixed targets or no check).
+	TrailLimit time.Duration
+}
+
+// Feasible reports whether step i is observable.
+func (v *Visibility) Feasible(i int) bool { return v.Reason[i] == OK }
+
+// Evaluate checks every step of a track against a block's request. The
+// site's solar-avoidance floor applies whatever the set asks.
+func (g *Grid) Evaluate(tr *Track, req Request) *Visibility {
+	n := g.N
+	v := &Visibility{Reason: make([]Reason, n), Quality: make([]float32, n)}
+	c := req.Set
+	if c == nil {
+		c = &Set{}
+	}
+	site := g.Site
+	floor := math.Max(site.SolarFloorDeg, MinSolarFloorDeg) * ephem.Deg2Rad
+	minElong := c.MinSolarElongDeg * ephem.Deg2Rad
+	minAlt := c.MinAltDeg * ephem.Deg2Rad
+	maxAlt := math.Inf(1)
+	if c.MaxAltDeg != 0 {
+		maxAlt = c.MaxAltDeg * ephem.Deg2Rad
+	}
+	maxX := math.Inf(1)
+	if c.MaxAirmass != 0 {
+		maxX = c.MaxAirmass
+	}
+	maxHA := math.Inf(1)
+	if c.MaxHourAngleDeg != 0 {
+		maxHA = c.MaxHourAngleDeg * ephem.Deg2Rad
+	}
+	minMoon := c.MinMoonSepDeg * ephem.Deg2Rad
+	flip0, flip1 := site.FlipStartHADeg*ephem.Deg2Rad, site.FlipEndHADeg*ephem.Deg2Rad
+	checkFlip := c.AvoidFlipZone && site.Mount == GermanEquatorial
+	useSky := g.sky != nil
+	k := site.Sky.ExtinctionV
+	dark := site.Sky.ZenithMag
+
+	// Trailing: the longest exposure whose trail stays under the limit.
+	trailing := false
+	if tr.Target.Moving() && !req.NonSidereal && site.PixelScaleArcsec > 0 {
+		px := c.MaxTrailPixels
+		if px == 0 {
+			px = DefaultMaxTrailPixels
+		}
+		maxRate := 0.0
+		for i := range tr.RateRA {
+			maxRate = math.Max(maxRate, math.Hypot(float64(tr.RateRA[i]), float64(tr.RateDec[i])))
+		}
+		if maxRate > 0 {
+			limit := px * site.PixelScaleArcsec / (maxRate / 60) // seconds
+			v.TrailLimit = time.Duration(limit * float64(time.Second))
+		}
+		trailing = true
+	}
+	exposureS := req.Exposure.Seconds()
+	pxTrail := c.MaxTrailPixels
+	if pxTrail == 0 {
+		pxTrail = DefaultMaxTrailPixels
+	}
+
+	for i := 0; i < n; i++ {
+		r := OK
+		alt := float64(tr.Alt[i])
+		switch {
+		case !c.Earliest.IsZero() && g.localDay[i].Before(dateOnly(c.Earliest)),
+			!c.Latest.IsZero() && g.localDay[i].After(dateOnly(c.Latest)):
+			r = ReasonDate
+		case (c.LocalStart != 0 || c.LocalEnd != 0) && !inClock(g.clock[i], c.LocalStart, c.LocalEnd):
+			r = ReasonLocalTime
+		case g.Closed[i]:
+			r = ReasonClosure
+		case !c.Darkness.Allows(g.Dark[i]):
+			r = ReasonDaylight
+		case alt < site.Horizon.AltitudeAt(float64(tr.Az[i])):
+			r = ReasonBelowHorizon
+		case alt < minAlt:
+			r = ReasonAltitudeLow
+		case alt > maxAlt:
+			r = ReasonAltitudeHigh
+		case float64(tr.Airmass[i]) > maxX:
+			r = ReasonAirmass
+		case math.Abs(float64(tr.HA[i])) > maxHA:
+			r = ReasonHourAngle
+		case float64(tr.SunSep[i]) < floor:
+			r = ReasonSolarAvoidance
+		case float64(tr.SunSep[i]) < minElong:
+			r = ReasonSolarElongation
+		case float64(tr.MoonSep[i]) < minMoon && g.MoonAlt[i] > -moonSkipAlt:
+			r = ReasonMoonSeparation
+		case c.MaxMoonIllum != 0 && g.MoonIllum[i] > c.MaxMoonIllum && (!c.MoonIllumWhenUp || g.MoonAlt[i] > 0):
+			r = ReasonMoonIllumination
+		case useSky && c.MinSkyMag != 0 && !(float64(tr.Sky[i]) >= c.MinSkyMag):
+			r = ReasonSkyBrightness
+		case c.FaintestMag != 0 && tr.Mag != nil && !(float64(tr.Mag[i]) <= c.FaintestMag):
+			r = ReasonTooFaint
+		case trailing && exposureS*math.Hypot(float64(tr.RateRA[i]), float64(tr.RateDec[i]))/60 > pxTrail*site.PixelScaleArcsec:
+			r = ReasonTrailing
+		case checkFlip && float64(tr.HA[i]) >= flip0 && float64(tr.HA[i]) <= flip1:
+			r = ReasonFlipZone
+		}
+		v.Reason[i] = r
+		if r != OK {
+			continue
+		}
+		x := math.Max(float64(tr.Airmass[i]), 1)
+		q := math.Pow(10, -0.8*k*(x-1)) * math.Pow(x, -1.2)
+		if useSky {
+			if s := float64(tr.Sky[i]); s < dark {
+				q *= math.Pow(10, -0.4*(dark-s))
+			}
+		}
+		v.Quality[i] = float32(clamp(q, 1e-4, 1))
+	}
+	v.Windows = windows(v.Reason)
+	return v
+}
+
+// moonSkipAlt: a Moon more than this far below the horizon (radians) does
+// not count for minimum separation (its light is gone; 0.5 deg covers its
+// disc and refraction).
+const moonSkipAlt = 0.5 * ephem.Deg2Rad
+
+func dateOnly(t time.Time) time.Time {
+	y, m, d := t.Date()
+	return time.Date(y, m, d, 0, 0, 0, 0, time.UTC)
+}
+
+// inClock reports whether a time of day lies in [start, end), wrapping
+// through midnight when start > end.
+func inClock(t, start, end time.Duration) bool {
+	if start <= end {
+		return t >= start && t < end
+	}
+	return t >= start || t < end
+}
+
+func windows(rs []Reason) []Window {
+	var out []Window
+	for i := 0; i < len(rs); {
+		if rs[i] != OK {
+			i++
+			continue
+		}
+		j := i
+		for j < len(rs) && rs[j] == OK {
+			j++
+		}
+		out = append(out, Window{i, j})
+		i = j
+	}
+	return out
+}
+
+// Spans groups consecutive steps by reason, for explanations.
+func (v *Visibility) Spans(g *Grid) []Span {
+	var out []Span
+	for i := 0; i < len(v.Reason); {
+		j := i
+		for j < len(v.Reason) && v.Reason[j] == v.Reason[i] {
+			j++
+		}
+		out = append(out, Span{Reason: v.Reason[i], Start: i, End: j, From: g.Time(i), To: g.Time(j)})
+		i = j
+	}
+	return out
+}
+
+// Dominant returns the most frequent failing reason (OK if every step is
+// observable), for "never observable tonight because ..." summaries.
+func (v *Visibility) Dominant() Reason {
+	var count [NumReasons]int
+	for _, r := range v.Reason {
+		count[r]++
+	}
+	best := OK
+	for r := Reason(1); r < numReasons; r++ {
+		if count[r] > count[best] || best == OK && count[r] > 0 {
+			best = r
+		}
+	}
+	return best
+}

@@ -1,0 +1,145 @@
+package constraints
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"time"
+
+	"github.com/nightloom/nightloom/ephem"
+)
+
+// Grid limits, so that a request cannot ask for unbounded work.
+const (
+	MinStep      = 10 * time.Second
+	MaxGridSteps = 20000 // a 60 s grid over ~14 nights, or 10 s over 2 days
+)
+
+// ErrGrid reports an invalid grid request.
+var ErrGrid = errors.New("constraints: invalid grid")
+
+// Options tune a grid.
+type Options struct {
+	// NoSkyBrightness skips the sky-brightness model: the Sky track is NaN,
+	// sky-brightness limits are not checked and quality ignores the sky.
+	NoSkyBrightness bool
+}
+
+// Grid is a site's sky sampled at a fixed step: the Sun and Moon state and
+// the Earth orientation are computed here once per step and shared by
+// every target.
+type Grid struct {
+	Site  *Site
+	Start time.Time
+	Step  time.Duration
+	N     int
+	Opts  Options
+
+	Snap  []ephem.Snapshot
+	Local []ephem.Local
+
+	SunAlt, SunAz   []float64 // geometric, radians
+	SunDir, MoonDir []ephem.Vec3
+	MoonAlt, MoonAz []float64 // apparent, radians
+	MoonIllum       []float64 // topocentric illuminated fraction
+	MoonPhase       []float64 // Sun-Moon-observer angle, radians
+	MoonDistKm      []float64 // topocentric
+	Dark            []Darkness
+	// Closed marks steps when the site cannot observe (closures). Callers
+	// may set it before Evaluate; it starts all false.
+	Closed []bool
+
+	sunHD, moonHD []ephem.Vec3 // Sun and Moon in the local hour-angle frame
+	sky           []SkyStep
+	clock         []time.Duration // local time of day at each step
+	localDay      []time.Time     // local civil date at each step (midnight, UTC location)
+}
+
+// NewGrid samples [start, end) every step (instants start + i*step).
+func NewGrid(site *Site, start, end time.Time, step time.Duration, opts Options) (*Grid, error) {
+	if err := site.Validate(); err != nil {
+		return nil, err
+	}
+	if step < MinStep {
+		return nil, fmt.Errorf("%w: step %v shorter than %v", ErrGrid, step, MinStep)
+	}
+	if !end.After(start) {
+		return nil, fmt.Errorf("%w: end %v not after start %v", ErrGrid, end, start)
+	}
+	span := end.Sub(start)
+	n64 := int64((span + step - 1) / step)
+	if n64 > MaxGridSteps {
+		return nil, fmt.Errorf("%w: %d steps, at most %d (coarser step or shorter interval)", ErrGrid, n64, MaxGridSteps)
+	}
+	n := int(n64)
+	g := &Grid{Site: site, Start: start.UTC(), Step: step, N: n, Opts: opts,
+		Snap: make([]ephem.Snapshot, n), Local: make([]ephem.Local, n),
+		SunAlt: make([]float64, n), SunAz: make([]float64, n), SunDir: make([]ephem.Vec3, n),
+		MoonDir: make([]ephem.Vec3, n), MoonAlt: make([]float64, n), MoonAz: make([]float64, n),
+		MoonIllum: make([]float64, n), MoonPhase: make([]float64, n), MoonDistKm: make([]float64, n),
+		Dark: make([]Darkness, n), sunHD: make([]ephem.Vec3, n), moonHD: make([]ephem.Vec3, n), Closed: make([]bool, n), clock: make([]time.Duration, n),
+		localDay: make([]time.Time, n)}
+	if !opts.NoSkyBrightness {
+		g.sky = make([]SkyStep, n)
+	}
+	loc := site.Location
+	if loc == nil {
+		loc = time.UTC
+	}
+	for i := 0; i < n; i++ {
+		t := g.Time(i)
+		g.Snap[i] = ephem.Prepare(ephem.NewInstant(t))
+		g.Local[i] = g.Snap[i].Local(&site.Observer)
+		l := &g.Local[i]
+		sun, moon := l.SunPlace(), l.MoonPlace()
+		g.SunAlt[i], g.SunAz[i], g.SunDir[i] = sun.Alt, sun.Az, sun.OfDate
+		g.MoonAlt[i], g.MoonAz[i], g.MoonDir[i] = moon.AltApparent, moon.Az, moon.OfDate
+		g.sunHD[i] = l.OfDateToHADec.MulVec(sun.OfDate)
+		g.moonHD[i] = l.OfDateToHADec.MulVec(moon.OfDate)
+		g.MoonIllum[i], _ = l.MoonIllumination()
+		g.MoonPhase[i] = math.Acos(clamp(2*g.MoonIllum[i]-1, -1, 1))
+		g.MoonDistKm[i] = l.MoonOfDate().Norm()
+		g.Dark[i] = DarknessAt(sun.Alt * ephem.Rad2Deg)
+		if g.sky != nil {
+			g.sky[i] = NewSkyStep(site.Sky, sun.Alt, sun.Az, moon.AltApparent, moon.Az, g.MoonPhase[i], g.MoonDistKm[i])
+		}
+		lt := t.In(loc)
+		y, m, d := lt.Date()
+		g.localDay[i] = time.Date(y, m, d, 0, 0, 0, 0, time.UTC)
+		g.clock[i] = time.Duration(lt.Hour())*time.Hour + time.Duration(lt.Minute())*time.Minute +
+			time.Duration(lt.Second())*time.Second
+	}
+	return g, nil
+}
+
+// Time returns the instant of step i.
+func (g *Grid) Time(i int) time.Time { return g.Start.Add(time.Duration(i) * g.Step) }
+
+// End returns the instant just after the last step's interval.
+func (g *Grid) End() time.Time { return g.Time(g.N) }
+
+// Index returns the step whose interval [Time(i), Time(i+1)) holds t,
+// clamped to [0, N-1].
+func (g *Grid) Index(t time.Time) int {
+	i := int(t.Sub(g.Start) / g.Step)
+	if t.Before(g.Start) {
+		i = 0
+	}
+	if i >= g.N {
+		i = g.N - 1
+	}
+	return i
+}
+
+// Close marks [from, to) as closed (weather, maintenance): every step whose
+// interval overlaps it.
+func (g *Grid) Close(from, to time.Time) {
+	for i := 0; i < g.N; i++ {
+		t0, t1 := g.Time(i), g.Time(i+1)
+		if t0.Before(to) && t1.After(from) {
+			g.Closed[i] = true
+		}
+	}
+}
+
+func clamp(x, lo, hi float64) float64 { return math.Max(lo, math.Min(hi, x)) }

@@ -1,0 +1,116 @@
+package constraints
+
+import (
+	"errors"
+	"math"
+
+	"github.com/nightloom/nightloom/ephem"
+)
+
+// Target is something to point at: a fixed star (ICRS place with optional
+// proper motion) or a small body on a conic orbit.
+type Target struct {
+	Name  string
+	Star  *ephem.Star
+	Orbit *ephem.Conic
+}
+
+// ErrTarget reports a target that is neither fixed nor orbit, or both.
+var ErrTarget = errors.New("constraints: target must be exactly one of fixed or orbit")
+
+// Moving reports whether the target moves against the stars.
+func (t *Target) Moving() bool { return t.Orbit != nil }
+
+// Track is one target sampled on a grid. Angles are radians; values are
+// float32 (1e-7 rad = 0.02 arcsec) to keep 1000 targets x 720 steps small.
+type Track struct {
+	Target *Target
+	// Alt is the apparent (refracted) altitude, Az the azimuth.
+	Alt, Az []float32
+	// HA is the local apparent hour angle (east negative), Dec the
+	// apparent declination of date.
+	HA, Dec []float32
+	// Airmass is Kasten & Young's (+Inf below the horizon).
+	Airmass []float32
+	// MoonSep and SunSep are topocentric angular distances.
+	MoonSep, SunSep []float32
+	// Sky is the predicted V sky brightness at the target (mag/arcsec^2);
+	// NaN below the horizon or when the grid skips the sky model.
+	Sky []float32
+	// Mag (with extinction k*X), RateRA and RateDec (arcsec/min,
+	// RA*cos(dec) and Dec) are set for orbit targets only.
+	Mag, RateRA, RateDec []float32
+}
+
+// belowHorizonSkip is the altitude under which a step is not worth the
+// sky-brightness model (no horizon profile goes below -5 deg).
+const belowHorizonSkip = -5 * ephem.Deg2Rad
+
+// Track samples a target on the grid.
+func (g *Grid) Track(t *Target) (*Track, error) {
+	if (t.Star == nil) == (t.Orbit == nil) {
+		return nil, ErrTarget
+	}
+	n := g.N
+	buf := make([]float32, 8*n)
+	tr := &Track{Target: t,
+		Alt: buf[0*n : 1*n], Az: buf[1*n : 2*n], HA: buf[2*n : 3*n], Dec: buf[3*n : 4*n],
+		Airmass: buf[4*n : 5*n], MoonSep: buf[5*n : 6*n], SunSep: buf[6*n : 7*n], Sky: buf[7*n : 8*n]}
+	if t.Orbit != nil {
+		ob := make([]float32, 3*n)
+		tr.Mag, tr.RateRA, tr.RateDec = ob[:n], ob[n:2*n], ob[2*n:]
+	}
+	var u ephem.Vec3
+	if t.Star != nil {
+		// Proper motion over one grid is far below the float32 precision.
+		u = t.Star.Direction(g.Snap[n/2].TT)
+	}
+	obs := &g.Site.Observer
+	k := g.Site.Sky.ExtinctionV
+	nan := float32(math.NaN())
+	for i := 0; i < n; i++ {
+		l := &g.Local[i]
+		var hd ephem.Vec3 // direction in the local hour-angle frame
+		if t.Star != nil {
+			hd = l.StarHADec(u)
+		} else {
+			ofDate, view := l.OrbitView(t.Orbit)
+			hd = l.OfDateToHADec.MulVec(ofDate)
+			tr.RateRA[i], tr.RateDec[i] = float32(view.RateRA), float32(view.RateDec)
+			tr.Mag[i] = float32(view.Magnitude) // extinction added below
+		}
+		h := obs.HADecToHorizon(hd)
+		alt := math.Asin(clamp(h[2], -1, 1))
+		az := math.Atan2(h[1], h[0])
+		if az < 0 {
+			az += 2 * math.Pi
+		}
+		tr.Az[i] = float32(az)
+		if alt < belowHorizonSkip {
+			// Far below any horizon profile: nothing else is needed.
+			tr.Alt[i], tr.Airmass[i] = float32(alt), float32(math.Inf(1))
+			tr.HA[i], tr.Dec[i], tr.MoonSep[i], tr.SunSep[i], tr.Sky[i] = nan, nan, nan, nan, nan
+			if tr.Mag != nil {
+				tr.Mag[i] = nan
+			}
+			continue
+		}
+		app := alt + obs.Refraction(alt)
+		x := ephem.Airmass(app)
+		tr.Alt[i], tr.Airmass[i] = float32(app), float32(x)
+		tr.HA[i] = float32(math.Atan2(-hd[1], hd[0]))
+		tr.Dec[i] = float32(math.Asin(clamp(hd[2], -1, 1)))
+		ms := math.Acos(clamp(hd.Dot(g.moonHD[i]), -1, 1))
+		ss := math.Acos(clamp(hd.Dot(g.sunHD[i]), -1, 1))
+		tr.MoonSep[i], tr.SunSep[i] = float32(ms), float32(ss)
+		if tr.Mag != nil && !math.IsInf(x, 0) {
+			tr.Mag[i] += float32(k * x)
+		}
+		if g.sky == nil {
+			tr.Sky[i] = nan
+			continue
+		}
+		tr.Sky[i] = float32(g.sky[i].At(math.Max(app, 0), az, ms, ss))
+	}
+	return tr, nil
+}
