@@ -10,7 +10,8 @@ const (
 	// MagNone: no magnitude is predicted (View.Magnitude is NaN).
 	MagNone MagLaw = iota
 	// MagComet: total magnitude m = M1 + 5 log10(Delta) + K1 log10(r), the
-	// usual law for comets (Meeus, Astronomical Algorithms, 2nd ed., ch. 33).
+	// usual law for comets (e.g. Meeus, Astronomical Algorithms, 2nd ed.;
+	// the chapter, 33, from memory).
 	MagComet
 	// MagAsteroid: the IAU H, G system of Bowell et al. (1989).
 	MagAsteroid
@@ -36,7 +37,7 @@ const faintestMag = 99
 
 // cometMagnitude returns the total magnitude m = M1 + 5 log10(Delta) +
 // K1 log10(r) of a comet at distance deltaAU from the observer and rAU from
-// the Sun (Meeus, Astronomical Algorithms, 2nd ed., ch. 33).
+// the Sun (see MagComet).
 func cometMagnitude(m1, k1, deltaAU, rAU float64) float64 {
 	return m1 + 5*math.Log10(deltaAU) + k1*math.Log10(rAU)
 }

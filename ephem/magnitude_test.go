@@ -9,10 +9,10 @@ import (
 // mag.
 const orbitMagTol = 1e-6
 
-// TestCometMagnitude: m = M1 + 5 log10(Delta) + K1 log10(r) (Meeus,
-// Astronomical Algorithms, 2nd ed., ch. 33). No worked comet-magnitude
-// example from Meeus could be verified from a source, so the cases are
-// hand-derived, as stated beside each (log10 2 = 0.30103000).
+// TestCometMagnitude: m = M1 + 5 log10(Delta) + K1 log10(r). No worked
+// comet-magnitude example from Meeus (the brief's ch. 33) could be verified
+// from a source, so the cases are hand-derived, as stated beside each
+// (log10 2 = 0.30103000).
 func TestCometMagnitude(t *testing.T) {
 	cases := []struct {
 		m1, k1, delta, r, want float64
