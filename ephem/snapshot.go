@@ -2,10 +2,6 @@ package ephem
 
 import "math"
 
-// moonLightTimeDays is the mean one-way light time Earth-Moon (384400 km /
-// c = 1.282 s). Using the mean instead of iterating errs by under 0.05 arcsec.
-const moonLightTimeDays = 1.282 / 86400
-
 // Snapshot holds everything at one instant that does not depend on where
 // the observer stands: Earth orientation, the Earth's heliocentric state, and
 // the geocentric apparent Sun and Moon. Build it once per time step with
@@ -63,12 +59,12 @@ func prepareSun(in Instant) Snapshot {
 func (s *Snapshot) addMoon() {
 	in := s.Instant
 
-	// Moon: the series gives the geometric place on the mean ecliptic of
-	// date. For the Moon the annual aberration cancels against the Earth's
-	// own displacement during the light time, leaving only the Moon's
-	// geocentric motion during 1.28 s (Explanatory Supplement 3rd ed.
-	// sec. 7.2.2); so evaluate at t - tau and add nutation.
-	lon, lat, dist := MoonEclipticOfDate(in.TT.AddDays(-moonLightTimeDays))
+	// Moon: for the Moon the annual aberration cancels against the
+	// Earth's own displacement during the light time, leaving only the
+	// Moon's geocentric motion during ~1.28 s (Explanatory Supplement 3rd
+	// ed. sec. 7.2.2). Meeus's mean longitude L' already includes that
+	// light time (Astronomical Algorithms ch. 47), so only nutation is added.
+	lon, lat, dist := MoonEclipticOfDate(in.TT)
 	eps := s.EpsA + s.DEps
 	ecl := SphericalToVec(lon+s.DPsi, lat).Scale(dist)
 	rot := RotX(-eps)

@@ -229,14 +229,14 @@ def make_sites():
         (66.0, 6, 21, "midnight sun: no sunset"),
         (67.5, 6, 10, "midnight sun: no sunset"),
         (69.0, 7, 1, "midnight sun: no sunset"),
-        (68.0, 12, 21, "polar night: no sunrise/sunset, civil twilight only"),
+        (68.0, 12, 21, "polar night: no sunrise/sunset; civil twilight only"),
         (69.0, 12, 15, "polar night: no sunrise/sunset"),
         (65.0, 12, 21, "midwinter: short day"),
-        (62.0, 3, 20, "high latitude, equinox"),
-        (64.0, 9, 23, "high latitude, equinox"),
-        (60.5, 8, 10, "high latitude, late summer"),
-        (66.5, 5, 20, "high latitude, spring"),
-        (69.0, 2, 10, "high latitude, end of polar night"),
+        (62.0, 3, 20, "high latitude; equinox"),
+        (64.0, 9, 23, "high latitude; equinox"),
+        (60.5, 8, 10, "high latitude; late summer"),
+        (66.5, 5, 20, "high latitude; spring"),
+        (69.0, 2, 10, "high latitude; end of polar night"),
         (-60.0, 12, 21, "southern midsummer: no nautical/astronomical darkness"),
         (-62.5, 12, 10, "southern midsummer: no civil darkness"),
         (-64.0, 12, 21, "southern midsummer: short night"),
@@ -246,10 +246,10 @@ def make_sites():
         (-68.0, 6, 21, "southern polar night: no sunrise/sunset"),
         (-69.0, 6, 10, "southern polar night"),
         (-65.0, 6, 21, "southern midwinter: short day"),
-        (-61.0, 3, 21, "southern high latitude, equinox"),
-        (-63.0, 9, 22, "southern high latitude, equinox"),
-        (-66.6, 11, 20, "southern high latitude, late spring"),
-        (-69.0, 8, 5, "southern high latitude, end of polar night"),
+        (-61.0, 3, 21, "southern high latitude; equinox"),
+        (-63.0, 9, 22, "southern high latitude; equinox"),
+        (-66.6, 11, 20, "southern high latitude; late spring"),
+        (-69.0, 8, 5, "southern high latitude; end of polar night"),
     ]
     for lat, m, d, case in high:
         sites.append(Site(lat, lon(), elev(1500.0), D(year(), m, d), case))
@@ -333,6 +333,8 @@ CONVENTIONS = [
 
 def main():
     sites = make_sites()
+    for s in sites:  # "24 h later" is unambiguous only without a leap second in the window
+        assert rc.tai_minus_utc(s.start_ms) == rc.tai_minus_utc(s.start_ms + int(WINDOW_S * 1000)), s.date
     rows = []
     for k, s in enumerate(sites):
         first, sun_ext, moon_ext, counts = solve_site(s)
@@ -356,6 +358,7 @@ def main():
             vals += [fmt_ms(None if first[c] is None else start + first[c] * 1000.0) for c in EVENT_COLS]
             vals += ["%.6f" % sun_ext[0], "%.6f" % sun_ext[1], "%.6f" % moon_ext[0], "%.6f" % moon_ext[1], s.case]
             vals += [fmt_ms(pe[c]) for c in EVENT_COLS]
+            assert not any("," in v or '"' in v for v in vals), vals
             f.write(",".join(vals) + "\n")
 
     # ---- statistics

@@ -233,6 +233,7 @@ def observe(el, dt_days_nominal):
     x1, y1 = orbit_plane(el["q"], el["e"], dt - tau)
     x2, y2 = orbit_plane_universal(el["q"], el["e"], dt - tau)
     univ = float(mp.hypot(x1 - x2, y1 - y2))
+    assert univ < 1e-12, "the two propagators disagree for %s" % el["id"]
     rho = P - earth
     delta = float(np.linalg.norm(rho))
     r = float(np.linalg.norm(P))
@@ -378,6 +379,18 @@ def main():
         worst = sorted(zip(sep, grp), key=lambda x: -x[0])[:3]
         for s, (el, res, pe) in worst:
             lines.append("    e.g. %s e=%.8f q=%.5f dt=%.1f d: %.3f arcsec" % (el["id"], el["e"], el["q"], res["dt_days"], s))
+    # PyEphem's behaviour close to e = 1: one orbit's elements with e varied, +-300 d from perihelion
+    base = dict(next(el for el in orbits if el["id"] == "N03"))
+    lines.append("PyEphem near e = 1 (elements of N03 with e varied; arcsec at dt = -300, -100, -10, +10, +100, +300 d):")
+    for e in (0.97, 0.98, 0.99, 0.995, 0.999, 1.0, 1.001, 1.005, 1.01, 1.02, 1.03, 1.05):
+        el2 = dict(base)
+        el2["e"] = e
+        seps = []
+        for d in (-300.0, -100.0, -10.0, 10.0, 100.0, 300.0):
+            r2 = observe(el2, d)
+            p2 = pyephem_observe(el2, r2["utc_ms"])
+            seps.append("%.2f" % (rc.sep_deg(r2["ra"], r2["dec"], p2["ra"], p2["dec"]) * 3600))
+        lines.append("  e = %-6g %s" % (e, " ".join(seps)))
     retro = sum(1 for el in orbits if el["i"] > 90)
     lines.append("orbits: %d (%d retrograde), rows: %d" % (len(orbits), retro, len(rows)))
     with open(os.path.join(HERE, "crosscheck_orbit.txt"), "w") as f:
