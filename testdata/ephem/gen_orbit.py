@@ -320,6 +320,7 @@ def main():
                                     "testdata/ephem/gen_orbit.py (own mpmath propagator; PyEphem cross-check)",
                                     CONVENTIONS):
             f.write(line + "\n")
+        f.write("# primary propagator runs in mpmath %s at %d digits\n" % (mp.__version__, mp.mp.dps))
         f.write("# dt_tt_days: observation TT minus perihelion TT, days (before light-time)\n")
         f.write(",".join(names) + "\n")
         for el, res, pe in rows:
