@@ -133,17 +133,27 @@ func (g *Grid) Evaluate(tr *Track, req Request) *Visibility {
 		if r != OK {
 			continue
 		}
-		x := math.Max(float64(tr.Airmass[i]), 1)
-		q := math.Pow(10, -0.8*k*(x-1)) * math.Pow(x, -1.2)
-		if useSky {
-			if s := float64(tr.Sky[i]); s < dark {
-				q *= math.Pow(10, -0.4*(dark-s))
-			}
-		}
-		v.Quality[i] = float32(clamp(q, 1e-4, 1))
+		v.Quality[i] = float32(quality(float64(tr.Airmass[i]), float64(tr.Sky[i]), k, dark, useSky))
 	}
 	v.Windows = windows(v.Reason)
 	return v
+}
+
+// quality is the package doc's formula, as one exp and one log:
+// q = 10^(-0.8 k) X^(-1.2) 10^(-0.4 (m_dark - m_sky)), clipped to
+// [1e-4, 1].
+func quality(x, sky, k, dark float64, useSky bool) float64 {
+	if !(x >= 1) {
+		x = 1
+	}
+	e := -0.8*k*(x-1)*math.Ln10 - 1.2*math.Log(x)
+	if useSky && sky < dark {
+		e -= 0.4 * (dark - sky) * math.Ln10
+	}
+	if math.IsInf(x, 1) {
+		return 1e-4
+	}
+	return clamp(math.Exp(e), 1e-4, 1)
 }
 
 // moonSkipAlt: a Moon more than this far below the horizon (radians) does

@@ -142,4 +142,14 @@ func (g *Grid) Close(from, to time.Time) {
 	}
 }
 
-func clamp(x, lo, hi float64) float64 { return math.Max(lo, math.Min(hi, x)) }
+// clamp limits x to [lo, hi] (plain comparisons: math.Max/Min handle NaN and
+// signed zeros at a cost the inner loops notice).
+func clamp(x, lo, hi float64) float64 {
+	if x < lo {
+		return lo
+	}
+	if x > hi {
+		return hi
+	}
+	return x
+}

@@ -116,6 +116,8 @@ var (
 	patatNightNL  = MagToNanolamberts(patatNightMag)
 	twilightAt105 = patatExcessNL(patatZHiDeg)
 	ksScatterTab  = newScatterTable()
+	// ksMagAt1NL is 0.92104 times the V of 1 nL: 20.7233 + ln 34.08.
+	ksMagAt1NL = ksNLOffset + math.Log(ksNLScale)
 )
 
 // The fast path reads f(rho) from a table every 0.1 deg from 10 to 180 deg
@@ -160,7 +162,8 @@ func MagToNanolamberts(v float64) float64 {
 // NanolambertsToMag converts nanolamberts to V mag/arcsec^2, the inverse of
 // MagToNanolamberts. b must be positive.
 func NanolambertsToMag(b float64) float64 {
-	return (ksNLOffset - math.Log(b/ksNLScale)) / ksNLSlope
+	// (20.7233 - ln(b / 34.08)) / 0.92104, with the constants folded.
+	return (ksMagAt1NL - math.Log(b)) * (1 / ksNLSlope)
 }
 
 // ksAirmass is Krisciunas & Schaefer's eq. 3 for an altitude in radians

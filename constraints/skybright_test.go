@@ -20,16 +20,16 @@ const (
 	skyTolRelFlux = 1e-5 // relative, in nL
 )
 
-const testDeg = math.Pi / 180
+const skyTestDeg = math.Pi / 180
 
 // Sky at the zenith with the Moon down and the Sun far below the horizon.
-var darkNight = struct{ sunAlt, moonAlt float64 }{-40 * testDeg, -20 * testDeg}
+var skyDarkNight = struct{ sunAlt, moonAlt float64 }{-40 * skyTestDeg, -20 * skyTestDeg}
 
-// zenithSunSep is the Sun's distance from the zenith for a Sun altitude.
-func zenithSunSep(sunAlt float64) float64 { return math.Pi/2 - sunAlt }
+// skyZenithSunSep is the Sun's distance from the zenith for a Sun altitude.
+func skyZenithSunSep(sunAlt float64) float64 { return math.Pi/2 - sunAlt }
 
-// sepFrom is the angle between two horizontal directions (radians).
-func sepFrom(alt1, az1, alt2, az2 float64) float64 {
+// skySepFrom is the angle between two horizontal directions (radians).
+func skySepFrom(alt1, az1, alt2, az2 float64) float64 {
 	c := math.Sin(alt1)*math.Sin(alt2) + math.Cos(alt1)*math.Cos(alt2)*math.Cos(az1-az2)
 	return math.Acos(math.Max(-1, math.Min(1, c)))
 }
@@ -68,8 +68,8 @@ func TestDarkSkyZenithIsTheParameter(t *testing.T) {
 	// By construction of Krisciunas & Schaefer (1991) eq. 2: X = 1 at the
 	// zenith, so the zenith sky is the site's parameter whatever k.
 	for _, p := range []SkyParams{{21.6, 0.172}, {19.3, 0.35}, {22.0, 0}} {
-		s := NewSkyStep(p, darkNight.sunAlt, 0, darkNight.moonAlt, 0, 0, ksMeanMoonDistKm)
-		got := s.At(math.Pi/2, 0, 1, zenithSunSep(darkNight.sunAlt))
+		s := NewSkyStep(p, skyDarkNight.sunAlt, 0, skyDarkNight.moonAlt, 0, 0, ksMeanMoonDistKm)
+		got := s.At(math.Pi/2, 0, 1, skyZenithSunSep(skyDarkNight.sunAlt))
 		if math.Abs(got-p.ZenithMag) > skyTolExactMag {
 			t.Errorf("%+v: zenith sky %.12f, want %v (tolerance %g mag)", p, got, p.ZenithMag, skyTolExactMag)
 		}
@@ -91,9 +91,9 @@ func TestDarkSkyTowardHorizon(t *testing.T) {
 		{75, 20.733463460251013},
 		{90, 20.540581847865305},
 	}
-	s := NewSkyStep(p, darkNight.sunAlt, 0, darkNight.moonAlt, 0, 0, 0)
+	s := NewSkyStep(p, skyDarkNight.sunAlt, 0, skyDarkNight.moonAlt, 0, 0, 0)
 	for _, c := range cases {
-		alt := (90 - c.zDeg) * testDeg
+		alt := (90 - c.zDeg) * skyTestDeg
 		if got := s.At(alt, 0, 1, 2); math.Abs(got-c.want) > skyTolExactMag {
 			t.Errorf("Z = %v deg: %.12f, want %.12f (tolerance %g mag)", c.zDeg, got, c.want, skyTolExactMag)
 		}
@@ -101,7 +101,7 @@ func TestDarkSkyTowardHorizon(t *testing.T) {
 			t.Errorf("DarkSkyNanolamberts at Z = %v deg: %.12f mag, want %.12f", c.zDeg, got, c.want)
 		}
 	}
-	if x := ksAirmass(30 * testDeg); math.Abs(x-1.8898223650461357) > 1e-12 {
+	if x := ksAirmass(30 * skyTestDeg); math.Abs(x-1.8898223650461357) > 1e-12 {
 		t.Errorf("K&S airmass at Z = 60 deg = %.13f, want 1.8898223650461 (eq. 3)", x)
 	}
 	// Below the horizon: the value at the horizon.
@@ -117,7 +117,7 @@ func TestMoonlightWorkedExample(t *testing.T) {
 	// alpha = 180 * 0.25 = 45 deg), k = 0.15 -> 19.855 mag/arcsec^2 of
 	// scattered moonlight alone (published to three decimals). specsim
 	// uses the mean Moon distance.
-	b := MoonlightNanolamberts(0.15, 70*testDeg, 20*testDeg, 50*testDeg, 45*testDeg, ksMeanMoonDistKm)
+	b := MoonlightNanolamberts(0.15, 70*skyTestDeg, 20*skyTestDeg, 50*skyTestDeg, 45*skyTestDeg, ksMeanMoonDistKm)
 	if got := NanolambertsToMag(b); math.Abs(got-19.855) > skyTolRoundedMag {
 		t.Errorf("moonlight = %.4f mag/arcsec^2, want 19.855 (specsim docs), tolerance %g", got, skyTolRoundedMag)
 	}
@@ -131,11 +131,11 @@ func TestFullMoonBrightensTheSky(t *testing.T) {
 	// Here: Mauna Kea-like k = 0.172, Moon and target both at Z = 30 deg,
 	// separations 20-60 deg; accepted band 3.0-4.2 mag.
 	p := SkyParams{21.6, 0.172}
-	moonAlt := 60 * testDeg
-	dark := NewSkyStep(p, darkNight.sunAlt, 0, -1, 0, 0, 0)
-	full := NewSkyStep(p, darkNight.sunAlt, 0, moonAlt, 0, 0, ksMeanMoonDistKm)
+	moonAlt := 60 * skyTestDeg
+	dark := NewSkyStep(p, skyDarkNight.sunAlt, 0, -1, 0, 0, 0)
+	full := NewSkyStep(p, skyDarkNight.sunAlt, 0, moonAlt, 0, 0, ksMeanMoonDistKm)
 	for _, rhoDeg := range []float64{20, 30, 45, 60} {
-		d := dark.At(60*testDeg, 0, rhoDeg*testDeg, 2) - full.At(60*testDeg, 0, rhoDeg*testDeg, 2)
+		d := dark.At(60*skyTestDeg, 0, rhoDeg*skyTestDeg, 2) - full.At(60*skyTestDeg, 0, rhoDeg*skyTestDeg, 2)
 		if d < 3.0 || d > 4.2 {
 			t.Errorf("rho = %v deg: full Moon brightens by %.2f mag, want 3.0-4.2 (from memory)", rhoDeg, d)
 		}
@@ -147,11 +147,11 @@ func TestMoonlightMonotonic(t *testing.T) {
 	// angle grows (less illuminated Moon); f(rho) falls with rho up to its
 	// minimum near 95 deg.
 	p := SkyParams{21.6, 0.172}
-	alt, moonAlt := 50*testDeg, 40*testDeg
+	alt, moonAlt := 50*skyTestDeg, 40*skyTestDeg
 	prev := math.Inf(-1)
 	for a := 0.0; a <= 180; a += 5 {
-		s := NewSkyStep(p, darkNight.sunAlt, 0, moonAlt, 0, a*testDeg, ksMeanMoonDistKm)
-		got := s.At(alt, 0, 40*testDeg, 2)
+		s := NewSkyStep(p, skyDarkNight.sunAlt, 0, moonAlt, 0, a*skyTestDeg, ksMeanMoonDistKm)
+		got := s.At(alt, 0, 40*skyTestDeg, 2)
 		if !(got > prev) {
 			t.Errorf("phase angle %v deg: %.6f mag, not fainter than %.6f at the previous angle", a, got, prev)
 		}
@@ -159,22 +159,22 @@ func TestMoonlightMonotonic(t *testing.T) {
 	}
 	prev = 0
 	for rho := 10.0; rho <= 90; rho += 2 {
-		got := MoonlightNanolamberts(p.ExtinctionV, alt, moonAlt, rho*testDeg, 60*testDeg, 0)
+		got := MoonlightNanolamberts(p.ExtinctionV, alt, moonAlt, rho*skyTestDeg, 60*skyTestDeg, 0)
 		if rho > 10 && !(got < prev) {
 			t.Errorf("rho = %v deg: %.6g nL, not fainter than %.6g nL at rho - 2", rho, got, prev)
 		}
 		prev = got
 	}
 	// Below 10 deg the fit's limit holds the value at 10 deg.
-	at10 := MoonlightNanolamberts(p.ExtinctionV, alt, moonAlt, 10*testDeg, 0, 0)
-	if at3 := MoonlightNanolamberts(p.ExtinctionV, alt, moonAlt, 3*testDeg, 0, 0); at3 != at10 {
+	at10 := MoonlightNanolamberts(p.ExtinctionV, alt, moonAlt, 10*skyTestDeg, 0, 0)
+	if at3 := MoonlightNanolamberts(p.ExtinctionV, alt, moonAlt, 3*skyTestDeg, 0, 0); at3 != at10 {
 		t.Errorf("rho = 3 deg: %g nL, want the value at 10 deg %g nL", at3, at10)
 	}
 	// Moon below the horizon: no moonlight at all.
 	if b := MoonlightNanolamberts(p.ExtinctionV, alt, -0.001, 0.5, 0, 0); b != 0 {
 		t.Errorf("Moon below the horizon: %g nL, want 0", b)
 	}
-	down := NewSkyStep(p, darkNight.sunAlt, 0, -0.001, 0, 0, 0)
+	down := NewSkyStep(p, skyDarkNight.sunAlt, 0, -0.001, 0, 0, 0)
 	if got, want := down.At(alt, 0, 0.5, 2), NanolambertsToMag(DarkSkyNanolamberts(21.6, 0.172, alt)); math.Abs(got-want) > skyTolExactMag {
 		t.Errorf("Moon down: %.12f, want the dark sky %.12f", got, want)
 	}
@@ -195,44 +195,44 @@ func TestTwilightPatat(t *testing.T) {
 	// (Patat 2003, A&A 400, 1183) must reproduce it exactly.
 	p := SkyParams{21.6, 0.13}
 	for _, c := range []struct{ zDeg, want float64 }{{95, 11.84}, {100, 18.005}, {105, 21.32}} {
-		sunAlt := (90 - c.zDeg) * testDeg
-		s := NewSkyStep(p, sunAlt, 0, darkNight.moonAlt, 0, 0, 0)
-		if got := s.At(math.Pi/2, 0, 1, zenithSunSep(sunAlt)); math.Abs(got-c.want) > 1e-9 {
+		sunAlt := (90 - c.zDeg) * skyTestDeg
+		s := NewSkyStep(p, sunAlt, 0, skyDarkNight.moonAlt, 0, 0, 0)
+		if got := s.At(math.Pi/2, 0, 1, skyZenithSunSep(sunAlt)); math.Abs(got-c.want) > 1e-9 {
 			t.Errorf("Sun zenith distance %v deg: zenith sky %.10f, want %.3f (Patat et al. 2006)", c.zDeg, got, c.want)
 		}
 	}
 	// A brighter site adds its own dark sky to the same scattered sunlight:
 	// zenith 20.0 at z = 100 -> nL(20) + nL(18.005) - nL(21.6).
-	sunAlt := -10 * testDeg
-	s := NewSkyStep(SkyParams{20.0, 0.13}, sunAlt, 0, darkNight.moonAlt, 0, 0, 0)
+	sunAlt := -10 * skyTestDeg
+	s := NewSkyStep(SkyParams{20.0, 0.13}, sunAlt, 0, skyDarkNight.moonAlt, 0, 0, 0)
 	want := NanolambertsToMag(MagToNanolamberts(20) + MagToNanolamberts(18.005) - MagToNanolamberts(21.6))
-	if got := s.At(math.Pi/2, 0, 1, zenithSunSep(sunAlt)); math.Abs(got-want) > skyTolExactMag {
+	if got := s.At(math.Pi/2, 0, 1, skyZenithSunSep(sunAlt)); math.Abs(got-want) > skyTolExactMag {
 		t.Errorf("site 20.0 at z = 100: %.10f, want %.10f", got, want)
 	}
 }
 
 func TestTwilightContinuityAndOrder(t *testing.T) {
 	p := SkyParams{21.6, 0.2}
-	target := struct{ alt, az float64 }{35 * testDeg, 250 * testDeg}
-	sunAz := 290 * testDeg
+	target := struct{ alt, az float64 }{35 * skyTestDeg, 250 * skyTestDeg}
+	sunAz := 290 * skyTestDeg
 	sky := func(sunAlt float64) float64 {
-		s := NewSkyStep(p, sunAlt, sunAz, darkNight.moonAlt, 0, 0, 0)
-		return s.At(target.alt, target.az, 1, sepFrom(target.alt, target.az, sunAlt, sunAz))
+		s := NewSkyStep(p, sunAlt, sunAz, skyDarkNight.moonAlt, 0, 0, 0)
+		return s.At(target.alt, target.az, 1, skySepFrom(target.alt, target.az, sunAlt, sunAz))
 	}
 	// Continuity where the model changes form: -18 (twilight ends), -15
 	// (end of the fit), -5 (start of the fit), 0 (daylight cap). 1e-7 deg
 	// is 0.3 ms of time; the sky may change by no more than 1e-6 mag.
-	const eps = 1e-7 * testDeg
+	const eps = 1e-7 * skyTestDeg
 	for _, hDeg := range []float64{-18, -15, -5, 0} {
-		h := hDeg * testDeg
+		h := hDeg * skyTestDeg
 		if d := math.Abs(sky(h+eps) - sky(h-eps)); d > 1e-6 {
 			t.Errorf("Sun at %v deg: jump of %.3g mag across it, want < 1e-6", hDeg, d)
 		}
 	}
-	if b := TwilightNanolamberts(p.ExtinctionV, target.alt, -18*testDeg-eps, 1); b != 0 {
+	if b := TwilightNanolamberts(p.ExtinctionV, target.alt, -18*skyTestDeg-eps, 1); b != 0 {
 		t.Errorf("Sun just below -18 deg: twilight %g nL, want 0", b)
 	}
-	if b := TwilightNanolamberts(p.ExtinctionV, target.alt, -18*testDeg+1e-3*testDeg, 1); !(b > 0) {
+	if b := TwilightNanolamberts(p.ExtinctionV, target.alt, -18*skyTestDeg+1e-3*skyTestDeg, 1); !(b > 0) {
 		t.Errorf("Sun just above -18 deg: twilight %g nL, want > 0", b)
 	}
 	// Brighter with a higher Sun: strictly from -18 deg to the horizon,
@@ -241,7 +241,7 @@ func TestTwilightContinuityAndOrder(t *testing.T) {
 	// Sun, so a given target may fade by a few millimag as the Sun climbs).
 	prev := math.Inf(1)
 	for hDeg := -25.0; hDeg <= 20; hDeg += 0.5 {
-		got := sky(hDeg * testDeg)
+		got := sky(hDeg * skyTestDeg)
 		switch {
 		case math.IsNaN(got) || math.IsInf(got, 0) || (hDeg > 0 && got > 6):
 			t.Fatalf("Sun at %v deg: sky %v, want finite (and < 6 mag/arcsec^2 once the Sun is up)", hDeg, got)
@@ -255,17 +255,17 @@ func TestTwilightContinuityAndOrder(t *testing.T) {
 		prev = got
 	}
 	// Sun up: very bright but finite (the zenith is held at V ~ 4.25).
-	up := NewSkyStep(p, 30*testDeg, 0, darkNight.moonAlt, 0, 0, 0)
-	if got := up.At(math.Pi/2, 0, 1, zenithSunSep(30*testDeg)); !(got > 3 && got < 5) {
+	up := NewSkyStep(p, 30*skyTestDeg, 0, skyDarkNight.moonAlt, 0, 0, 0)
+	if got := up.At(math.Pi/2, 0, 1, skyZenithSunSep(30*skyTestDeg)); !(got > 3 && got < 5) {
 		t.Errorf("Sun at +30 deg: zenith sky %.3f, want a finite 3-5 mag/arcsec^2", got)
 	}
 	// Our extension: the low sky toward the Sun is brighter than the low
 	// sky away from it, and both are brighter than the zenith.
-	sunAlt := -9 * testDeg
-	s := NewSkyStep(p, sunAlt, sunAz, darkNight.moonAlt, 0, 0, 0)
-	toward := s.At(10*testDeg, sunAz, 1, sepFrom(10*testDeg, sunAz, sunAlt, sunAz))
-	away := s.At(10*testDeg, sunAz+math.Pi, 1, sepFrom(10*testDeg, sunAz+math.Pi, sunAlt, sunAz))
-	zen := s.At(math.Pi/2, 0, 1, zenithSunSep(sunAlt))
+	sunAlt := -9 * skyTestDeg
+	s := NewSkyStep(p, sunAlt, sunAz, skyDarkNight.moonAlt, 0, 0, 0)
+	toward := s.At(10*skyTestDeg, sunAz, 1, skySepFrom(10*skyTestDeg, sunAz, sunAlt, sunAz))
+	away := s.At(10*skyTestDeg, sunAz+math.Pi, 1, skySepFrom(10*skyTestDeg, sunAz+math.Pi, sunAlt, sunAz))
+	zen := s.At(math.Pi/2, 0, 1, skyZenithSunSep(sunAlt))
 	if !(toward < away && away < zen) {
 		t.Errorf("Sun at -9 deg: toward %.3f, away %.3f, zenith %.3f mag; want toward < away < zenith", toward, away, zen)
 	}
@@ -280,11 +280,11 @@ func TestSkyStepMatchesParts(t *testing.T) {
 		if i%10 == 0 {
 			p.ExtinctionV = 0
 		}
-		sunAlt := (-30 + 40*r.Float64()) * testDeg
-		moonAlt := (-20 + 110*r.Float64()) * testDeg
+		sunAlt := (-30 + 40*r.Float64()) * skyTestDeg
+		moonAlt := (-20 + 110*r.Float64()) * skyTestDeg
 		phase := math.Pi * r.Float64()
 		dist := 356000 + 50000*r.Float64()
-		alt := (-5 + 95*r.Float64()) * testDeg
+		alt := (-5 + 95*r.Float64()) * skyTestDeg
 		moonSep := math.Pi * r.Float64()
 		sunSep := math.Pi * r.Float64()
 		s := NewSkyStep(p, sunAlt, 0, moonAlt, 0, phase, dist)
@@ -304,7 +304,7 @@ func TestScatterTable(t *testing.T) {
 	// ends; clamped below 10 deg and above 180 deg.
 	worst := 0.0
 	for rhoDeg := 0.0; rhoDeg <= 181; rhoDeg += 0.001 {
-		rho := rhoDeg * testDeg
+		rho := rhoDeg * skyTestDeg
 		want := ksScatter(math.Min(rho, math.Pi))
 		worst = math.Max(worst, math.Abs(ksScatterFast(rho)/want-1))
 	}
@@ -334,12 +334,12 @@ func BenchmarkSkyAt(b *testing.B) {
 	r := rand.New(rand.NewPCG(3, 4))
 	var alt, moonSep, sunSep [n]float64
 	for i := range alt {
-		alt[i] = (5 + 85*r.Float64()) * testDeg
+		alt[i] = (5 + 85*r.Float64()) * skyTestDeg
 		moonSep[i] = math.Pi * r.Float64()
 		sunSep[i] = math.Pi * r.Float64()
 	}
 	p := SkyParams{21.6, 0.2}
-	deg := testDeg
+	deg := skyTestDeg
 	for _, c := range []struct {
 		name            string
 		sunAlt, moonAlt float64

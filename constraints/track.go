@@ -3,6 +3,7 @@ package constraints
 import (
 	"errors"
 	"math"
+	"time"
 
 	"github.com/nightloom/nightloom/ephem"
 )
@@ -42,6 +43,9 @@ type Track struct {
 	Mag, RateRA, RateDec []float32
 }
 
+// starRefresh is how often a fixed target's apparent place is recomputed.
+const starRefresh = time.Hour
+
 // belowHorizonSkip is the altitude under which a step is not worth the
 // sky-brightness model (no horizon profile goes below -5 deg).
 const belowHorizonSkip = -5 * ephem.Deg2Rad
@@ -52,6 +56,10 @@ func (g *Grid) Track(t *Target) (*Track, error) {
 		return nil, ErrTarget
 	}
 	n := g.N
+	refresh := int(starRefresh / g.Step)
+	if refresh < 1 {
+		refresh = 1
+	}
 	buf := make([]float32, 8*n)
 	tr := &Track{Target: t,
 		Alt: buf[0*n : 1*n], Az: buf[1*n : 2*n], HA: buf[2*n : 3*n], Dec: buf[3*n : 4*n],
@@ -65,6 +73,11 @@ func (g *Grid) Track(t *Target) (*Track, error) {
 		// Proper motion over one grid is far below the float32 precision.
 		u = t.Star.Direction(g.Snap[n/2].TT)
 	}
+	// A fixed target's apparent place of date (aberration, precession,
+	// nutation) drifts by under 0.02 arcsec in an hour, so it is refreshed
+	// every starRefresh of grid time and only the hour angle moves between.
+	var ra, sinDec, cosDec float64
+	next := 0
 	obs := &g.Site.Observer
 	k := g.Site.Sky.ExtinctionV
 	nan := float32(math.NaN())
@@ -72,7 +85,14 @@ func (g *Grid) Track(t *Target) (*Track, error) {
 		l := &g.Local[i]
 		var hd ephem.Vec3 // direction in the local hour-angle frame
 		if t.Star != nil {
-			hd = l.StarHADec(u)
+			if i >= next {
+				var dec float64
+				ra, dec, _ = ephem.VecToSpherical(l.StarOfDate(u))
+				sinDec, cosDec = math.Sincos(dec)
+				next = i + refresh
+			}
+			sh, ch := math.Sincos(l.LAST - ra)
+			hd = ephem.Vec3{cosDec * ch, -cosDec * sh, sinDec}
 		} else {
 			ofDate, view := l.OrbitView(t.Orbit)
 			hd = l.OfDateToHADec.MulVec(ofDate)
@@ -95,8 +115,12 @@ func (g *Grid) Track(t *Target) (*Track, error) {
 			}
 			continue
 		}
-		app := alt + obs.Refraction(alt)
-		x := ephem.Airmass(app)
+		r := obs.Refraction(alt)
+		app := alt + r
+		// sin(alt + r) from sin(alt) = h[2]; r < 0.7 deg, so the
+		// second-order terms of the expansion are below 1e-10.
+		cosAlt := math.Sqrt(h[0]*h[0] + h[1]*h[1])
+		x := ephem.AirmassSin(h[2]*(1-r*r/2)+cosAlt*r, app*ephem.Rad2Deg)
 		tr.Alt[i], tr.Airmass[i] = float32(app), float32(x)
 		tr.HA[i] = float32(math.Atan2(-hd[1], hd[0]))
 		tr.Dec[i] = float32(math.Asin(clamp(hd[2], -1, 1)))

@@ -125,8 +125,17 @@ func Airmass(apparentAlt float64) float64 {
 	if h <= 0 {
 		return math.Inf(1)
 	}
+	return AirmassSin(math.Sin(apparentAlt), h)
+}
+
+// AirmassSin is Airmass for a caller that already has the sine of the
+// apparent altitude and the altitude in degrees (grids in inner loops).
+func AirmassSin(sinAlt, altDeg float64) float64 {
+	if altDeg <= 0 {
+		return math.Inf(1)
+	}
 	// exp(-1.6364 ln x) is the same power, without math.Pow's special cases.
-	return 1 / (math.Sin(apparentAlt) + 0.50572*math.Exp(-1.6364*math.Log(h+6.07995)))
+	return 1 / (sinAlt + 0.50572*math.Exp(-1.6364*math.Log(altDeg+6.07995)))
 }
 
 // HADecToHorizon rotates a vector from the local hour-angle frame (see
