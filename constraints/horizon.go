@@ -24,7 +24,13 @@ var ErrHorizon = errors.New("constraints: invalid horizon profile")
 // profile is the mathematical horizon (altitude 0).
 type Horizon struct {
 	az, alt []float64 // radians, sorted by azimuth, strictly increasing
+	// first[k] is the index of the first point with azimuth >= k/4 deg, so
+	// a lookup starts next to its answer instead of searching.
+	first []uint16
 }
+
+// horizonBins is the number of azimuth bins of the lookup index (4 per deg).
+const horizonBins = 1440
 
 // MaxHorizonPoints bounds a profile's size.
 const MaxHorizonPoints = 720
@@ -52,6 +58,17 @@ func NewHorizon(points []HorizonPoint) (Horizon, error) {
 		}
 		h.az[i], h.alt[i] = p.AzDeg*ephem.Deg2Rad, p.AltDeg*ephem.Deg2Rad
 	}
+	if len(ps) > 1 {
+		h.first = make([]uint16, horizonBins+1)
+		j := 0
+		for k := range h.first {
+			lo := float64(k) / horizonBins * 2 * math.Pi
+			for j < len(h.az) && h.az[j] < lo {
+				j++
+			}
+			h.first[k] = uint16(j)
+		}
+	}
 	return h, nil
 }
 
@@ -76,7 +93,20 @@ func (h *Horizon) AltitudeAt(az float64) float64 {
 		return h.alt[0]
 	}
 	az = ephem.NormAngle(az)
-	i := sort.SearchFloat64s(h.az, az) // first index with h.az[i] >= az
+	// First index with h.az[i] >= az: start from the bin's first point.
+	i := n
+	if h.first != nil {
+		k := int(az / (2 * math.Pi) * horizonBins)
+		if k >= horizonBins {
+			k = horizonBins - 1
+		}
+		i = int(h.first[k])
+		for i < n && h.az[i] < az {
+			i++
+		}
+	} else {
+		i = sort.SearchFloat64s(h.az, az)
+	}
 	var a0, a1, v0, v1 float64
 	switch {
 	case i < n && h.az[i] == az:

@@ -84,6 +84,7 @@ func (g *Grid) Track(t *Target) (*Track, error) {
 	for i := 0; i < n; i++ {
 		l := &g.Local[i]
 		var hd ephem.Vec3 // direction in the local hour-angle frame
+		var ha float64
 		if t.Star != nil {
 			if i >= next {
 				var dec float64
@@ -91,11 +92,18 @@ func (g *Grid) Track(t *Target) (*Track, error) {
 				sinDec, cosDec = math.Sincos(dec)
 				next = i + refresh
 			}
-			sh, ch := math.Sincos(l.LAST - ra)
+			ha = l.LAST - ra
+			if ha > math.Pi {
+				ha -= 2 * math.Pi
+			} else if ha <= -math.Pi {
+				ha += 2 * math.Pi
+			}
+			sh, ch := math.Sincos(ha)
 			hd = ephem.Vec3{cosDec * ch, -cosDec * sh, sinDec}
 		} else {
 			ofDate, view := l.OrbitView(t.Orbit)
 			hd = l.OfDateToHADec.MulVec(ofDate)
+			ha = math.Atan2(-hd[1], hd[0])
 			tr.RateRA[i], tr.RateDec[i] = float32(view.RateRA), float32(view.RateDec)
 			tr.Mag[i] = float32(view.Magnitude) // extinction added below
 		}
@@ -115,14 +123,14 @@ func (g *Grid) Track(t *Target) (*Track, error) {
 			}
 			continue
 		}
-		r := obs.Refraction(alt)
+		r := obs.RefractionFast(alt)
 		app := alt + r
 		// sin(alt + r) from sin(alt) = h[2]; r < 0.7 deg, so the
 		// second-order terms of the expansion are below 1e-10.
 		cosAlt := math.Sqrt(h[0]*h[0] + h[1]*h[1])
 		x := ephem.AirmassSin(h[2]*(1-r*r/2)+cosAlt*r, app*ephem.Rad2Deg)
 		tr.Alt[i], tr.Airmass[i] = float32(app), float32(x)
-		tr.HA[i] = float32(math.Atan2(-hd[1], hd[0]))
+		tr.HA[i] = float32(ha)
 		tr.Dec[i] = float32(math.Asin(clamp(hd[2], -1, 1)))
 		ms := math.Acos(clamp(hd.Dot(g.moonHD[i]), -1, 1))
 		ss := math.Acos(clamp(hd.Dot(g.sunHD[i]), -1, 1))

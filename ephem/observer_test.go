@@ -116,3 +116,28 @@ func TestGeocentricWGS84(t *testing.T) {
 		t.Errorf("polar radius off by %v km", d)
 	}
 }
+
+// The tabulated power term reproduces Kasten & Young's formula.
+func TestAirmassTable(t *testing.T) {
+	worst := 0.0
+	for h := 0.001; h < 90; h += 0.0137 {
+		exact := 1 / (math.Sin(h*Deg2Rad) + kyPower(h))
+		got := AirmassSin(math.Sin(h*Deg2Rad), h)
+		worst = math.Max(worst, math.Abs(got-exact)/exact)
+	}
+	if worst > 5e-6 {
+		t.Errorf("tabulated airmass relative error %.3g, want < 5e-6", worst)
+	}
+}
+
+// The refraction table reproduces the formula.
+func TestRefractionFast(t *testing.T) {
+	o, _ := NewObserver(0, 0, 0)
+	worst := 0.0
+	for h := -6.0; h < 91; h += 0.00731 {
+		worst = math.Max(worst, math.Abs(o.RefractionFast(h*Deg2Rad)-o.Refraction(h*Deg2Rad)))
+	}
+	if worst*Rad2Arcsec > 0.05 {
+		t.Errorf("table refraction differs by %.3f arcsec, want < 0.05", worst*Rad2Arcsec)
+	}
+}
