@@ -281,8 +281,9 @@ func twilightZenithNL(sunAlt float64) float64 {
 // B_zen(h) is the zenith twilight from Patat, Ugolnikov & Postylyakov (2006)
 // (see twilightZenithNL for its ends). The two brackets are our extension
 // away from the zenith, borrowed from Krisciunas & Schaefer (1991): their
-// scattering function f (which they checked against daylight measurements)
-// for the angle to the Sun, normalised to the zenith, where sunSep equals
+// scattering function f (which their abstract says they also compared with
+// Russian measurements of sunlit skies) for the angle to the Sun,
+// normalised to the zenith, where sunSep equals
 // the Sun's zenith distance z_sun; and their single-scattering path term
 // for the airmass X (eq. 3), normalised to X = 1 (the limit X for k = 0).
 // Both are 1 at the zenith, so the zenith value is Patat's. The extension
