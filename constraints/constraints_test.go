@@ -384,3 +384,18 @@ func TestValidation(t *testing.T) {
 		t.Errorf("a 1 s grid over a month was accepted: %v", err)
 	}
 }
+
+// acosFast against the standard library over [-1, 1].
+func TestAcosFast(t *testing.T) {
+	worst := 0.0
+	for x := -1.0; x <= 1; x += 1.0 / 4096 {
+		worst = math.Max(worst, math.Abs(acosFast(x)-math.Acos(x)))
+		worst = math.Max(worst, math.Abs(asinFast(x)-math.Asin(x)))
+	}
+	for _, x := range []float64{-1, -0.9999999, 0, 0.9999999, 1} {
+		worst = math.Max(worst, math.Abs(acosFast(x)-math.Acos(x)))
+	}
+	if worst > 3e-8 {
+		t.Errorf("acosFast worst error %.3g rad, want <= 3e-8", worst)
+	}
+}

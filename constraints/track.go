@@ -108,7 +108,7 @@ func (g *Grid) Track(t *Target) (*Track, error) {
 			tr.Mag[i] = float32(view.Magnitude) // extinction added below
 		}
 		h := obs.HADecToHorizon(hd)
-		alt := math.Asin(clamp(h[2], -1, 1))
+		alt := asinFast(clamp(h[2], -1, 1))
 		az := math.Atan2(h[1], h[0])
 		if az < 0 {
 			az += 2 * math.Pi
@@ -131,9 +131,9 @@ func (g *Grid) Track(t *Target) (*Track, error) {
 		x := ephem.AirmassSin(h[2]*(1-r*r/2)+cosAlt*r, app*ephem.Rad2Deg)
 		tr.Alt[i], tr.Airmass[i] = float32(app), float32(x)
 		tr.HA[i] = float32(ha)
-		tr.Dec[i] = float32(math.Asin(clamp(hd[2], -1, 1)))
-		ms := math.Acos(clamp(hd.Dot(g.moonHD[i]), -1, 1))
-		ss := math.Acos(clamp(hd.Dot(g.sunHD[i]), -1, 1))
+		tr.Dec[i] = float32(asinFast(clamp(hd[2], -1, 1)))
+		ms := acosFast(hd.Dot(g.moonHD[i]))
+		ss := acosFast(hd.Dot(g.sunHD[i]))
 		tr.MoonSep[i], tr.SunSep[i] = float32(ms), float32(ss)
 		if tr.Mag != nil && !math.IsInf(x, 0) {
 			tr.Mag[i] += float32(k * x)
