@@ -201,12 +201,19 @@ func runSky(args []string, stdout, stderr io.Writer) error {
 	pressure := fs.Float64("pressure-hpa", 1010, "air pressure for refraction, hPa (0 = geometric altitudes)")
 	temp := fs.Float64("temperature-c", 10, "air temperature for refraction, C")
 	asJSON := fs.Bool("json", false, "print one JSON object")
+	chart := fs.String("chart", "", "also draw the target's altitude over the night containing --at to this .png or .svg file")
+	tz := fs.String("tz", "", "IANA time zone of the chart's time axis (default: local mean solar time)")
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
 	o, err := parseSite("site", *site)
 	if err != nil {
 		return err
+	}
+	if *chart != "" {
+		if err := checkChartName("chart", *chart); err != nil {
+			return err
+		}
 	}
 	if err := o.SetAir(*pressure, *temp); err != nil {
 		if errors.Is(err, ephem.ErrPressure) {
@@ -254,6 +261,12 @@ func runSky(args []string, stdout, stderr io.Writer) error {
 		}
 	}
 	r := computeSky(&o, when, star, orbit)
+	if *chart != "" {
+		if err := chartSky(*chart, *tz, &o, when, star, orbit, *ra, *dec, *orbitPath); err != nil {
+			return err
+		}
+		fmt.Fprintf(stderr, "wrote %s\n", *chart)
+	}
 	if *asJSON {
 		enc := json.NewEncoder(stdout)
 		return enc.Encode(r)

@@ -1,0 +1,109 @@
+package server
+
+import (
+	"fmt"
+	"sync/atomic"
+	"testing"
+	"time"
+
+	"google.golang.org/protobuf/proto"
+	"google.golang.org/protobuf/types/known/durationpb"
+
+	nightloomv1 "github.com/nightloom/nightloom/proto/nightloom/v1"
+)
+
+var (
+	sinkPlan   *nightloomv1.MakePlanResponse
+	sinkReport *nightloomv1.ReportProgressResponse
+)
+
+// BenchmarkMakePlan200 is MakePlan end to end over a loopback TCP
+// connection: 200 open blocks on five targets, one night, the default 60 s
+// grid, loading from the store, planning, storing the version and
+// returning it. Regimes: the daemon's default 1 s budget with the default
+// 14-night urgency lookahead and without it, and a zero budget (the
+// constructive schedule only), which shows what the call costs besides the
+// search.
+func BenchmarkMakePlan200(b *testing.B) {
+	e := newEnv(b, "", withTCP(), func(c *Config) { c.DefaultTimeBudget = DefaultTimeBudget })
+	f := e.seed(b, 200)
+	ctx := as(RoleOperator, e)
+	for _, r := range []struct {
+		look   int32
+		budget *durationpb.Duration
+	}{{DefaultLookaheadNights, nil}, {0, nil}, {DefaultLookaheadNights, dur(0)}} {
+		name := fmt.Sprintf("lookahead=%d/budget=default", r.look)
+		if r.budget != nil {
+			name = fmt.Sprintf("lookahead=%d/budget=0", r.look)
+		}
+		b.Run(name, func(b *testing.B) {
+			req := &nightloomv1.MakePlanRequest{SiteId: f.site.GetId(), Span: &nightloomv1.MakePlanRequest_Night{Night: testNight},
+				LookaheadNights: proto.Int32(r.look), Seed: 1, TimeBudget: r.budget}
+			b.ReportAllocs()
+			var assigned int
+			for b.Loop() {
+				resp, err := e.plans.MakePlan(ctx, req)
+				if err != nil {
+					b.Fatal(err)
+				}
+				sinkPlan = resp
+				assigned = len(resp.GetPlans()[0].GetAssignments())
+			}
+			b.ReportMetric(float64(assigned), "assignments")
+		})
+	}
+}
+
+// BenchmarkReportProgress is ReportProgress over loopback gRPC with the
+// store's synchronous=FULL: every acknowledged report has reached the disk
+// (fsync of the WAL). Each report has its own id and adds one frame.
+// "serial" is one client's latency; "parallel" is 8 concurrent callers per
+// core (writes queue on the store's single writer connection).
+func BenchmarkReportProgress(b *testing.B) {
+	e := newEnv(b, "", withTCP())
+	f := e.seed(b, 0)
+	var bs []*nightloomv1.Block
+	for i := 0; i < 20; i++ {
+		blk := testBlock(f.site.GetId(), f.targets[i%4].GetId(), "L", MaxFramesWanted, 5)
+		blk.MinRunFrames = 1
+		bs = append(bs, blk)
+	}
+	q, err := e.queue.QueueBlocks(as(RoleOperator, e), &nightloomv1.QueueBlocksRequest{Blocks: bs})
+	if err != nil {
+		b.Fatal(err)
+	}
+	ctx := as(RoleTelescope, e)
+	var seq atomic.Int64
+	t0 := time.Date(2031, 3, 15, 21, 0, 0, 0, time.UTC)
+	report := func() *nightloomv1.ReportProgressRequest {
+		n := seq.Add(1)
+		return &nightloomv1.ReportProgressRequest{Report: &nightloomv1.ProgressReport{
+			ReportId: fmt.Sprintf("bench-%d", n), BlockId: q.GetBlocks()[n%int64(len(bs))].GetId(), FramesKept: 1,
+			Interval: &nightloomv1.TimeInterval{Start: ts(t0), End: ts(t0.Add(2 * time.Minute))},
+			Outcome:  nightloomv1.ProgressOutcome_PROGRESS_OUTCOME_DONE}}
+	}
+	b.Run("serial", func(b *testing.B) {
+		b.ReportAllocs()
+		for b.Loop() {
+			r, err := e.queue.ReportProgress(ctx, report())
+			if err != nil {
+				b.Fatal(err)
+			}
+			sinkReport = r
+		}
+	})
+	b.Run("parallel", func(b *testing.B) {
+		b.ReportAllocs()
+		b.SetParallelism(8)
+		b.RunParallel(func(pb *testing.PB) {
+			for pb.Next() {
+				r, err := e.queue.ReportProgress(ctx, report())
+				if err != nil {
+					b.Error(err)
+					return
+				}
+				sinkReport = r
+			}
+		})
+	})
+}

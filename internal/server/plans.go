@@ -1,0 +1,812 @@
+package server
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"sort"
+	"strconv"
+	"strings"
+	"time"
+
+	"google.golang.org/grpc"
+	"google.golang.org/protobuf/proto"
+	"google.golang.org/protobuf/types/known/durationpb"
+	"google.golang.org/protobuf/types/known/timestamppb"
+
+	"github.com/nightloom/nightloom/internal/store"
+	nightloomv1 "github.com/nightloom/nightloom/proto/nightloom/v1"
+)
+
+// planService implements PlanService (plan.proto). This file holds the
+// storage, versioning, watching and dispatch side of planning; everything
+// that talks to the scheduler is in planning.go behind the planner
+// interface.
+type planService struct {
+	nightloomv1.UnimplementedPlanServiceServer
+	s *Server
+}
+
+// maxPlanScan bounds how many plan versions one call walks through (newest
+// first) looking for a plan that covers an instant, or a newer plan over the
+// same interval.
+const maxPlanScan = 2000
+
+// planFromRecord decodes a stored plan; the record's id, site, version and
+// creation instant are authoritative.
+func planFromRecord(rec store.Plan) (*nightloomv1.Plan, error) {
+	p := &nightloomv1.Plan{}
+	if err := proto.Unmarshal(rec.Body, p); err != nil {
+		return nil, err
+	}
+	p.Id, p.SiteId, p.Version = rec.ID, rec.SiteID, rec.Version
+	p.CreateTime = timestamppb.New(rec.CreatedAt)
+	p.AssignmentCount, p.UnplacedCount = int32(len(p.Assignments)), int32(len(p.Unplaced))
+	return p, nil
+}
+
+// summary strips a plan to what ListPlans returns.
+func summary(p *nightloomv1.Plan) *nightloomv1.Plan {
+	c := proto.Clone(p).(*nightloomv1.Plan)
+	c.Assignments, c.Unplaced = nil, nil
+	return c
+}
+
+// lockSite takes the site's lock (striped); see Server.siteLocks.
+func (s *Server) lockSite(id string) func() {
+	m := &s.siteLocks[stripe(id, len(s.siteLocks))]
+	m.Lock()
+	return m.Unlock
+}
+
+// storePlan stores a plan body as the site's next version and publishes it
+// to the watchers. The caller holds the site's lock.
+func (s *Server) storePlan(ctx context.Context, body *nightloomv1.Plan) (*nightloomv1.Plan, error) {
+	body.Id = newID(planPrefix)
+	body.AssignmentCount, body.UnplacedCount = int32(len(body.Assignments)), int32(len(body.Unplaced))
+	raw, err := storable(body)
+	if err != nil {
+		return nil, err
+	}
+	rec, err := s.db.CreatePlan(ctx, store.Plan{ID: body.Id, SiteID: body.SiteId,
+		Start: body.GetInterval().GetStart().AsTime(), End: body.GetInterval().GetEnd().AsTime(), Body: raw})
+	if err != nil {
+		return nil, err
+	}
+	body.Version, body.CreateTime = rec.Version, timestamppb.New(rec.CreatedAt)
+	s.metrics.versions.Inc()
+	s.hub.publish(proto.Clone(body).(*nightloomv1.Plan))
+	return body, nil
+}
+
+// openBlocks loads the site's open blocks (queued and not expired at now)
+// with their targets.
+func (s *Server) openBlocks(ctx context.Context, site *siteModel) ([]*planBlock, error) {
+	var out []*planBlock
+	targets := map[string]*planTarget{}
+	now := s.now()
+	token := ""
+	for {
+		recs, next, err := s.db.ListBlocks(ctx, store.BlockFilter{SiteID: site.pb.GetId(), State: store.StateQueued},
+			store.Page{Size: store.MaxPageSize, Token: token})
+		if err != nil {
+			return nil, err
+		}
+		for _, r := range recs {
+			b, err := blockProto(r, site, now)
+			if err != nil {
+				return nil, err
+			}
+			if b.GetState() != nightloomv1.BlockState_BLOCK_STATE_OPEN {
+				continue
+			}
+			t, ok := targets[r.TargetID]
+			if !ok {
+				pb, model, err := s.loadTarget(ctx, r.TargetID)
+				if err != nil {
+					return nil, err
+				}
+				t = &planTarget{pb: pb, model: model}
+				targets[r.TargetID] = t
+			}
+			out = append(out, &planBlock{pb: b, target: t, framesDone: int(b.GetFramesDone())})
+		}
+		if next == "" {
+			return out, nil
+		}
+		token = next
+	}
+}
+
+// planArgs are the validated knobs of a MakePlan or Replan call.
+type planArgs struct {
+	gridStep  time.Duration
+	budget    time.Duration
+	seed      int64
+	lookahead int
+}
+
+func (x *planService) MakePlan(ctx context.Context, req *nightloomv1.MakePlanRequest) (*nightloomv1.MakePlanResponse, error) {
+	s := x.s
+	var v violations
+	requiredID(&v, "site_id", req.GetSiteId())
+	var (
+		date           time.Time
+		ivStart, ivEnd time.Time
+		byNight        bool
+		nights         = int(req.GetNights())
+		lookahead      = DefaultLookaheadNights
+	)
+	switch span := req.GetSpan().(type) {
+	case *nightloomv1.MakePlanRequest_Night:
+		date, _ = localDate(&v, "night", span.Night, true)
+		byNight = true
+	case *nightloomv1.MakePlanRequest_Interval:
+		ivStart, ivEnd, _ = interval(&v, "interval", span.Interval, MinPlanInterval, MaxPlanInterval)
+	default:
+		v.add("span", "one of night or interval is required")
+	}
+	intRange(&v, "nights", int64(nights), 0, MaxPlanNights)
+	if nights == 0 {
+		nights = 1
+	}
+	if !byNight && req.GetNights() > 1 {
+		v.add("nights", "must be 0 or 1 with an interval")
+	}
+	if req.LookaheadNights != nil {
+		lookahead = int(req.GetLookaheadNights())
+		intRange(&v, "lookahead_nights", int64(lookahead), 0, MaxLookaheadNights)
+	}
+	args := planArgs{
+		gridStep:  duration(&v, "grid_step", req.GetGridStep(), MinGridStep, MaxGridStep, DefaultGridStep, false),
+		budget:    duration(&v, "time_budget", req.GetTimeBudget(), 0, MaxTimeBudget, s.cfg.DefaultTimeBudget, false),
+		seed:      req.GetSeed(),
+		lookahead: lookahead,
+	}
+	closures(&v, "closures", req.GetClosures(), MaxClosuresPerCall)
+	if err := v.err(); err != nil {
+		return nil, err
+	}
+	site, _, err := s.loadSite(ctx, req.GetSiteId())
+	if err != nil {
+		return nil, err
+	}
+	blocks, err := s.openBlocks(ctx, site)
+	if err != nil {
+		return nil, err
+	}
+
+	// Each night's interval, and the work limit, before any solving.
+	type nightSpan struct {
+		date       time.Time
+		start, end time.Time
+		ok         bool
+	}
+	spans := make([]nightSpan, nights)
+	for k := range spans {
+		if byNight {
+			d := date.AddDate(0, 0, k)
+			st, en, ok := site.planningInterval(d)
+			spans[k] = nightSpan{date: d, start: st, end: en, ok: ok}
+		} else {
+			spans[k] = nightSpan{start: ivStart, end: ivEnd, ok: true}
+		}
+		if sp := spans[k]; sp.ok {
+			steps := int64((sp.end.Sub(sp.start) + args.gridStep - 1) / args.gridStep)
+			if bs := steps * int64(len(blocks)); bs > MaxBlockSteps {
+				return nil, fieldError("grid_step", "%d open blocks x %d grid steps = %d block-steps, at most %d; use a coarser grid_step",
+					len(blocks), steps, bs, MaxBlockSteps)
+			}
+		}
+	}
+	perNight := args
+	perNight.budget = args.budget / time.Duration(nights)
+	cls := mergeClosures(req.GetClosures())
+
+	resp := &nightloomv1.MakePlanResponse{}
+	for _, sp := range spans {
+		job := &planJob{site: site, start: sp.start, end: sp.end, from: sp.start, closures: cls,
+			args: perNight, origin: nightloomv1.PlanOrigin_PLAN_ORIGIN_MAKE_PLAN}
+		if byNight {
+			job.night = dateOf(sp.date)
+		}
+		var excluded []*nightloomv1.Unplaced
+		for _, b := range blocks {
+			left := int(b.pb.GetFramesWanted()) - b.framesDone
+			switch {
+			case left <= 0:
+				excluded = append(excluded, &nightloomv1.Unplaced{BlockId: b.pb.GetId(), Reason: nightloomv1.Reason_REASON_COMPLETED,
+					Detail: "all frames are planned by earlier nights of this call"})
+			case byNight && !nightAllowed(b.pb, sp.date):
+				excluded = append(excluded, &nightloomv1.Unplaced{BlockId: b.pb.GetId(), Reason: nightloomv1.Reason_REASON_DATE_WINDOW,
+					Detail: "outside the block's earliest_date..latest_date nights", FramesLeft: int32(left)})
+			case !sp.ok:
+				excluded = append(excluded, &nightloomv1.Unplaced{BlockId: b.pb.GetId(), Reason: nightloomv1.Reason_REASON_TOO_BRIGHT_TWILIGHT,
+					Detail: "the Sun does not set on this night", FramesLeft: int32(left)})
+			default:
+				job.blocks = append(job.blocks, b)
+			}
+		}
+		var body *nightloomv1.Plan
+		if sp.ok {
+			began := time.Now()
+			body, err = s.planner.plan(ctx, job)
+			s.metrics.observeSolve("make_plan", time.Since(began))
+			if err != nil {
+				return nil, err
+			}
+		} else {
+			// Polar day: the plan covers nothing (plan.proto).
+			w0, _ := site.nightWindow(sp.date)
+			body = &nightloomv1.Plan{Interval: &nightloomv1.TimeInterval{Start: timestamppb.New(w0), End: timestamppb.New(w0)},
+				Solver: &nightloomv1.SolverStats{Algorithm: "none (no night)", Seed: args.seed,
+					GridStep: durationpb.New(args.gridStep)}, Objective: &nightloomv1.ObjectiveParts{}}
+		}
+		body.Unplaced = append(body.Unplaced, excluded...)
+		body.SiteId = site.pb.GetId()
+		body.Origin = nightloomv1.PlanOrigin_PLAN_ORIGIN_MAKE_PLAN
+		if job.night != nil {
+			body.Night = job.night
+		}
+		body.Closures = cls
+		unlock := s.lockSite(body.SiteId)
+		stored, err := s.storePlan(ctx, body)
+		unlock()
+		if err != nil {
+			return nil, err
+		}
+		resp.Plans = append(resp.Plans, stored)
+		// Later nights count this night's assignments as done.
+		byID := map[string]*planBlock{}
+		for _, b := range blocks {
+			byID[b.pb.GetId()] = b
+		}
+		for _, a := range stored.GetAssignments() {
+			if b := byID[a.GetBlockId()]; b != nil {
+				b.framesDone += int(a.GetFrames())
+			}
+		}
+	}
+	return resp, nil
+}
+
+func (x *planService) GetPlan(ctx context.Context, req *nightloomv1.GetPlanRequest) (*nightloomv1.GetPlanResponse, error) {
+	var v violations
+	requiredID(&v, "plan_id", req.GetPlanId())
+	if err := v.err(); err != nil {
+		return nil, err
+	}
+	rec, err := x.s.db.GetPlan(ctx, req.GetPlanId())
+	if err != nil {
+		return nil, err
+	}
+	p, err := planFromRecord(rec)
+	if err != nil {
+		return nil, err
+	}
+	return &nightloomv1.GetPlanResponse{Plan: p}, nil
+}
+
+// ListPlans pages newest first by walking down the site's versions, which
+// the store numbers 1..n without gaps. The page token is the next version
+// to read and a hash of the filter ("<version>.<hash>").
+func (x *planService) ListPlans(ctx context.Context, req *nightloomv1.ListPlansRequest) (*nightloomv1.ListPlansResponse, error) {
+	var v violations
+	requiredID(&v, "site_id", req.GetSiteId())
+	var night time.Time
+	filter := req.GetNight() != nil
+	if filter {
+		night, _ = localDate(&v, "night", req.GetNight(), true)
+	}
+	size := pageSize(&v, "page_size", req.GetPageSize(), DefaultPageSize, MaxPageSize)
+	pageToken(&v, "page_token", req.GetPageToken())
+	if err := v.err(); err != nil {
+		return nil, err
+	}
+	site, _, err := x.s.loadSite(ctx, req.GetSiteId())
+	if err != nil {
+		return nil, err
+	}
+	// A plan of the night lies in its noon-to-noon window: the stored
+	// interval filters without decoding bodies.
+	var w0, w1 time.Time
+	if filter {
+		w0, w1 = site.nightWindow(night)
+	}
+	scope := planListScope(req.GetSiteId(), req.GetNight())
+	latest, err := x.s.db.LatestPlan(ctx, req.GetSiteId())
+	if errors.Is(err, store.ErrNotFound) {
+		return &nightloomv1.ListPlansResponse{}, nil
+	}
+	if err != nil {
+		return nil, err
+	}
+	from := latest.Version
+	if tok := req.GetPageToken(); tok != "" {
+		ver, hash, ok := strings.Cut(tok, ".")
+		n, err := strconv.ParseInt(ver, 10, 64)
+		if !ok || err != nil || n < 1 || n > latest.Version || hash != scope {
+			return nil, fieldError("page_token", "not a token of this list")
+		}
+		from = n
+	}
+	resp := &nightloomv1.ListPlansResponse{}
+	scanned := 0
+	ver := from
+	for ; ver >= 1 && len(resp.Plans) < size && scanned < maxPlanScan; ver-- {
+		scanned++
+		rec, err := x.s.db.PlanByVersion(ctx, req.GetSiteId(), ver)
+		if errors.Is(err, store.ErrNotFound) {
+			continue
+		}
+		if err != nil {
+			return nil, err
+		}
+		if filter && (rec.Start.Before(w0) || rec.End.After(w1)) {
+			continue
+		}
+		p, err := planFromRecord(rec)
+		if err != nil {
+			return nil, err
+		}
+		if filter && (p.GetNight() == nil || !civilOf(p.GetNight()).Equal(night)) {
+			continue
+		}
+		resp.Plans = append(resp.Plans, summary(p))
+	}
+	if ver >= 1 {
+		resp.NextPageToken = fmt.Sprintf("%d.%s", ver, scope)
+	}
+	return resp, nil
+}
+
+// planListScope hashes what a ListPlans token is bound to.
+func planListScope(site string, night *nightloomv1.LocalDate) string {
+	key := site
+	if night != nil {
+		key += fmt.Sprintf("/%04d-%02d-%02d", night.GetYear(), night.GetMonth(), night.GetDay())
+	}
+	return fmt.Sprintf("%08x", uint32(stripe(key, 1<<31)))
+}
+
+// overlaps reports whether [a0, a1) and [b0, b1) share an instant.
+func overlaps(a0, a1, b0, b1 time.Time) bool { return a0.Before(b1) && b0.Before(a1) }
+
+// latestCovering returns the newest plan of a site whose interval contains
+// t, or nil.
+func (s *Server) latestCovering(ctx context.Context, siteID string, t time.Time) (*nightloomv1.Plan, error) {
+	latest, err := s.db.LatestPlan(ctx, siteID)
+	if errors.Is(err, store.ErrNotFound) {
+		return nil, nil
+	}
+	if err != nil {
+		return nil, err
+	}
+	for ver, n := latest.Version, 0; ver >= 1 && n < maxPlanScan; ver, n = ver-1, n+1 {
+		rec := latest
+		if ver != latest.Version {
+			if rec, err = s.db.PlanByVersion(ctx, siteID, ver); errors.Is(err, store.ErrNotFound) {
+				continue
+			} else if err != nil {
+				return nil, err
+			}
+		}
+		if !t.Before(rec.Start) && t.Before(rec.End) {
+			return planFromRecord(rec)
+		}
+	}
+	return nil, nil
+}
+
+// supersededBy returns the version of a newer plan of the same site whose
+// interval overlaps p's, or 0 when p is the latest for its interval.
+func (s *Server) supersededBy(ctx context.Context, p *nightloomv1.Plan) (int64, error) {
+	latest, err := s.db.LatestPlan(ctx, p.GetSiteId())
+	if err != nil {
+		return 0, err
+	}
+	p0, p1 := p.GetInterval().GetStart().AsTime(), p.GetInterval().GetEnd().AsTime()
+	for ver := latest.Version; ver > p.GetVersion() && latest.Version-ver < maxPlanScan; ver-- {
+		rec, err := s.db.PlanByVersion(ctx, p.GetSiteId(), ver)
+		if errors.Is(err, store.ErrNotFound) {
+			continue
+		}
+		if err != nil {
+			return 0, err
+		}
+		if overlaps(p0, p1, rec.Start, rec.End) || (p0.Equal(p1) && rec.Start.Equal(p0)) {
+			return ver, nil
+		}
+	}
+	return 0, nil
+}
+
+func (x *planService) Replan(ctx context.Context, req *nightloomv1.ReplanRequest) (*nightloomv1.ReplanResponse, error) {
+	s := x.s
+	var v violations
+	requiredID(&v, "site_id", req.GetSiteId())
+	optionalID(&v, "plan_id", req.GetPlanId())
+	from := instant(&v, "from", req.GetFrom(), false)
+	closures(&v, "closures", req.GetClosures(), MaxClosuresPerCall)
+	budget := duration(&v, "time_budget", req.GetTimeBudget(), 0, MaxTimeBudget, s.cfg.DefaultTimeBudget, false)
+	if err := v.err(); err != nil {
+		return nil, err
+	}
+	if req.GetFrom() == nil {
+		from = s.now()
+	}
+	site, _, err := s.loadSite(ctx, req.GetSiteId())
+	if err != nil {
+		return nil, err
+	}
+	unlock := s.lockSite(site.pb.GetId())
+	defer unlock()
+	var old *nightloomv1.Plan
+	if req.GetPlanId() != "" {
+		rec, err := s.db.GetPlan(ctx, req.GetPlanId())
+		if err != nil {
+			return nil, err
+		}
+		if rec.SiteID != site.pb.GetId() {
+			return nil, notFound("plan %s is not a plan of site %s", req.GetPlanId(), site.pb.GetId())
+		}
+		if old, err = planFromRecord(rec); err != nil {
+			return nil, err
+		}
+	} else {
+		if old, err = s.latestCovering(ctx, site.pb.GetId(), from); err != nil {
+			return nil, err
+		}
+		if old == nil {
+			return nil, notFound("site %s has no plan whose interval contains %s", site.pb.GetId(), from.Format(time.RFC3339))
+		}
+	}
+	if ver, err := s.supersededBy(ctx, old); err != nil {
+		return nil, err
+	} else if ver != 0 {
+		return nil, failedPrecondition("plan %s (version %d) is not the latest for its interval: version %d replaced it",
+			old.GetId(), old.GetVersion(), ver)
+	}
+	start, end := old.GetInterval().GetStart().AsTime(), old.GetInterval().GetEnd().AsTime()
+	if !from.Before(end) {
+		return nil, failedPrecondition("from %s is not before the end of plan %s (%s)", from.Format(time.RFC3339),
+			old.GetId(), end.Format(time.RFC3339))
+	}
+	if from.Before(start) {
+		from = start
+	}
+	args := planArgs{gridStep: DefaultGridStep, budget: budget, seed: req.GetSeed(), lookahead: DefaultLookaheadNights}
+	if gs := old.GetSolver().GetGridStep(); gs != nil && gs.AsDuration() >= MinGridStep && gs.AsDuration() <= MaxGridStep {
+		args.gridStep = gs.AsDuration()
+	}
+	p, kept, changed, err := s.replanLocked(ctx, site, old, from, req.GetClosures(), args, nightloomv1.PlanOrigin_PLAN_ORIGIN_REPLAN)
+	if err != nil {
+		return nil, err
+	}
+	return &nightloomv1.ReplanResponse{Plan: p, AssignmentsKept: int32(kept), AssignmentsChanged: int32(changed)}, nil
+}
+
+// replanLocked plans old again from `from` with extra closures and stores
+// the result as a new version; the caller holds the site's lock and has
+// checked that old is the latest for its interval and from lies in it.
+func (s *Server) replanLocked(ctx context.Context, site *siteModel, old *nightloomv1.Plan, from time.Time,
+	extra []*nightloomv1.Closure, args planArgs, origin nightloomv1.PlanOrigin) (*nightloomv1.Plan, int, int, error) {
+	cls := mergeClosures(append(append([]*nightloomv1.Closure(nil), old.GetClosures()...), extra...))
+	if len(cls) > MaxClosuresPerPlan {
+		return nil, 0, 0, fieldError("closures", "the plan would carry %d closures, at most %d", len(cls), MaxClosuresPerPlan)
+	}
+	start, end := old.GetInterval().GetStart().AsTime(), old.GetInterval().GetEnd().AsTime()
+	blocks, err := s.openBlocks(ctx, site)
+	if err != nil {
+		return nil, 0, 0, err
+	}
+	steps := int64((end.Sub(start) + args.gridStep - 1) / args.gridStep)
+	if bs := steps * int64(len(blocks)); bs > MaxBlockSteps {
+		return nil, 0, 0, failedPrecondition("%d open blocks x %d grid steps exceed %d block-steps", len(blocks), steps, MaxBlockSteps)
+	}
+
+	// What stays: runs over before `from`, and the one in progress unless
+	// a closure cuts it (then it ends at the closure with the frames that
+	// fit).
+	var kept []*nightloomv1.Assignment
+	var inProgress *nightloomv1.Assignment
+	for _, a := range old.GetAssignments() {
+		a0, a1 := a.GetPrepareStart().AsTime(), a.GetEnd().AsTime()
+		switch {
+		case !a1.After(from):
+			kept = append(kept, a)
+		case a0.Before(from):
+			cut := a1
+			for _, c := range cls {
+				c0, c1 := c.GetInterval().GetStart().AsTime(), c.GetInterval().GetEnd().AsTime()
+				if overlaps(from, a1, c0, c1) && c0.Before(cut) {
+					cut = c0
+				}
+			}
+			if cut.Equal(a1) {
+				inProgress = a
+			} else {
+				inProgress = truncateAssignment(site, a, cut)
+			}
+			if inProgress != nil {
+				kept = append(kept, inProgress)
+			}
+		}
+	}
+	if old.GetNight() != nil {
+		d := civilOf(old.GetNight())
+		var in []*planBlock
+		for _, b := range blocks {
+			if nightAllowed(b.pb, d) {
+				in = append(in, b)
+			}
+		}
+		blocks = in
+	}
+	job := &planJob{site: site, start: start, end: end, from: from, night: old.GetNight(), closures: cls,
+		blocks: blocks, kept: kept, inProgress: inProgress, args: args, origin: origin}
+	began := time.Now()
+	body, err := s.planner.plan(ctx, job)
+	s.metrics.observeSolve(strings.ToLower(strings.TrimPrefix(origin.String(), "PLAN_ORIGIN_")), time.Since(began))
+	if err != nil {
+		return nil, 0, 0, err
+	}
+	body.SiteId, body.Origin, body.PreviousPlanId = site.pb.GetId(), origin, old.GetId()
+	body.ReplanFrom, body.Night, body.Closures = timestamppb.New(from), old.GetNight(), cls
+	stored, err := s.storePlan(ctx, body)
+	if err != nil {
+		return nil, 0, 0, err
+	}
+	// Old runs after `from`, kept unchanged or not.
+	type key struct {
+		block      string
+		start, end int64
+		frames     int32
+	}
+	have := map[key]bool{}
+	for _, a := range stored.GetAssignments() {
+		have[key{a.GetBlockId(), a.GetStart().AsTime().UnixNano(), a.GetEnd().AsTime().UnixNano(), a.GetFrames()}] = true
+	}
+	keptN, changedN := 0, 0
+	for _, a := range old.GetAssignments() {
+		if !a.GetEnd().AsTime().After(from) {
+			continue
+		}
+		if have[key{a.GetBlockId(), a.GetStart().AsTime().UnixNano(), a.GetEnd().AsTime().UnixNano(), a.GetFrames()}] {
+			keptN++
+		} else {
+			changedN++
+		}
+	}
+	return stored, keptN, changedN, nil
+}
+
+// mergeClosures sorts closures and merges overlapping or touching ones
+// (their reasons joined).
+func mergeClosures(cs []*nightloomv1.Closure) []*nightloomv1.Closure {
+	if len(cs) == 0 {
+		return nil
+	}
+	sorted := make([]*nightloomv1.Closure, len(cs))
+	copy(sorted, cs)
+	sort.SliceStable(sorted, func(i, j int) bool {
+		return sorted[i].GetInterval().GetStart().AsTime().Before(sorted[j].GetInterval().GetStart().AsTime())
+	})
+	var out []*nightloomv1.Closure
+	for _, c := range sorted {
+		if n := len(out); n > 0 {
+			last := out[n-1]
+			if !c.GetInterval().GetStart().AsTime().After(last.GetInterval().GetEnd().AsTime()) {
+				if c.GetInterval().GetEnd().AsTime().After(last.GetInterval().GetEnd().AsTime()) {
+					last.Interval.End = c.GetInterval().GetEnd()
+				}
+				if c.GetReason() != "" && !strings.Contains(last.Reason, c.GetReason()) && len(last.Reason)+len(c.GetReason())+2 <= MaxReasonBytes {
+					if last.Reason != "" {
+						last.Reason += "; "
+					}
+					last.Reason += c.GetReason()
+				}
+				continue
+			}
+		}
+		out = append(out, proto.Clone(c).(*nightloomv1.Closure))
+	}
+	return out
+}
+
+func (x *planService) NextAssignment(ctx context.Context, req *nightloomv1.NextAssignmentRequest) (*nightloomv1.NextAssignmentResponse, error) {
+	s := x.s
+	var v violations
+	requiredID(&v, "site_id", req.GetSiteId())
+	now := instant(&v, "now", req.GetNow(), false)
+	if st := req.GetState(); st != nil {
+		if p := st.GetPosition(); p != nil {
+			rangeCheck(&v, "state.position.altitude_deg", p.GetAltitudeDeg(), -90, 90)
+			halfOpen(&v, "state.position.azimuth_deg", p.GetAzimuthDeg(), 0, 360)
+		}
+		text(&v, "state.filter", st.GetFilter(), 0, MaxFilterBytes)
+		instant(&v, "state.last_focus_time", st.GetLastFocusTime(), false)
+	}
+	if err := v.err(); err != nil {
+		return nil, err
+	}
+	if req.GetNow() == nil {
+		now = s.now()
+	}
+	site, _, err := s.loadSite(ctx, req.GetSiteId())
+	if err != nil {
+		return nil, err
+	}
+	p, err := s.latestCovering(ctx, site.pb.GetId(), now)
+	if err != nil {
+		return nil, err
+	}
+	resp := &nightloomv1.NextAssignmentResponse{}
+	if p == nil {
+		return resp, nil
+	}
+	resp.PlanId, resp.PlanVersion = p.GetId(), p.GetVersion()
+	blocks := map[string]*nightloomv1.Block{}
+	sites := s.newSiteCache()
+	sites.sites[site.pb.GetId()] = site
+	for _, a := range p.GetAssignments() {
+		if !a.GetEnd().AsTime().After(now) {
+			continue
+		}
+		b, ok := blocks[a.GetBlockId()]
+		if !ok {
+			rec, err := s.db.GetBlock(ctx, a.GetBlockId())
+			if errors.Is(err, store.ErrNotFound) {
+				continue // deleted with its target
+			}
+			if err != nil {
+				return nil, err
+			}
+			if b, err = sites.blockOut(ctx, rec); err != nil {
+				return nil, err
+			}
+			blocks[a.GetBlockId()] = b
+		}
+		if b.GetState() != nightloomv1.BlockState_BLOCK_STATE_OPEN {
+			continue
+		}
+		out, asPlanned := dispatch(site, a, b, req.GetState(), now)
+		if out == nil {
+			continue
+		}
+		resp.Assignment, resp.AsPlanned = out, asPlanned
+		return resp, nil
+	}
+	return resp, nil
+}
+
+func (x *planService) WatchPlans(req *nightloomv1.WatchPlansRequest, stream grpc.ServerStreamingServer[nightloomv1.WatchPlansResponse]) error {
+	s := x.s
+	ctx := stream.Context()
+	var v violations
+	requiredID(&v, "site_id", req.GetSiteId())
+	if err := v.err(); err != nil {
+		return err
+	}
+	if _, err := s.db.GetSite(ctx, req.GetSiteId()); err != nil {
+		return err
+	}
+	// Subscribe before reading the current plan, so that no version stored
+	// in between is missed; versions at or below the one sent are skipped.
+	w, err := s.hub.subscribe(req.GetSiteId())
+	if err != nil {
+		return err
+	}
+	defer s.hub.unsubscribe(w)
+	var sent int64
+	if req.GetSendCurrent() {
+		rec, err := s.db.LatestPlan(ctx, req.GetSiteId())
+		switch {
+		case errors.Is(err, store.ErrNotFound):
+		case err != nil:
+			return err
+		default:
+			p, err := planFromRecord(rec)
+			if err != nil {
+				return err
+			}
+			if err := stream.Send(&nightloomv1.WatchPlansResponse{Plan: p}); err != nil {
+				return err
+			}
+			sent = p.GetVersion()
+		}
+	}
+	for {
+		select {
+		case <-ctx.Done():
+			return ctx.Err()
+		case <-w.end:
+			return s.hub.ended(w)
+		case p := <-w.ch:
+			if p.GetVersion() <= sent {
+				continue
+			}
+			if err := stream.Send(&nightloomv1.WatchPlansResponse{Plan: p}); err != nil {
+				return err
+			}
+			sent = p.GetVersion()
+		}
+	}
+}
+
+// urgentBlocksQueued starts, in the background, a replan of each site whose
+// newly queued open blocks include one at or above the replan priority
+// (queue.proto).
+func (s *Server) urgentBlocksQueued(blocks []*nightloomv1.Block) {
+	if s.cfg.ReplanPriority < 0 {
+		return
+	}
+	sites := map[string]bool{}
+	for _, b := range blocks {
+		if b.GetState() == nightloomv1.BlockState_BLOCK_STATE_OPEN && int(b.GetPriority()) >= s.cfg.ReplanPriority {
+			sites[b.GetSiteId()] = true
+		}
+	}
+	for id := range sites {
+		s.goBackground(func(ctx context.Context) {
+			if err := s.replanForQueued(ctx, id); err != nil {
+				s.log.Warn("replan after an urgent block failed", "site", id, "err", err.Error())
+			}
+		})
+	}
+}
+
+// goBackground runs f in a goroutine that Shutdown waits for; after the
+// shutdown began it does nothing.
+func (s *Server) goBackground(f func(ctx context.Context)) {
+	s.bgMu.Lock()
+	defer s.bgMu.Unlock()
+	if s.bgCtx.Err() != nil {
+		return
+	}
+	s.bg.Add(1)
+	go func() {
+		defer s.bg.Done()
+		f(s.bgCtx)
+	}()
+}
+
+// replanForQueued replans the site's latest plan from now when it is still
+// running (now before its end).
+func (s *Server) replanForQueued(ctx context.Context, siteID string) error {
+	site, _, err := s.loadSite(ctx, siteID)
+	if err != nil {
+		return err
+	}
+	unlock := s.lockSite(siteID)
+	defer unlock()
+	rec, err := s.db.LatestPlan(ctx, siteID)
+	if errors.Is(err, store.ErrNotFound) {
+		return nil
+	}
+	if err != nil {
+		return err
+	}
+	now := s.now()
+	if !now.Before(rec.End) {
+		return nil
+	}
+	old, err := planFromRecord(rec)
+	if err != nil {
+		return err
+	}
+	from := now
+	if from.Before(rec.Start) {
+		from = rec.Start
+	}
+	args := planArgs{gridStep: DefaultGridStep, budget: s.cfg.DefaultTimeBudget, seed: old.GetSolver().GetSeed(), lookahead: DefaultLookaheadNights}
+	if gs := old.GetSolver().GetGridStep(); gs != nil && gs.AsDuration() >= MinGridStep && gs.AsDuration() <= MaxGridStep {
+		args.gridStep = gs.AsDuration()
+	}
+	p, _, _, err := s.replanLocked(ctx, site, old, from, nil, args, nightloomv1.PlanOrigin_PLAN_ORIGIN_QUEUED_BLOCK)
+	if err != nil {
+		return err
+	}
+	s.log.Info("replanned after an urgent block", "site", siteID, "plan", p.GetId(), "version", p.GetVersion())
+	return nil
+}

@@ -1,0 +1,390 @@
+package server
+
+import (
+	"bytes"
+	"context"
+	"errors"
+	"time"
+
+	"google.golang.org/grpc/codes"
+	"google.golang.org/grpc/status"
+
+	"github.com/nightloom/nightloom/internal/store"
+	nightloomv1 "github.com/nightloom/nightloom/proto/nightloom/v1"
+)
+
+// queueService implements QueueService (queue.proto).
+type queueService struct {
+	nightloomv1.UnimplementedQueueServiceServer
+	s *Server
+}
+
+// siteCache loads each site of a call once.
+type siteCache struct {
+	s     *Server
+	sites map[string]*siteModel
+}
+
+func (s *Server) newSiteCache() *siteCache { return &siteCache{s: s, sites: map[string]*siteModel{}} }
+
+func (c *siteCache) get(ctx context.Context, id string) (*siteModel, error) {
+	if m, ok := c.sites[id]; ok {
+		return m, nil
+	}
+	m, _, err := c.s.loadSite(ctx, id)
+	if err != nil {
+		return nil, err
+	}
+	c.sites[id] = m
+	return m, nil
+}
+
+// blockOut decodes a stored block with its API state.
+func (c *siteCache) blockOut(ctx context.Context, rec store.Block) (*nightloomv1.Block, error) {
+	var site *siteModel
+	if rec.State == store.StateQueued {
+		m, err := c.get(ctx, rec.SiteID)
+		if err != nil {
+			return nil, err
+		}
+		site = m
+	}
+	return blockProto(rec, site, c.s.now())
+}
+
+func (x *queueService) QueueBlocks(ctx context.Context, req *nightloomv1.QueueBlocksRequest) (*nightloomv1.QueueBlocksResponse, error) {
+	var v violations
+	n := len(req.GetBlocks())
+	switch {
+	case n == 0:
+		v.add("blocks", "at least one block is required")
+	case n > MaxBlocksPerCall:
+		v.add("blocks", "at most %d blocks per call, got %d", MaxBlocksPerCall, n)
+	}
+	printableASCII(&v, "request_id", req.GetRequestId(), 0, MaxRequestIDBytes)
+	if err := v.err(); err != nil {
+		return nil, err
+	}
+	for i, b := range req.GetBlocks() {
+		checkBlockStatic(&v, idx("blocks", i), b)
+	}
+	if err := v.err(); err != nil {
+		return nil, err
+	}
+
+	// Every site and target must exist (NOT_FOUND otherwise), then the
+	// checks that depend on them.
+	sites := x.s.newSiteCache()
+	targets := map[string]*nightloomv1.Target{}
+	for i, b := range req.GetBlocks() {
+		site, err := sites.get(ctx, b.GetSiteId())
+		if errors.Is(err, store.ErrNotFound) {
+			return nil, notFound("blocks[%d].site_id: site %s not found", i, b.GetSiteId())
+		}
+		if err != nil {
+			return nil, err
+		}
+		t, ok := targets[b.GetTargetId()]
+		if !ok {
+			rec, err := x.s.db.GetTarget(ctx, b.GetTargetId())
+			if errors.Is(err, store.ErrNotFound) {
+				return nil, notFound("blocks[%d].target_id: target %s not found", i, b.GetTargetId())
+			}
+			if err != nil {
+				return nil, err
+			}
+			if t, err = targetProto(rec); err != nil {
+				return nil, err
+			}
+			targets[b.GetTargetId()] = t
+		}
+		checkBlockRefs(&v, idx("blocks", i), b, site.pb, t)
+	}
+	if err := v.err(); err != nil {
+		return nil, err
+	}
+	recs := make([]store.Block, n)
+	for i, b := range req.GetBlocks() {
+		spec, err := storable(normalizeBlock(b))
+		if err != nil {
+			return nil, err
+		}
+		id := newID(blockPrefix)
+		if req.GetRequestId() != "" {
+			id = requestBlockID(req.GetRequestId(), i)
+		}
+		recs[i] = store.Block{ID: id, SiteID: b.GetSiteId(), TargetID: b.GetTargetId(), Priority: float64(b.GetPriority()),
+			FramesWanted: int(b.GetFramesWanted()), Spec: spec}
+	}
+	var over error
+	perSite := map[string]int{}
+	for _, b := range req.GetBlocks() {
+		perSite[b.GetSiteId()]++
+	}
+	for id, k := range perSite {
+		queued, err := x.s.db.QueueSize(ctx, id)
+		if err != nil {
+			return nil, err
+		}
+		if limit := x.s.cfg.maxQueuedPerSite; queued+k > limit {
+			over = status.Errorf(codes.ResourceExhausted, "site %s has %d queued blocks; %d more would pass the limit of %d",
+				id, queued, k, limit)
+		}
+	}
+
+	var (
+		stored    []store.Block
+		err       error
+		duplicate bool
+	)
+	switch {
+	case over != nil && req.GetRequestId() == "":
+		return nil, over
+	case over != nil:
+		// Over the limit, a retry of an accepted call still succeeds.
+		if stored, err = x.s.sameRequest(ctx, recs); err != nil {
+			if status.Code(err) == codes.AlreadyExists {
+				return nil, over
+			}
+			return nil, err
+		}
+		duplicate = true
+	default:
+		stored, err = x.s.db.CreateBlocks(ctx, recs)
+	}
+	if errors.Is(err, store.ErrAlreadyExists) && req.GetRequestId() != "" {
+		if stored, err = x.s.sameRequest(ctx, recs); err != nil {
+			return nil, err
+		}
+		duplicate = true
+	}
+	if err != nil {
+		return nil, err
+	}
+	resp := &nightloomv1.QueueBlocksResponse{Duplicate: duplicate}
+	for _, r := range stored {
+		b, err := sites.blockOut(ctx, r)
+		if err != nil {
+			return nil, err
+		}
+		resp.Blocks = append(resp.Blocks, b)
+	}
+	if !duplicate {
+		x.s.urgentBlocksQueued(resp.Blocks)
+	}
+	return resp, nil
+}
+
+// sameRequest decides a QueueBlocks retry: the blocks of a request id have
+// ids derived from it (requestBlockID), so a retry collides with them. It
+// is the same call when every block is stored with the same site, target and
+// spec and the earlier call had no more blocks; then the stored blocks are
+// returned. Anything else is ALREADY_EXISTS.
+func (s *Server) sameRequest(ctx context.Context, recs []store.Block) ([]store.Block, error) {
+	reused := status.Error(codes.AlreadyExists, "request_id was used before with different blocks")
+	out := make([]store.Block, len(recs))
+	for i, r := range recs {
+		got, err := s.db.GetBlock(ctx, r.ID)
+		if errors.Is(err, store.ErrNotFound) {
+			return nil, reused
+		}
+		if err != nil {
+			return nil, err
+		}
+		if got.SiteID != r.SiteID || got.TargetID != r.TargetID || got.FramesWanted != r.FramesWanted || !bytes.Equal(got.Spec, r.Spec) {
+			return nil, reused
+		}
+		out[i] = got
+	}
+	// An earlier call with more blocks under the same id is another call.
+	first := recs[0].ID
+	more := first[:len(first)-1] + itoa(len(recs))
+	if _, err := s.db.GetBlock(ctx, more); err == nil {
+		return nil, reused
+	} else if !errors.Is(err, store.ErrNotFound) {
+		return nil, err
+	}
+	return out, nil
+}
+
+func (x *queueService) GetBlock(ctx context.Context, req *nightloomv1.GetBlockRequest) (*nightloomv1.GetBlockResponse, error) {
+	var v violations
+	requiredID(&v, "block_id", req.GetBlockId())
+	if err := v.err(); err != nil {
+		return nil, err
+	}
+	rec, err := x.s.db.GetBlock(ctx, req.GetBlockId())
+	if err != nil {
+		return nil, err
+	}
+	b, err := x.s.newSiteCache().blockOut(ctx, rec)
+	if err != nil {
+		return nil, err
+	}
+	return &nightloomv1.GetBlockResponse{Block: b}, nil
+}
+
+// maxListScan bounds the records one filtered List call reads from the
+// store; a page may then hold fewer than page_size blocks (with a token to
+// go on).
+const maxListScan = 10_000
+
+func (x *queueService) ListBlocks(ctx context.Context, req *nightloomv1.ListBlocksRequest) (*nightloomv1.ListBlocksResponse, error) {
+	var v violations
+	optionalID(&v, "site_id", req.GetSiteId())
+	optionalID(&v, "target_id", req.GetTargetId())
+	if len(req.GetStates()) > MaxListStateFilters {
+		v.add("states", "at most %d states", MaxListStateFilters)
+	}
+	want := map[nightloomv1.BlockState]bool{}
+	for i, st := range req.GetStates() {
+		enumKnown(&v, idx("states", i), int32(st), nightloomv1.BlockState_name, false)
+		want[st] = true
+	}
+	size := pageSize(&v, "page_size", req.GetPageSize(), DefaultBlockPageSize, MaxBlockPageSize)
+	pageToken(&v, "page_token", req.GetPageToken())
+	if err := v.err(); err != nil {
+		return nil, err
+	}
+	// The store filters by its own state when the API states asked for map
+	// to one; open and expired are both "queued" there and told apart here.
+	f := store.BlockFilter{SiteID: req.GetSiteId(), TargetID: req.GetTargetId()}
+	if len(want) > 0 {
+		ss := map[string]bool{}
+		for st := range want {
+			switch st {
+			case nightloomv1.BlockState_BLOCK_STATE_OPEN, nightloomv1.BlockState_BLOCK_STATE_EXPIRED:
+				ss[store.StateQueued] = true
+			case nightloomv1.BlockState_BLOCK_STATE_COMPLETED:
+				ss[store.StateCompleted] = true
+			case nightloomv1.BlockState_BLOCK_STATE_WITHDRAWN:
+				ss[store.StateWithdrawn] = true
+			}
+		}
+		if len(ss) == 1 {
+			for st := range ss {
+				f.State = st
+			}
+		}
+	}
+	sites := x.s.newSiteCache()
+	resp := &nightloomv1.ListBlocksResponse{}
+	token := req.GetPageToken()
+	scanned := 0
+	for {
+		need := size - len(resp.Blocks)
+		recs, next, err := x.s.db.ListBlocks(ctx, f, store.Page{Size: need, Token: token})
+		if err != nil {
+			return nil, pageErr(err)
+		}
+		for _, r := range recs {
+			b, err := sites.blockOut(ctx, r)
+			if err != nil {
+				return nil, err
+			}
+			if len(want) == 0 || want[b.GetState()] {
+				resp.Blocks = append(resp.Blocks, b)
+			}
+		}
+		scanned += len(recs)
+		token = next
+		if next == "" || len(resp.Blocks) >= size || scanned >= maxListScan {
+			break
+		}
+	}
+	resp.NextPageToken = token
+	return resp, nil
+}
+
+func (x *queueService) WithdrawBlock(ctx context.Context, req *nightloomv1.WithdrawBlockRequest) (*nightloomv1.WithdrawBlockResponse, error) {
+	var v violations
+	requiredID(&v, "block_id", req.GetBlockId())
+	text(&v, "reason", req.GetReason(), 0, MaxReasonBytes)
+	if err := v.err(); err != nil {
+		return nil, err
+	}
+	sites := x.s.newSiteCache()
+	rec, err := x.s.db.GetBlock(ctx, req.GetBlockId())
+	if err != nil {
+		return nil, err
+	}
+	cur, err := sites.blockOut(ctx, rec)
+	if err != nil {
+		return nil, err
+	}
+	switch cur.GetState() {
+	case nightloomv1.BlockState_BLOCK_STATE_EXPIRED:
+		return nil, failedPrecondition("block %s has expired (its latest night is over)", rec.ID)
+	case nightloomv1.BlockState_BLOCK_STATE_COMPLETED:
+		return nil, failedPrecondition("block %s is completed", rec.ID)
+	}
+	out, err := x.s.db.WithdrawBlock(ctx, rec.ID)
+	if errors.Is(err, store.ErrConflict) {
+		return nil, failedPrecondition("block %s: %v", rec.ID, err)
+	}
+	if err != nil {
+		return nil, err
+	}
+	b, err := sites.blockOut(ctx, out)
+	if err != nil {
+		return nil, err
+	}
+	return &nightloomv1.WithdrawBlockResponse{Block: b}, nil
+}
+
+// checkReport validates a progress report (queue.proto).
+func checkReport(v *violations, path string, r *nightloomv1.ProgressReport) (time.Time, time.Time) {
+	if r == nil {
+		v.add(path, "is required")
+		return time.Time{}, time.Time{}
+	}
+	printableASCII(v, path+".report_id", r.GetReportId(), 1, MaxReportIDBytes)
+	requiredID(v, path+".block_id", r.GetBlockId())
+	intRange(v, path+".frames_kept", int64(r.GetFramesKept()), 0, MaxFramesWanted)
+	start, end, _ := interval(v, path+".interval", r.GetInterval(), time.Nanosecond, 0)
+	enumKnown(v, path+".outcome", int32(r.GetOutcome()), nightloomv1.ProgressOutcome_name, false)
+	switch r.GetOutcome() {
+	case nightloomv1.ProgressOutcome_PROGRESS_OUTCOME_FAILED, nightloomv1.ProgressOutcome_PROGRESS_OUTCOME_SKIPPED:
+		if r.GetFramesKept() != 0 {
+			v.add(path+".frames_kept", "must be 0 for outcome %s", r.GetOutcome())
+		}
+	}
+	optionalID(v, path+".plan_id", r.GetPlanId())
+	text(v, path+".note", r.GetNote(), 0, MaxNoteBytes)
+	return start, end
+}
+
+func (x *queueService) ReportProgress(ctx context.Context, req *nightloomv1.ReportProgressRequest) (*nightloomv1.ReportProgressResponse, error) {
+	var v violations
+	start, end := checkReport(&v, "report", req.GetReport())
+	if err := v.err(); err != nil {
+		return nil, err
+	}
+	r := req.GetReport()
+	// frames_counted is what the report added: the store caps frames done
+	// at frames wanted, so it is the difference of frames done around the
+	// call, bounded by frames_kept.
+	before, err := x.s.db.GetBlock(ctx, r.GetBlockId())
+	if err != nil {
+		return nil, err
+	}
+	after, dup, err := x.s.db.ReportProgress(ctx, store.ProgressReport{
+		ReportID: r.GetReportId(), BlockID: r.GetBlockId(), FramesKept: int(r.GetFramesKept()),
+		Start: start, End: end, Outcome: r.GetOutcome().String(),
+	})
+	if errors.Is(err, store.ErrConflict) {
+		return nil, status.Errorf(codes.AlreadyExists, "report_id %q was used before with different content", r.GetReportId())
+	}
+	if err != nil {
+		return nil, err
+	}
+	b, err := x.s.newSiteCache().blockOut(ctx, after)
+	if err != nil {
+		return nil, err
+	}
+	resp := &nightloomv1.ReportProgressResponse{Block: b, Duplicate: dup}
+	if !dup {
+		resp.FramesCounted = int32(max(0, min(after.FramesDone-before.FramesDone, int(r.GetFramesKept()))))
+	}
+	return resp, nil
+}

@@ -1,0 +1,431 @@
+package server
+
+import (
+	"context"
+	"math"
+	"time"
+
+	"google.golang.org/protobuf/proto"
+	"google.golang.org/protobuf/types/known/durationpb"
+	"google.golang.org/protobuf/types/known/timestamppb"
+
+	"github.com/nightloom/nightloom/constraints"
+	"github.com/nightloom/nightloom/ephem"
+	nightloomv1 "github.com/nightloom/nightloom/proto/nightloom/v1"
+)
+
+// skyService implements SkyService (sky.proto) directly on ephem and
+// constraints. It stores nothing.
+type skyService struct {
+	nightloomv1.UnimplementedSkyServiceServer
+	s *Server
+}
+
+// planningInterval is the part of the night of date d that MakePlan plans
+// (plan.proto): sunset to the next sunrise; where the Sun does not rise,
+// to the end of the noon-to-noon window; where it is already down at the
+// window's start (no sunset), from the start. ok is false where the Sun
+// does not set.
+func (m *siteModel) planningInterval(d time.Time) (start, end time.Time, ok bool) {
+	n := ephem.NightOf(&m.cons.Observer, d.Year(), d.Month(), d.Day())
+	return planningSpan(&m.cons.Observer, &n)
+}
+
+func planningSpan(o *ephem.Observer, n *ephem.Night) (start, end time.Time, ok bool) {
+	if set, has := n.Get(ephem.Sunset); has {
+		start = set
+	} else if sunAltDeg(o, n.Start) < ephem.SunriseAltDeg {
+		start = n.Start
+	} else {
+		return time.Time{}, time.Time{}, false
+	}
+	end = n.End
+	if rise, has := n.Get(ephem.Sunrise); has && rise.After(start) {
+		end = rise
+	}
+	return start, end, end.After(start)
+}
+
+// sunAltDeg is the Sun's geometric altitude (centre) at t.
+func sunAltDeg(o *ephem.Observer, t time.Time) float64 {
+	snap := ephem.Prepare(ephem.NewInstant(t))
+	l := snap.Local(o)
+	return l.SunPlace().Alt * ephem.Rad2Deg
+}
+
+// subjectTarget resolves a stored or inline target of a Sky request.
+func (s *Server) subjectTarget(ctx context.Context, v *violations, id string, inline *nightloomv1.Target, path string) (*nightloomv1.Target, *constraints.Target, error) {
+	if inline != nil {
+		t := normalizeTarget(inline)
+		ct := checkTarget(v, path, t)
+		return t, ct, nil
+	}
+	pb, ct, err := s.loadTarget(ctx, id)
+	return pb, ct, err
+}
+
+func (x *skyService) Ephemeris(ctx context.Context, req *nightloomv1.EphemerisRequest) (*nightloomv1.EphemerisResponse, error) {
+	var v violations
+	switch sub := req.GetSubject().(type) {
+	case *nightloomv1.EphemerisRequest_TargetId:
+		requiredID(&v, "target_id", sub.TargetId)
+	case *nightloomv1.EphemerisRequest_Target:
+		if sub.Target == nil {
+			v.add("target", "is required")
+		} else {
+			checkTarget(&v, "target", normalizeTarget(sub.Target))
+		}
+	default:
+		v.add("subject", "one of target_id or target is required")
+	}
+	requiredID(&v, "site_id", req.GetSiteId())
+	start, end, okI := interval(&v, "interval", req.GetInterval(), time.Nanosecond, MaxEphemerisSpan)
+	step := duration(&v, "step", req.GetStep(), MinEphemerisStep, MaxEphemerisStep, DefaultEphemerisStep, false)
+	if okI && v.ok() {
+		if rows := int64((end.Sub(start) + step - 1) / step); rows > MaxEphemerisRows {
+			v.add("step", "%d rows, at most %d: use a longer step or a shorter interval", rows, MaxEphemerisRows)
+		}
+	}
+	if err := v.err(); err != nil {
+		return nil, err
+	}
+	site, _, err := x.s.loadSite(ctx, req.GetSiteId())
+	if err != nil {
+		return nil, err
+	}
+	_, target, err := x.s.subjectTarget(ctx, &v, req.GetTargetId(), req.GetTarget(), "target")
+	if err != nil {
+		return nil, err
+	}
+	resp := &nightloomv1.EphemerisResponse{}
+	for i, t := 0, start; t.Before(end); i, t = i+1, start.Add(time.Duration(i+1)*step) {
+		if i%256 == 0 && ctx.Err() != nil {
+			return nil, ctx.Err()
+		}
+		resp.Rows = append(resp.Rows, ephemerisRow(site, target, t))
+	}
+	return resp, nil
+}
+
+func ephemerisRow(site *siteModel, target *constraints.Target, t time.Time) *nightloomv1.EphemerisRow {
+	o := observe(site.cons, target, t)
+	row := &nightloomv1.EphemerisRow{
+		Time: timestamppb.New(t), Pointing: o.pointing, AboveHorizonProfile: o.aboveProfile,
+		MoonSeparationDeg: o.moonSepDeg, SolarElongationDeg: o.sunSepDeg, SunAltitudeDeg: o.sunAltDeg,
+		Darkness: darknessLevel(o.sunAltDeg), MoonAltitudeDeg: o.moonAltDeg, MoonIllumination: o.moonIllum,
+	}
+	if o.altDeg >= 0 {
+		if !math.IsInf(o.airmass, 0) {
+			row.Airmass = proto.Float64(o.airmass)
+		}
+		if !math.IsNaN(o.sky) {
+			row.SkyBrightnessVMagArcsec2 = proto.Float64(o.sky)
+		}
+	}
+	if o.moving {
+		os := &nightloomv1.OrbitState{HeliocentricDistanceAu: o.rAU, GeocentricDistanceAu: o.deltaAU, PhaseAngleDeg: o.phaseDeg,
+			Rate: &nightloomv1.NonSiderealRate{RaCosDecArcsecPerMin: o.rateRA, DecArcsecPerMin: o.rateDec}}
+		if !math.IsNaN(o.magnitude) {
+			os.Magnitude = proto.Float64(o.magnitude)
+			if !math.IsNaN(o.observedMagnitude) && o.altDeg >= 0 {
+				os.ObservedMagnitude = proto.Float64(o.observedMagnitude)
+			}
+		}
+		row.Orbit = os
+	}
+	return row
+}
+
+func (x *skyService) Night(ctx context.Context, req *nightloomv1.NightRequest) (*nightloomv1.NightResponse, error) {
+	var v violations
+	requiredID(&v, "site_id", req.GetSiteId())
+	d, _ := localDate(&v, "date", req.GetDate(), true)
+	if err := v.err(); err != nil {
+		return nil, err
+	}
+	site, _, err := x.s.loadSite(ctx, req.GetSiteId())
+	if err != nil {
+		return nil, err
+	}
+	o := &site.cons.Observer
+	n := ephem.NightOf(o, d.Year(), d.Month(), d.Day())
+	resp := &nightloomv1.NightResponse{Window: &nightloomv1.TimeInterval{Start: timestamppb.New(n.Start), End: timestamppb.New(n.End)}}
+	set := func(k ephem.EventKind) *timestamppb.Timestamp {
+		if t, ok := n.Get(k); ok {
+			return timestamppb.New(t)
+		}
+		return nil
+	}
+	resp.Sunset, resp.Sunrise = set(ephem.Sunset), set(ephem.Sunrise)
+	resp.CivilDusk, resp.CivilDawn = set(ephem.CivilDusk), set(ephem.CivilDawn)
+	resp.NauticalDusk, resp.NauticalDawn = set(ephem.NauticalDusk), set(ephem.NauticalDawn)
+	resp.AstronomicalDusk, resp.AstronomicalDawn = set(ephem.AstronomicalDusk), set(ephem.AstronomicalDawn)
+	resp.Moonrise, resp.Moonset = set(ephem.Moonrise), set(ephem.Moonset)
+	mid := ephem.Prepare(ephem.NewInstant(n.Start.Add(12 * time.Hour)))
+	resp.MoonIllumination, _ = mid.MoonIllumination()
+	if st, en, ok := planningSpan(o, &n); ok {
+		resp.PlanningInterval = &nightloomv1.TimeInterval{Start: timestamppb.New(st), End: timestamppb.New(en)}
+	}
+	dark, moonless := darkTimes(o, n.Start, n.End)
+	resp.AstronomicalDark, resp.MoonlessDark = durationpb.New(dark), durationpb.New(moonless)
+	return resp, nil
+}
+
+// darkTimes returns the time in [start, end) with the Sun's centre below
+// -18 deg, and the part of it with the Moon down. The intervals come from
+// the crossings that ephem.AllEvents finds (astronomical dusk and dawn,
+// moonrise and moonset) and the state at start; "Moon down" uses the same
+// horizon as moonrise and moonset (the upper limb at the refracted
+// horizon), a few minutes from its centre at 0 deg.
+func darkTimes(o *ephem.Observer, start, end time.Time) (dark, moonless time.Duration) {
+	snap := ephem.Prepare(ephem.NewInstant(start))
+	l := snap.Local(o)
+	sunDark := l.SunPlace().Alt*ephem.Rad2Deg < ephem.AstronomicalAltDeg
+	mp := l.MoonPlace()
+	moonUp := mp.Alt > (-34.0/60)*ephem.Deg2Rad-ephem.MoonSemidiameter(l.MoonOfDate().Norm())
+	t := start
+	add := func(to time.Time) {
+		if sunDark {
+			dark += to.Sub(t)
+			if !moonUp {
+				moonless += to.Sub(t)
+			}
+		}
+		t = to
+	}
+	for _, e := range ephem.AllEvents(o, start, end) {
+		switch e.Kind {
+		case ephem.AstronomicalDusk:
+			add(e.Time)
+			sunDark = true
+		case ephem.AstronomicalDawn:
+			add(e.Time)
+			sunDark = false
+		case ephem.Moonrise:
+			add(e.Time)
+			moonUp = true
+		case ephem.Moonset:
+			add(e.Time)
+			moonUp = false
+		}
+	}
+	add(end)
+	return dark, moonless
+}
+
+func (x *skyService) Visibility(ctx context.Context, req *nightloomv1.VisibilityRequest) (*nightloomv1.VisibilityResponse, error) {
+	s := x.s
+	var v violations
+	var blockID string
+	switch sub := req.GetSubject().(type) {
+	case *nightloomv1.VisibilityRequest_BlockId:
+		blockID = sub.BlockId
+		requiredID(&v, "block_id", sub.BlockId)
+		optionalID(&v, "site_id", req.GetSiteId())
+		if req.GetConstraints() != nil {
+			v.add("constraints", "is refused with a block (the block's own are used)")
+		}
+		if req.GetExposure() != nil {
+			v.add("exposure", "is refused with a block (the block's own is used)")
+		}
+		if req.GetNonSiderealTracking() {
+			v.add("non_sidereal_tracking", "is refused with a block (the block's own is used)")
+		}
+	case *nightloomv1.VisibilityRequest_TargetId:
+		requiredID(&v, "target_id", sub.TargetId)
+		requiredID(&v, "site_id", req.GetSiteId())
+	case *nightloomv1.VisibilityRequest_Target:
+		if sub.Target == nil {
+			v.add("target", "is required")
+		} else {
+			checkTarget(&v, "target", normalizeTarget(sub.Target))
+		}
+		requiredID(&v, "site_id", req.GetSiteId())
+	default:
+		v.add("subject", "one of block_id, target_id or target is required")
+	}
+	if blockID == "" {
+		checkConstraintSet(&v, "constraints", req.GetConstraints())
+		duration(&v, "exposure", req.GetExposure(), 0, time.Hour, 0, false)
+	}
+	var (
+		date, ivStart, ivEnd time.Time
+		byNight              bool
+	)
+	switch span := req.GetSpan().(type) {
+	case *nightloomv1.VisibilityRequest_Night:
+		date, _ = localDate(&v, "night", span.Night, true)
+		byNight = true
+	case *nightloomv1.VisibilityRequest_Interval:
+		ivStart, ivEnd, _ = interval(&v, "interval", span.Interval, MinPlanInterval, MaxPlanInterval)
+	default:
+		v.add("span", "one of night or interval is required")
+	}
+	step := duration(&v, "step", req.GetStep(), MinGridStep, MaxGridStep, DefaultGridStep, false)
+	if err := v.err(); err != nil {
+		return nil, err
+	}
+
+	// The subject: a block brings its site, target and request.
+	var (
+		siteID  = req.GetSiteId()
+		block   *nightloomv1.Block
+		tpb     *nightloomv1.Target
+		target  *constraints.Target
+		request constraints.Request
+	)
+	if blockID != "" {
+		rec, err := s.db.GetBlock(ctx, blockID)
+		if err != nil {
+			return nil, err
+		}
+		if siteID != "" && siteID != rec.SiteID {
+			return nil, fieldError("site_id", "block %s is queued at site %s, not %s", blockID, rec.SiteID, siteID)
+		}
+		siteID = rec.SiteID
+		if block, err = blockProto(rec, nil, s.now()); err != nil {
+			return nil, err
+		}
+	}
+	site, _, err := s.loadSite(ctx, siteID)
+	if err != nil {
+		return nil, err
+	}
+	if block != nil {
+		if tpb, target, err = s.loadTarget(ctx, block.GetTargetId()); err != nil {
+			return nil, err
+		}
+		set := constraintSet(block.GetConstraints(), hasMagLaw(tpb))
+		if !byNight {
+			dateLimits(set, block)
+		}
+		request = constraints.Request{Set: set, Exposure: block.GetExposure().AsDuration(), NonSidereal: block.GetNonSiderealTracking()}
+	} else {
+		if tpb, target, err = s.subjectTarget(ctx, &v, req.GetTargetId(), req.GetTarget(), "target"); err != nil {
+			return nil, err
+		}
+		request = constraints.Request{Set: constraintSet(req.GetConstraints(), hasMagLaw(tpb)),
+			Exposure: req.GetExposure().AsDuration(), NonSidereal: req.GetNonSiderealTracking()}
+	}
+
+	resp := &nightloomv1.VisibilityResponse{Step: durationpb.New(step)}
+	if byNight {
+		st, en, ok := site.planningInterval(date)
+		if !ok {
+			w0, _ := site.nightWindow(date)
+			resp.Interval = &nightloomv1.TimeInterval{Start: timestamppb.New(w0), End: timestamppb.New(w0)}
+			resp.VisibleTime = durationpb.New(0)
+			return resp, nil
+		}
+		ivStart, ivEnd = st, en
+	}
+	resp.Interval = &nightloomv1.TimeInterval{Start: timestamppb.New(ivStart), End: timestamppb.New(ivEnd)}
+	g, err := constraints.NewGrid(site.cons, ivStart, ivEnd, step, constraints.Options{})
+	if err != nil {
+		return nil, fieldError("step", "%v", err)
+	}
+	tr, err := g.Track(target)
+	if err != nil {
+		return nil, err
+	}
+	vis := g.Evaluate(tr, request)
+	if byNight && block != nil && !nightAllowed(block, date) {
+		for i := range vis.Reason {
+			vis.Reason[i], vis.Quality[i] = constraints.ReasonDate, 0
+		}
+		vis.Windows = nil
+	}
+	capEnd := func(t time.Time) time.Time {
+		if t.After(ivEnd) {
+			return ivEnd
+		}
+		return t
+	}
+	var shortest time.Duration
+	if block != nil {
+		shortest = shortestRun(site.pb, block)
+	}
+	var visible time.Duration
+	for _, w := range vis.Windows {
+		t0, t1 := g.Time(w.Start), capEnd(g.Time(w.End))
+		win := &nightloomv1.VisibilityWindow{Interval: &nightloomv1.TimeInterval{Start: timestamppb.New(t0), End: timestamppb.New(t1)},
+			MinAirmass: math.Inf(1), MaxAltitudeDeg: math.Inf(-1), FitsShortestRun: true}
+		sum := 0.0
+		for i := w.Start; i < w.End; i++ {
+			q := float64(vis.Quality[i])
+			sum += q
+			win.BestQuality = math.Max(win.BestQuality, q)
+			win.MaxAltitudeDeg = math.Max(win.MaxAltitudeDeg, float64(tr.Alt[i])*ephem.Rad2Deg)
+			win.MinAirmass = math.Min(win.MinAirmass, float64(tr.Airmass[i]))
+		}
+		win.MeanQuality = sum / float64(w.Len())
+		if block != nil {
+			win.FitsShortestRun = t1.Sub(t0) >= shortest
+		}
+		visible += t1.Sub(t0)
+		resp.Windows = append(resp.Windows, win)
+	}
+	for _, sp := range vis.Spans(g) {
+		if sp.Reason == constraints.OK {
+			continue
+		}
+		resp.Blocked = append(resp.Blocked, &nightloomv1.BlockedSpan{
+			Interval: &nightloomv1.TimeInterval{Start: timestamppb.New(sp.From), End: timestamppb.New(capEnd(sp.To))},
+			Reason:   reasonProto(sp.Reason)})
+	}
+	resp.VisibleTime = durationpb.New(visible)
+	return resp, nil
+}
+
+// runLength is end - start of a run of n frames (plan.proto Assignment.end):
+// n (exposure + readout) + dithers x dither, dithering after every `every`
+// frames but not after the last.
+func runLength(site *nightloomv1.Site, exposure time.Duration, n, every int) time.Duration {
+	in := site.GetInstrument()
+	d := time.Duration(n) * (exposure + in.GetReadout().AsDuration())
+	if every > 0 && n > 1 {
+		d += time.Duration((n-1)/every) * in.GetDither().AsDuration()
+	}
+	return d
+}
+
+// typicalSlewDeg is the axis travel assumed for "the slew before" a run
+// when the previous pointing is unknown (Visibility's fits_shortest_run):
+// 90 deg on both axes, the mean angular distance between random points on
+// the sphere (our choice).
+const typicalSlewDeg = 90.0
+
+// axisTime is the time of a trapezoidal slew over d deg (site.proto
+// AxisSlew: accelerate at a up to rate v, cruise, decelerate; a = 0 means
+// constant speed).
+func axisTime(a *nightloomv1.AxisSlew, d float64) time.Duration {
+	v, acc := a.GetRateDegPerS(), a.GetAccelerationDegPerS2()
+	d = math.Abs(d)
+	if v <= 0 || d == 0 {
+		return 0
+	}
+	var s float64
+	switch {
+	case acc <= 0:
+		s = d / v
+	case d >= v*v/acc:
+		s = d/v + v/acc
+	default:
+		s = 2 * math.Sqrt(d/acc)
+	}
+	return time.Duration(s * float64(time.Second))
+}
+
+// shortestRun is the time a block's shortest useful run needs with the
+// overheads before it: a typical slew, settle and acquisition, then
+// min_run_frames (or the frames left, if fewer) with readouts and dithers.
+func shortestRun(site *nightloomv1.Site, b *nightloomv1.Block) time.Duration {
+	m := site.GetMount()
+	slew := max(axisTime(m.GetPrimaryAxis(), typicalSlewDeg), axisTime(m.GetSecondaryAxis(), typicalSlewDeg))
+	n := int(max(1, b.GetMinRunFrames()))
+	if left := int(b.GetFramesWanted() - b.GetFramesDone()); left > 0 && left < n {
+		n = left
+	}
+	return slew + m.GetSettle().AsDuration() + site.GetInstrument().GetAcquisition().AsDuration() +
+		runLength(site, b.GetExposure().AsDuration(), n, int(b.GetDitherEveryFrames()))
+}

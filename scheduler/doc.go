@@ -1,0 +1,108 @@
+// Package scheduler turns imaging blocks and their visibility into the
+// night's sequence of runs, with slews, filter changes, focus runs and
+// meridian flips counted as real time; it re-plans from any instant,
+// dispatches the next run, plans horizons of nights, and measures its own
+// quality against an exact solver and upper bounds.
+//
+// It is pure computation on top of package constraints: no I/O beyond
+// decoding an Instance from an io.Reader.
+//
+// # Model
+//
+// Time is continuous (seconds from the start of the night's grid); the
+// grid's steps carry feasibility and quality. A run of a block is n frames
+// back to back: each frame is the exposure then the site's readout; after
+// every DitherEvery frames a dither; on a german equatorial mount a run
+// that starts east of the flip zone flips (the site's Flip time, after
+// waiting for the hour angle to reach the zone's start if need be) before
+// the first frame that would end past the zone's end. Every grid step that
+// the run covers must be observable for the block and not closed. A run
+// has between MinRun and MaxRun frames; one shorter run is allowed as the
+// remainder of a block that the plan completes.
+//
+// Before a run the mount slews from the previous pointing (the previous
+// target where it is when the new run starts, a german mount stopping at
+// the flip limit; the park position at the zenith before the first run)
+// to the new target at the run's start (moving targets included): both
+// axes at once at their rates, the slower one winning, on the hour-angle
+// and declination axes of equatorial mounts (german ones do not wrap and
+// use the pier-side axis angles) or azimuth and altitude for alt-azimuth.
+// The setup is
+//
+//	max(slew + settle, filter change) + focus + acquisition
+//
+// with the filter change only when the filter differs and the focus run
+// before the first run of the night, on a filter change (if the site
+// asks) and before the first run that starts in each new FocusEvery
+// period. The setup lies just before the run and must avoid closures.
+// Runs start on a quantum grid (Options.Quantum, default 10 s) and the
+// mount is free again at the first quantum boundary after a run; these
+// roundings cost at most two quanta per run and make the exact solver
+// exact for the same model.
+//
+// # Objective
+//
+// A plan maximises
+//
+//	sum over frames of priority_b * u_b * quality(step of mid-exposure) * exposure_s
+//	+ sum over blocks completed by the plan of B * priority_b * u_b * FramesWanted_b * exposure_s
+//
+// (seconds of zenith, dark-sky exposure weighted by priority), with B the
+// completion bonus (Options.CompletionBonus, default 0.25) and nothing
+// subtracted for idle time. Quality is the constraints package's factor in
+// (0, 1]. Executed runs are reported but not counted.
+//
+// The urgency u_b favours blocks about to become unobservable for the
+// season (a setting target, a comet closing on the Sun or fading, a
+// block's latest date). A coarse lookahead (20 min grid, sky-brightness
+// model off) over N nights from tonight (Options.LookaheadNights, default
+// 14) counts the block's chances c_b: the nights with a window at least
+// as long as its shortest run. With need_b the nights it still needs at
+// one longest run per night, ceil(frames left / min(MaxRun, frames left)),
+//
+//	u_b = 1 + lambda * min(1, need_b / max(1, c_b))
+//
+// (lambda = Options.UrgencyWeight, default 1): a block with many chances
+// left counts about once, one that must be done tonight twice. Without a
+// lookahead u_b = 1.
+//
+// # Algorithms
+//
+//   - Greedy (baseline): whenever the mount is free, start the block of
+//     highest priority * urgency that can start right after its setup,
+//     with as many frames as fit; if none can, wait one grid step.
+//   - Solve (main): a constructive schedule by greedy insertion (the most
+//     valuable run into any gap, repeatedly; each candidate is the longest
+//     run as early as possible in one of the gap's windows, as late as
+//     possible, or centred on the block's best quality, plus chains of
+//     back-to-back runs that complete a block) improved by adaptive
+//     large-neighbourhood search: destroy operators (random runs, a
+//     stretch of time, Shaw's related removal by time, sky distance and
+//     filter, worst value per second, all runs of one block) and repair
+//     by the insertion heuristic ranked by value, value per second or
+//     value with the bonus prorated, with and without noise; operator
+//     weights adapt by their success and acceptance is simulated
+//     annealing, as in Ropke & Pisinger (2006, Transportation Science 40,
+//     455), with related removal after Shaw (1998, CP-98, LNCS 1520,
+//     417). Every new best solution and the final one are polished by
+//     local search (shift a run within its slack, swap adjacent runs).
+//     It is deterministic for a given Options.Seed when the iteration
+//     count (not the time budget) ends it.
+//   - Exact: dynamic programming over (quantum, last block, pier side,
+//     focus period, frames per block) with memoised recursion; exact for
+//     the model above, refused for cadence blocks and large state spaces.
+//   - Bounds: BoundDP, the Lagrangian dual of the run-indexed time
+//     formulation (Sousa & Wolsey 1992) with the per-block frame budgets
+//     dualised and the inner problem solved by dynamic programming over
+//     (quantum, filter); Bound, a slot-based linear relaxation solved as a
+//     transportation flow with Lagrangian prices, cross-checked by BoundLP
+//     with gonum's simplex; UpperBound takes the smaller. They exist to
+//     measure Solve.
+//   - Replan re-plans from an instant keeping what is still good; Dispatch
+//     picks the next run consistent with the plan; Horizon plans nights in
+//     turn with frames carried over.
+//
+// Every block left out is explained: never observable (with the
+// constraint that rules out the most steps), window too short for its
+// shortest run, or lost to higher-value blocks.
+package scheduler

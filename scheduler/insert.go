@@ -1,0 +1,392 @@
+package scheduler
+
+import (
+	"math"
+	"math/rand/v2"
+	"sort"
+)
+
+// cand is a candidate insertion: a new run at a gap, or a longer version
+// of the run just before the gap (extend).
+type cand struct {
+	r      run
+	more   []run // further back-to-back runs of the same block (completion chains)
+	extend bool
+	delta  float64 // change of the objective
+	span   float64 // time used from the gap's base to the run's end
+	win    float64 // the part of the run's window inside the gap (byTightness)
+	score  float64 // delta or delta/span, with noise, for ranking
+	ok     bool
+}
+
+// Scoring modes of the insertion heuristics: the change of the
+// objective, that change per second used, the change with the completion
+// bonus prorated over frames (progress toward a bonus counts), or the
+// change times the squared share of its window that the run needs (the
+// least flexible insertions first: a block that fits only one narrow
+// window goes in before a flexible one takes that window).
+const (
+	byValue = iota
+	byDensity
+	byProgress
+	byTightness
+)
+
+func (p *Problem) score(c *cand, mode int) float64 {
+	switch mode {
+	case byDensity:
+		return c.delta / math.Max(c.span, 1)
+	case byTightness:
+		share := math.Min(1, (c.r.e-c.r.s)/math.Max(c.win, 1))
+		return c.delta * share * share
+	case byProgress:
+		d := &p.bd[c.r.b]
+		if d.rem > 0 && !c.extend {
+			n := c.r.n
+			for _, r := range c.more {
+				n += r.n
+			}
+			return c.delta + d.bonus*float64(n)/float64(d.rem)
+		}
+	}
+	return c.delta
+}
+
+// bestInGap returns the best insertion of block b in the gap before
+// runs[pos]: a run starting as early as possible (in each of the first few
+// windows of the gap), as late as possible, or centred on the block's best
+// quality, each with as many frames as fit; or the extension of the run
+// just before the gap when it is of block b.
+func (p *Problem) bestInGap(sc *sched, pos, b, mode int) cand {
+	d := &p.bd[b]
+	planned := sc.planned[b]
+	nmax := p.maxFrames(b, planned)
+	var best cand
+	if nmax <= 0 && !(pos > 0 && sc.runs[pos-1].b == b) {
+		return best
+	}
+	base := p.baseOf(sc, pos)
+	nb, ns := p.nextOf(sc, pos)
+	consider := func(c cand) {
+		c.score = p.score(&c, mode)
+		if c.ok && (!best.ok || c.score > best.score) {
+			best = c
+		}
+	}
+	var dl [2]float64
+	var dlSet [2]bool
+	fits := func(r *run) bool {
+		if nb < 0 {
+			return r.e <= ns+1e-9
+		}
+		sd := r.side1
+		if !dlSet[sd] {
+			su := p.setup(p.after(b, r.s, sd), nb, ns)
+			tot := su.total()
+			dl[sd] = ns - tot
+			if !p.setupClear(ns, tot) {
+				dl[sd] = math.Inf(-1)
+			}
+			dlSet[sd] = true
+		}
+		return p.ceilQ(r.e) <= dl[sd]+1e-9
+	}
+
+	// Extension of the run before the gap (not of a run that replanning
+	// keeps from the old plan).
+	if pos > 0 && sc.runs[pos-1].b == b && !p.keep[keyOf(&sc.runs[pos-1])] {
+		old := sc.runs[pos-1]
+		limit := min(d.maxRun, old.n+d.rem-planned)
+		if limit > old.n {
+			if it, ok := p.newRun(b, old.s); ok {
+				dlSet = [2]bool{}
+				var last run
+				for it.r.n < limit && it.next() {
+					if it.r.n < old.n {
+						continue
+					}
+					if !fits(&it.r) {
+						break
+					}
+					last = it.r
+				}
+				if last.n > old.n {
+					consider(cand{r: last, extend: true, ok: true, span: last.e - old.e,
+						delta: last.val - old.val + p.bonusDelta(b, planned, planned-old.n+last.n)})
+				}
+			}
+		}
+	}
+	if nmax <= 0 {
+		return best
+	}
+	nmin := p.minFrames(b, planned)
+	if ns-base < d.minSetup+float64(nmin)*d.frame {
+		return best
+	}
+	if g := d.good[p.stepAt(base)]; int(g) >= p.n || float64(g)*p.step > ns-float64(nmin)*d.frame {
+		return best
+	}
+	lo, hi, ok := p.cadenceRange(sc, b, pos)
+	if !ok {
+		return best
+	}
+	prev := p.prevOf(sc, pos)
+	var tryN func(s float64, nmax int, checked bool) (run, bool)
+	try := func(s float64) (run, bool) { return tryN(s, nmax, false) }
+	tryN = func(s float64, nmax int, checked bool) (run, bool) {
+		if s < lo-1e-9 || s > hi+1e-9 {
+			return run{}, false
+		}
+		if !checked {
+			if _, ok := p.startOK(prev, b, base, s); !ok {
+				return run{}, false
+			}
+		}
+		it, ok := p.newRun(b, s)
+		if !ok {
+			return run{}, false
+		}
+		dlSet = [2]bool{}
+		var last run
+		for it.r.n < nmax && it.next() {
+			if !fits(&it.r) {
+				break
+			}
+			last = it.r
+		}
+		if last.n < nmin {
+			return last, false
+		}
+		c := cand{r: last, ok: true, span: last.e - base,
+			delta: last.val + p.bonusDelta(b, planned, planned+last.n)}
+		if mode == byTightness {
+			c.win = p.windowIn(b, last.s, base, ns)
+			if d.every > 0 && !math.IsInf(lo, -1) {
+				c.win = math.Min(c.win, hi-lo+(last.e-last.s))
+			}
+		}
+		consider(c)
+		return last, true
+	}
+
+	// As early as possible, in up to three windows.
+	from := math.Max(base, lo)
+	se := math.Inf(1)
+	for w := 0; w < 3; w++ {
+		s, _, ok := p.earliest(prev, b, base, from)
+		if !ok || s >= ns || s > hi+1e-9 {
+			break
+		}
+		if w == 0 {
+			se = s
+		}
+		r, ok := tryN(s, nmax, true)
+		if ok {
+			break
+		}
+		// The window was too short: try the next one.
+		end := float64(d.bad[p.stepAt(s)]) * p.step
+		if r.n > 0 {
+			end = math.Max(end, r.e)
+		}
+		from = end + p.step
+	}
+	if math.IsInf(se, 1) {
+		return best
+	}
+	// A chain of back-to-back runs from the earliest start that completes
+	// the block: the bonus only comes with the last run, which one-run
+	// insertions cannot see.
+	if d.rem-planned > nmax && d.every <= 0 {
+		p.chain(prev, b, base, se, planned, nb, ns, consider)
+	}
+	// As late as possible, and centred on the best quality.
+	dur := float64(nmax) * d.frame
+	if d.ditherEvery > 0 {
+		dur += float64((nmax-1)/d.ditherEvery) * d.dither
+	}
+	next := 0.0
+	if nb >= 0 {
+		next = p.setup(p.after(b, ns-dur, sideEast), nb, ns).total()
+	}
+	sl := p.floorQ(math.Min(hi, ns-next-dur))
+	if sl > se+p.quantum {
+		try(sl)
+	}
+	// Centred on the best quality, with as many frames as fit, the
+	// shortest useful run and half-way between (density-ranked repairs
+	// may prefer a short run at the best time).
+	tp := (float64(d.peak) + 0.5) * p.step
+	for _, n := range []int{nmax, nmin, (nmin + nmax) / 2} {
+		if n != nmax && (mode == byValue || n == nmax || n < nmin) {
+			continue // by value, the longest run always wins
+		}
+		l := float64(n) * d.frame
+		if sp := p.floorQ(tp - l/2); sp > se+p.quantum && sp+l < ns {
+			tryN(sp, n, false)
+		} else if n != nmax {
+			tryN(se, n, true)
+		}
+	}
+	return best
+}
+
+// windowIn is the length of block b's observable window around s, cut to
+// the gap [base, ns).
+func (p *Problem) windowIn(b int, s, base, ns float64) float64 {
+	d := &p.bd[b]
+	i := p.stepAt(s)
+	lo := p.stepAt(base)
+	j := i
+	for j > lo && int(d.bad[j-1]) != j-1 {
+		j--
+	}
+	start := math.Max(base, float64(j)*p.step)
+	end := math.Min(ns, float64(d.bad[i])*p.step)
+	return end - start
+}
+
+// chain builds runs of block b back to back from s (each as long as it
+// may be) until the block is complete, and offers them as one candidate
+// when the last one still fits before the next run (nb at ns).
+func (p *Problem) chain(prev prevState, b int, base, s float64, planned, nb int, ns float64, consider func(cand)) {
+	d := &p.bd[b]
+	var runs []run
+	total := 0.0
+	left := d.rem - planned
+	for guard := 0; left > 0 && guard < 64; guard++ {
+		if len(runs) > 0 {
+			last := &runs[len(runs)-1]
+			prev = p.after(b, last.s, last.side1)
+			base = p.ceilQ(last.e)
+			var ok bool
+			if s, _, ok = p.earliest(prev, b, base, base); !ok || s >= ns {
+				return
+			}
+			if float64(d.bad[p.stepAt(base)])*p.step < s {
+				return // the window ended: the chain would not be back to back
+			}
+		}
+		it, ok := p.newRun(b, s)
+		if !ok {
+			return
+		}
+		want := min(d.maxRun, left)
+		for it.r.n < want && it.next() {
+		}
+		if it.r.n < min(d.minRun, left) || it.r.n == 0 {
+			return
+		}
+		runs = append(runs, it.r)
+		total += it.r.val
+		left -= it.r.n
+	}
+	if left > 0 || len(runs) < 2 {
+		return
+	}
+	last := &runs[len(runs)-1]
+	if !p.fitsBefore(last, nb, ns) {
+		return
+	}
+	consider(cand{r: runs[0], more: runs[1:], ok: true, span: last.e - base,
+		delta: total + p.bonusDelta(b, planned, d.rem)})
+}
+
+// repairState holds the candidate insertions of every gap during one
+// repair.
+type repairState struct {
+	gaps  [][]cand
+	mode  int
+	noise float64
+	rng   *rand.Rand
+}
+
+// repair inserts runs greedily (best score first) until nothing fits.
+// dirty marks the gaps whose neighbours changed (every block is tried
+// there); in the other gaps only the blocks in changed are tried.
+func (p *Problem) repair(sc *sched, dirty []bool, changed []int, mode int, noise float64, rng *rand.Rand) {
+	rs := &repairState{gaps: make([][]cand, len(sc.runs)+1), mode: mode, noise: noise, rng: rng}
+	all := make([]int, len(p.Blocks))
+	for i := range all {
+		all[i] = i
+	}
+	for k := 0; k <= len(sc.runs); k++ {
+		if k < len(dirty) && dirty[k] {
+			rs.gaps[k] = p.gapCands(sc, k, all, rs)
+		} else if len(changed) > 0 {
+			rs.gaps[k] = p.gapCands(sc, k, changed, rs)
+		}
+	}
+	for guard := 0; guard < 100000; guard++ {
+		bk, bi := -1, -1
+		for k, cs := range rs.gaps {
+			for i := range cs {
+				if bk < 0 || cs[i].score > rs.gaps[bk][bi].score {
+					bk, bi = k, i
+				}
+			}
+		}
+		if bk < 0 {
+			return
+		}
+		c := rs.gaps[bk][bi]
+		fresh := p.bestInGap(sc, bk, c.r.b, mode)
+		if !fresh.ok {
+			rs.gaps[bk] = append(rs.gaps[bk][:bi], rs.gaps[bk][bi+1:]...)
+			continue
+		}
+		fresh.score = rs.noisy(fresh.score)
+		if fresh.score < c.score-1e-9 || fresh.r != c.r || len(fresh.more) != len(c.more) {
+			rs.gaps[bk][bi] = fresh
+			if fresh.score < c.score-1e-9 {
+				continue
+			}
+		}
+		parent := blocksOf(rs.gaps[bk])
+		if fresh.extend {
+			p.replace(sc, bk-1, fresh.r)
+			rs.gaps[bk] = p.gapCands(sc, bk, parent, rs)
+			continue
+		}
+		all := append([]run{fresh.r}, fresh.more...)
+		for i, r := range all {
+			p.insert(sc, bk+i, r)
+		}
+		// The gap splits into len(all)+1 gaps; the ones between the runs of
+		// a chain are too short for anything.
+		add := make([][]cand, len(all))
+		rs.gaps = append(rs.gaps[:bk], append(add, rs.gaps[bk:]...)...)
+		rs.gaps[bk] = p.gapCands(sc, bk, parent, rs)
+		rs.gaps[bk+len(all)] = p.gapCands(sc, bk+len(all), parent, rs)
+	}
+}
+
+func (rs *repairState) noisy(s float64) float64 {
+	if rs.noise <= 0 || rs.rng == nil {
+		return s
+	}
+	return s * (1 + rs.noise*(2*rs.rng.Float64()-1))
+}
+
+func blocksOf(cs []cand) []int {
+	out := make([]int, len(cs))
+	for i := range cs {
+		out[i] = cs[i].r.b
+	}
+	sort.Ints(out)
+	return out
+}
+
+// gapCands evaluates the given blocks in the gap before runs[k].
+func (p *Problem) gapCands(sc *sched, k int, blocks []int, rs *repairState) []cand {
+	var out []cand
+	for _, b := range blocks {
+		c := p.bestInGap(sc, k, b, rs.mode)
+		if c.ok && c.delta > 0 {
+			c.score = rs.noisy(c.score)
+			out = append(out, c)
+		}
+	}
+	return out
+}

@@ -1,0 +1,361 @@
+package scheduler
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"time"
+
+	"github.com/nightloom/nightloom/constraints"
+)
+
+// Overheads is a site's overhead model: every second a telescope spends not
+// exposing. Durations are wall-clock time; rates are degrees per second of
+// mechanical axis travel.
+type Overheads struct {
+	// Axis1RateDegS and Axis2RateDegS are the slew rates of the two mount
+	// axes: hour angle and declination for equatorial mounts, azimuth and
+	// altitude for alt-azimuth ones. A slew lasts as long as the slower
+	// axis needs (both move at once, at constant rate).
+	Axis1RateDegS, Axis2RateDegS float64
+	// Settle follows every slew, before the camera may expose.
+	Settle time.Duration
+	// Acquisition is the time to take a pointing frame and centre the
+	// target after a slew (and after a meridian flip, inside Flip).
+	Acquisition time.Duration
+	// FilterChange moves the filter wheel; it runs during the slew, so only
+	// its excess over slew + settle costs time.
+	FilterChange time.Duration
+	// Readout follows every exposure.
+	Readout time.Duration
+	// Dither moves the mount a few pixels and settles, after every
+	// Block.DitherEvery frames.
+	Dither time.Duration
+	// Focus is one focus run. It happens before a run, after the filter
+	// wheel and before acquisition: before the first run of a plan, on a
+	// filter change when FocusOnFilterChange is set, and before the first
+	// run that starts in each new FocusEvery period (counted from the start
+	// of the night's grid); FocusEvery = 0 turns the periodic focus off.
+	Focus               time.Duration
+	FocusEvery          time.Duration
+	FocusOnFilterChange bool
+	// Flip is the time a german equatorial mount needs to flip at the
+	// meridian inside a run: the slew to the other side of the pier,
+	// settling and re-acquisition.
+	Flip time.Duration
+}
+
+// DefaultOverheads returns values typical of a small robotic observatory
+// (common practice, no published source): 4 deg/s on both axes, 5 s settle,
+// 30 s acquisition, 10 s filter change, 4 s readout, 8 s dither, a 90 s
+// focus run every hour and on filter changes, and a 150 s meridian flip.
+func DefaultOverheads() Overheads {
+	return Overheads{Axis1RateDegS: 4, Axis2RateDegS: 4, Settle: 5 * time.Second,
+		Acquisition: 30 * time.Second, FilterChange: 10 * time.Second, Readout: 4 * time.Second,
+		Dither: 8 * time.Second, Focus: 90 * time.Second, FocusEvery: time.Hour,
+		FocusOnFilterChange: true, Flip: 150 * time.Second}
+}
+
+// Site is a telescope at a place: what constraint evaluation needs (the
+// embedded constraints.Site: observer, horizon, sky, solar-avoidance floor,
+// mount kind, flip zone, pixel scale) plus the overhead model.
+type Site struct {
+	*constraints.Site
+	Overheads
+}
+
+// Cadence asks for one run every Every, plus or minus Tolerance. Within one
+// night the runs of a cadence block form one series: consecutive runs start
+// between Every-Tolerance and Every+Tolerance apart. The series may begin
+// and end at any time; each run counts on its own.
+type Cadence struct {
+	Every, Tolerance time.Duration
+}
+
+// Block is one imaging block: a target observed through one filter in
+// frames of one exposure length, under a constraint set.
+type Block struct {
+	ID     string
+	Target *constraints.Target
+	Filter string
+	// Exposure is the length of one frame's exposure (readout is the
+	// site's).
+	Exposure time.Duration
+	// FramesWanted is the total asked for; FramesDone those already kept
+	// before this plan (frames of Input.Executed come on top).
+	FramesWanted, FramesDone int
+	// MinRun and MaxRun bound a run, in frames: MinRun is the shortest
+	// useful run (a shorter one is allowed only when it completes the
+	// block), MaxRun the longest (0 = no limit). MinRun 0 means 1.
+	MinRun, MaxRun int
+	// DitherEvery dithers after every so many frames within a run (0 =
+	// never).
+	DitherEvery int
+	// Priority weighs the block's exposure time in the objective (> 0).
+	Priority float64
+	// Set is the constraint set (nil = none beyond the site's floor).
+	Set *constraints.Set
+	// NonSidereal tracks a moving target at its own rate (no trailing
+	// limit).
+	NonSidereal bool
+	// Cadence, when set, asks for a regular series of runs.
+	Cadence *Cadence
+}
+
+// Closure is an interval when the site cannot observe (weather,
+// maintenance). No run and no overhead before a run may overlap it.
+type Closure struct {
+	Start, End time.Time
+	Note       string
+}
+
+// Options tune the solvers. A zero field takes the default given beside it.
+type Options struct {
+	// Quantum is the resolution of run starts: every run starts a whole
+	// number of quanta after the grid's start, and the mount is free again
+	// at the first quantum boundary after a run ends. Default 10 s.
+	Quantum time.Duration
+	// CompletionBonus is the bonus for completing a block, as a fraction of
+	// the block's full weighted exposure (see the package doc). Default
+	// 0.25; negative means no bonus.
+	CompletionBonus float64
+	// UrgencyWeight is lambda in the urgency factor (package doc). Default
+	// 1; negative means no urgency.
+	UrgencyWeight float64
+	// Seed makes the large-neighbourhood search reproducible.
+	Seed uint64
+	// Iterations of the large-neighbourhood search. Default 1500.
+	Iterations int
+	// Budget stops the search early when exceeded. Default 250 ms;
+	// negative means no time limit. The result is deterministic for a seed
+	// as long as Iterations, not Budget, ends the search.
+	Budget time.Duration
+	// Workers bounds the goroutines that compute tracks and visibility
+	// (default GOMAXPROCS).
+	Workers int
+	// LookaheadNights is N of the urgency lookahead. Default 14.
+	LookaheadNights int
+	// KeepBonus is the fraction of a run's value that Replan adds for
+	// keeping an assignment of the old plan unchanged. Default 0.1;
+	// negative means none.
+	KeepBonus float64
+}
+
+// Option defaults.
+const (
+	DefaultQuantum         = 10 * time.Second
+	DefaultCompletionBonus = 0.25
+	DefaultUrgencyWeight   = 1.0
+	DefaultIterations      = 1500
+	DefaultBudget          = 250 * time.Millisecond
+	DefaultLookaheadNights = 14
+	DefaultKeepBonus       = 0.1
+)
+
+func (o Options) withDefaults() Options {
+	if o.Quantum <= 0 {
+		o.Quantum = DefaultQuantum
+	}
+	switch {
+	case o.CompletionBonus == 0:
+		o.CompletionBonus = DefaultCompletionBonus
+	case o.CompletionBonus < 0:
+		o.CompletionBonus = 0
+	}
+	switch {
+	case o.UrgencyWeight == 0:
+		o.UrgencyWeight = DefaultUrgencyWeight
+	case o.UrgencyWeight < 0:
+		o.UrgencyWeight = 0
+	}
+	if o.Iterations <= 0 {
+		o.Iterations = DefaultIterations
+	}
+	if o.Budget == 0 {
+		o.Budget = DefaultBudget
+	}
+	switch {
+	case o.KeepBonus == 0:
+		o.KeepBonus = DefaultKeepBonus
+	case o.KeepBonus < 0:
+		o.KeepBonus = 0
+	}
+	if o.LookaheadNights <= 0 {
+		o.LookaheadNights = DefaultLookaheadNights
+	}
+	return o
+}
+
+// Errors.
+var (
+	ErrBlock     = errors.New("scheduler: invalid block")
+	ErrOverheads = errors.New("scheduler: invalid overhead model")
+	ErrInput     = errors.New("scheduler: invalid input")
+	ErrTooLarge  = errors.New("scheduler: instance too large for the exact solver")
+	ErrNoLP      = errors.New("scheduler: linear program failed")
+)
+
+// Validate checks the overhead model.
+func (o *Overheads) Validate() error {
+	if !(o.Axis1RateDegS > 0 && o.Axis2RateDegS > 0) || math.IsInf(o.Axis1RateDegS, 0) || math.IsInf(o.Axis2RateDegS, 0) {
+		return fmt.Errorf("%w: slew rates %v, %v deg/s must be positive", ErrOverheads, o.Axis1RateDegS, o.Axis2RateDegS)
+	}
+	for _, d := range []time.Duration{o.Settle, o.Acquisition, o.FilterChange, o.Readout, o.Dither, o.Focus, o.FocusEvery, o.Flip} {
+		if d < 0 {
+			return fmt.Errorf("%w: negative duration %v", ErrOverheads, d)
+		}
+	}
+	return nil
+}
+
+// Validate checks a block's own fields (the constraint set included).
+func (b *Block) Validate() error {
+	bad := func(field string, v any) error { return fmt.Errorf("%w %q: %s = %v", ErrBlock, b.ID, field, v) }
+	switch {
+	case b.Target == nil:
+		return bad("target", nil)
+	case b.Exposure <= 0:
+		return bad("exposure", b.Exposure)
+	case b.FramesWanted < 0:
+		return bad("frames_wanted", b.FramesWanted)
+	case b.FramesDone < 0:
+		return bad("frames_done", b.FramesDone)
+	case b.MinRun < 0:
+		return bad("min_run", b.MinRun)
+	case b.MaxRun < 0 || b.MaxRun != 0 && b.MaxRun < b.MinRun:
+		return bad("max_run", b.MaxRun)
+	case b.DitherEvery < 0:
+		return bad("dither_every", b.DitherEvery)
+	case !(b.Priority > 0) || math.IsInf(b.Priority, 0):
+		return bad("priority", b.Priority)
+	case b.Cadence != nil && (b.Cadence.Every <= 0 || b.Cadence.Tolerance < 0 || b.Cadence.Tolerance >= b.Cadence.Every):
+		return bad("cadence", *b.Cadence)
+	}
+	if b.Set != nil {
+		if err := b.Set.Validate(); err != nil {
+			return fmt.Errorf("%w %q: %w", ErrBlock, b.ID, err)
+		}
+	}
+	return nil
+}
+
+// Plan is one version of the schedule of one site over one interval.
+type Plan struct {
+	// Start and End bound the planned interval (Start is Input.From).
+	Start, End time.Time
+	// Assignments in time order; executed ones (Executed true) first.
+	Assignments []Assignment
+	// Unplaced lists every block with frames left that got no run.
+	Unplaced  []Unplaced
+	Objective Objective
+	// Solver names the algorithm that made the plan.
+	Solver string
+	// Iterations of improvement run (large-neighbourhood search).
+	Iterations int
+}
+
+// Assignment is one run of one block.
+type Assignment struct {
+	Block int    // index into Problem.Blocks
+	ID    string // the block's ID
+	// Start is the start of the first exposure, End the end of the last
+	// readout; the overheads before the run lie before Start.
+	Start, End time.Time
+	Frames     int
+	// FrameStarts holds the start of each exposure.
+	FrameStarts []time.Time
+	// Flip is the start of a meridian flip inside the run (zero if none);
+	// the flip comes before frame FlipBefore.
+	Flip       time.Time
+	FlipBefore int
+	Pointing   Pointing
+	Conditions Conditions
+	// Spent is the overhead spent between the previous run's end (or the
+	// plan start) and Start.
+	Spent    Spent
+	Executed bool
+	// Value is the run's weighted exposure (package doc), without the bonus.
+	Value float64
+}
+
+// Pointing is where the telescope points when a run starts.
+type Pointing struct {
+	HADeg, DecDeg    float64 // apparent hour angle (east negative) and declination of date
+	RADeg            float64 // apparent right ascension of date, [0, 360)
+	AltDeg, AzDeg    float64 // apparent altitude, azimuth from north through east
+	PierWest         bool    // german equatorial: the run starts on the west side (past the flip zone's start)
+	RateRAArcsecMin  float64 // moving targets: RA*cos(dec) rate, arcsec/min
+	RateDecArcsecMin float64
+}
+
+// Conditions are the predicted conditions of a run.
+type Conditions struct {
+	AirmassStart, AirmassEnd float64
+	MeanQuality              float64
+	MoonSepDeg, SunSepDeg    float64 // at the start
+	SkyMag                   float64 // V mag/arcsec^2 at the start (NaN without the sky model)
+}
+
+// Spent is an itemised overhead.
+type Spent struct {
+	Slew, Settle, FilterChange, Focus, Acquisition time.Duration
+	// Idle is the rest of the gap (waiting for a target or a quantum).
+	Idle time.Duration
+	// Flip is the meridian flip inside the run (plus any wait for the
+	// flip zone).
+	Flip time.Duration
+}
+
+// Objective is a plan's value and its parts (package doc). Units are
+// seconds of exposure weighted by priority, quality and urgency.
+type Objective struct {
+	// Value = Weighted + Bonus: what the solvers maximise (executed runs
+	// excluded).
+	Value    float64
+	Weighted float64
+	Bonus    float64
+	// Raw is sum priority * quality * exposure without urgency.
+	Raw float64
+	// ExposureS is the plain exposure time planned.
+	ExposureS float64
+	// Completed counts blocks whose frames are all done by the plan.
+	Completed int
+	// Executed is the weighted value of executed runs (not in Value).
+	Executed float64
+}
+
+// Why says why a block got no run.
+type Why uint8
+
+// Reasons for leaving a block out.
+const (
+	// NeverObservable: no step of the interval is observable; Unplaced.
+	// Constraint names the reason that rules out the most steps.
+	NeverObservable Why = iota + 1
+	// WindowTooShort: observable, but no window holds its shortest run.
+	WindowTooShort
+	// LostToHigherValue: a run would fit, but other blocks were worth more.
+	LostToHigherValue
+)
+
+func (w Why) String() string {
+	switch w {
+	case NeverObservable:
+		return "never observable"
+	case WindowTooShort:
+		return "window too short for the shortest useful run"
+	case LostToHigherValue:
+		return "lost to higher-value blocks"
+	}
+	return "unknown"
+}
+
+// Unplaced is a block with frames left that the plan does not observe.
+type Unplaced struct {
+	Block      int
+	ID         string
+	Why        Why
+	Constraint constraints.Reason // for NeverObservable
+	// LongestWindow is the longest observable window (for WindowTooShort).
+	LongestWindow time.Duration
+}

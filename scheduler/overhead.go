@@ -1,0 +1,197 @@
+package scheduler
+
+import (
+	"math"
+
+	"github.com/nightloom/nightloom/constraints"
+	"github.com/nightloom/nightloom/ephem"
+)
+
+// Pier sides of a german equatorial mount: sideEast while the target is
+// east of the flip zone (tracking toward the meridian), sideWest after the
+// flip. Other mounts are always "east".
+const (
+	sideEast int8 = 0
+	sideWest int8 = 1
+)
+
+// prevState is what the overheads before a run depend on: the run before
+// it (or the parked mount, block -1).
+type prevState struct {
+	block   int
+	side    int8
+	start   float64 // start of the previous run (focus period)
+	filter  int     // -1 unknown
+	focused bool    // a focus run has happened tonight
+}
+
+func (p *Problem) anchorState() prevState {
+	a := p.anchor
+	return prevState{block: a.block, side: a.side, start: a.start, filter: a.filter, focused: a.focused}
+}
+
+// setupParts is the itemised overhead before a run, in seconds.
+type setupParts struct {
+	slew, settle, filter, focus, acq float64
+	doFocus                          bool
+}
+
+func (s setupParts) total() float64 {
+	return math.Max(s.slew+s.settle, s.filter) + s.focus + s.acq
+}
+
+// haAt returns block b's hour angle (radians) at x seconds, linearly
+// interpolated between grid samples (unwrapped across +-pi, extrapolated at
+// the sidereal rate past the last sample).
+func (p *Problem) haAt(b int, x float64) float64 {
+	ha := p.Tracks[b].HA
+	f := x / p.step
+	i := int(math.Floor(f))
+	switch {
+	case i < 0:
+		return float64(ha[0]) + x*siderealRate
+	case i >= p.n-1:
+		return float64(ha[p.n-1]) + (x-float64(p.n-1)*p.step)*siderealRate
+	}
+	h0, h1 := float64(ha[i]), float64(ha[i+1])
+	d := h1 - h0
+	if d > math.Pi {
+		d -= 2 * math.Pi
+	} else if d < -math.Pi {
+		d += 2 * math.Pi
+	}
+	return h0 + d*(f-float64(i))
+}
+
+// siderealRate is the rate of hour angle of a fixed target, rad/s.
+const siderealRate = 7.2921159e-5
+
+// gem reports whether the site's mount flips at the meridian.
+func (p *Problem) gem() bool { return p.Site.Mount == constraints.GermanEquatorial }
+
+// startSide is the pier side of a run of block b starting at x.
+func (p *Problem) startSide(b int, x float64) int8 {
+	if p.gem() && p.haAt(b, x) >= p.flip0 {
+		return sideWest
+	}
+	return sideEast
+}
+
+// axes returns the mechanical axis positions (degrees) for block b at x on
+// the given side. For the previous block (tracked), a german mount on the
+// east side stops at the flip limit. b = -1 is the park position (the
+// zenith, east side).
+func (p *Problem) axes(b int, x float64, side int8, prev bool) (a1, a2 float64) {
+	if b >= 0 && p.ax != nil {
+		i := p.stepAt(x)
+		k := 4 * (b*p.n + i)
+		if prev && side == sideEast && p.gem() {
+			// The previous target may have passed the flip limit.
+			return p.axesOf(b, i, side, prev)
+		}
+		return float64(p.ax[k+2*int(side)]), float64(p.ax[k+2*int(side)+1])
+	}
+	return p.axesOf(b, p.stepAt(x), side, prev)
+}
+
+// axesOf computes axes for block b at step i (b = -1: park).
+func (p *Problem) axesOf(b, i int, side int8, prev bool) (a1, a2 float64) {
+	lat := p.Site.Observer.LatRad * ephem.Rad2Deg
+	var ha, dec, az, alt float64
+	if b < 0 {
+		ha, dec, az, alt = 0, lat, 0, 90
+	} else {
+		tr := p.Tracks[b]
+		ha, dec = float64(tr.HA[i])*ephem.Rad2Deg, float64(tr.Dec[i])*ephem.Rad2Deg
+		az, alt = float64(tr.Az[i])*ephem.Rad2Deg, float64(tr.Alt[i])*ephem.Rad2Deg
+	}
+	switch p.Site.Mount {
+	case constraints.AltAzimuth:
+		return az, alt
+	case constraints.ForkEquatorial:
+		return ha, dec
+	}
+	f0, f1 := p.Site.FlipStartHADeg, p.Site.FlipEndHADeg
+	if side == sideEast {
+		if prev && ha > f1 && ha < f1+180 {
+			ha = f1
+		}
+		for ha > f1 {
+			ha -= 360
+		}
+		for ha <= f1-360 {
+			ha += 360
+		}
+		return ha + 90, dec
+	}
+	for ha < f0 {
+		ha += 360
+	}
+	for ha >= f0+360 {
+		ha -= 360
+	}
+	return ha - 90, 180 - dec
+}
+
+// precomputeAxes fills p.ax: for every block and step the axes on both
+// sides (a1 east, a2 east, a1 west, a2 west), as float32.
+func (p *Problem) precomputeAxes() {
+	p.ax = make([]float32, 4*len(p.Blocks)*p.n)
+	for b := range p.Blocks {
+		for i := 0; i < p.n; i++ {
+			k := 4 * (b*p.n + i)
+			a1, a2 := p.axesOf(b, i, sideEast, false)
+			p.ax[k], p.ax[k+1] = float32(a1), float32(a2)
+			a1, a2 = p.axesOf(b, i, sideWest, false)
+			p.ax[k+2], p.ax[k+3] = float32(a1), float32(a2)
+		}
+	}
+}
+
+// slewTime is the time (s) to move from the previous pointing to block b on
+// the given side, both where they are at x. The slower axis wins; german
+// equatorial axes do not wrap (the counterweight must stay down), the
+// other mounts take the shorter way round on axis 1.
+func (p *Problem) slewTime(prev prevState, b int, side int8, x float64) float64 {
+	a1, a2 := p.axes(prev.block, x, prev.side, true)
+	c1, c2 := p.axes(b, x, side, false)
+	d1 := math.Abs(c1 - a1)
+	if p.Site.Mount != constraints.GermanEquatorial {
+		d1 = math.Abs(math.Remainder(c1-a1, 360))
+	}
+	d2 := math.Abs(c2 - a2)
+	return math.Max(d1/p.oh.r1, d2/p.oh.r2)
+}
+
+// focusPeriod is the periodic-focus period of x (seconds from the grid's
+// start).
+func (p *Problem) focusPeriod(x float64) int {
+	if p.oh.focusEvery <= 0 {
+		return 0
+	}
+	return int(math.Floor(x / p.oh.focusEvery))
+}
+
+// setup returns the overheads before a run of block b starting at x after
+// prev (see Overheads).
+func (p *Problem) setup(prev prevState, b int, x float64) setupParts {
+	d := &p.bd[b]
+	side := p.startSide(b, x)
+	s := setupParts{slew: p.slewTime(prev, b, side, x), settle: p.oh.settle, acq: p.oh.acq}
+	changed := prev.filter != d.filter
+	if changed {
+		s.filter = p.oh.filter
+	}
+	if p.oh.focus > 0 && (!prev.focused || changed && p.oh.focusOnFilter ||
+		p.oh.focusEvery > 0 && p.focusPeriod(prev.start) != p.focusPeriod(x)) {
+		s.doFocus = true
+		s.focus = p.oh.focus
+	}
+	return s
+}
+
+// after returns the state after a run of block b that started at s and
+// ended on side.
+func (p *Problem) after(b int, s float64, side int8) prevState {
+	return prevState{block: b, side: side, start: s, filter: p.bd[b].filter, focused: true}
+}

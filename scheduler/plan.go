@@ -1,0 +1,158 @@
+package scheduler
+
+import (
+	"math"
+	"time"
+
+	"github.com/nightloom/nightloom/constraints"
+	"github.com/nightloom/nightloom/ephem"
+)
+
+// toPlan turns a timeline into a Plan: executed runs first, then the
+// planned ones with their pointing, conditions and overheads, the unplaced
+// blocks with reasons, and the objective.
+func (p *Problem) toPlan(sc *sched, solver string, iters int) *Plan {
+	pl := &Plan{Start: p.From, End: p.Grid.End(), Solver: solver, Iterations: iters}
+	for _, a := range p.Executed {
+		a.Executed = true
+		pl.Assignments = append(pl.Assignments, a)
+	}
+	for k := range sc.runs {
+		pl.Assignments = append(pl.Assignments, p.assignment(sc, k))
+	}
+	pl.Objective = p.objective(sc)
+	for _, a := range p.Executed {
+		pl.Objective.Executed += a.Value
+	}
+	pl.Unplaced = p.unplaced(sc)
+	return pl
+}
+
+// objective sums a timeline's parts.
+func (p *Problem) objective(sc *sched) Objective {
+	var o Objective
+	for _, r := range sc.runs {
+		o.Weighted += r.val
+		o.Raw += r.val / p.Urgency[r.b]
+		o.ExposureS += float64(r.n) * p.bd[r.b].exp
+	}
+	for b, n := range sc.planned {
+		if d := &p.bd[b]; d.rem > 0 && n >= d.rem {
+			o.Bonus += d.bonus
+			o.Completed++
+		}
+	}
+	o.Value = o.Weighted + o.Bonus
+	return o
+}
+
+// assignment materialises runs[k].
+func (p *Problem) assignment(sc *sched, k int) Assignment {
+	r := &sc.runs[k]
+	b := r.b
+	blk := &p.Blocks[b]
+	tr := p.Tracks[b]
+	prev := p.prevOf(sc, k)
+	base := p.anchor.free
+	if k > 0 {
+		base = sc.runs[k-1].e
+	}
+	su := p.setup(prev, b, r.s)
+	a := Assignment{Block: b, ID: blk.ID, Start: p.abs(r.s), End: p.abs(r.e), Frames: r.n, Value: r.val}
+	for _, x := range p.frameStarts(r) {
+		a.FrameStarts = append(a.FrameStarts, p.abs(x))
+	}
+	if r.flipAt >= 0 {
+		a.Flip = p.abs(r.flipAt)
+		a.FlipBefore = r.flipBefore
+	}
+	i := p.stepAt(r.s)
+	j := p.stepAt(r.e - 1e-6)
+	lst := p.Grid.Local[i].LAST
+	ha := p.haAt(b, r.s)
+	a.Pointing = Pointing{HADeg: math.Remainder(ha, 2*math.Pi) * ephem.Rad2Deg, DecDeg: float64(tr.Dec[i]) * ephem.Rad2Deg,
+		RADeg:  ephem.NormAngle(lst-ha) * ephem.Rad2Deg,
+		AltDeg: float64(tr.Alt[i]) * ephem.Rad2Deg, AzDeg: float64(tr.Az[i]) * ephem.Rad2Deg,
+		PierWest: r.side0 == sideWest}
+	if tr.RateRA != nil {
+		a.Pointing.RateRAArcsecMin, a.Pointing.RateDecArcsecMin = float64(tr.RateRA[i]), float64(tr.RateDec[i])
+	}
+	qs := 0.0
+	for _, x := range p.frameStarts(r) {
+		qs += float64(p.bd[b].q[p.stepAt(x+p.bd[b].exp/2)])
+	}
+	a.Conditions = Conditions{AirmassStart: float64(tr.Airmass[i]), AirmassEnd: float64(tr.Airmass[j]),
+		MeanQuality: qs / float64(max(1, r.n)),
+		MoonSepDeg:  float64(tr.MoonSep[i]) * ephem.Rad2Deg, SunSepDeg: float64(tr.SunSep[i]) * ephem.Rad2Deg,
+		SkyMag: float64(tr.Sky[i])}
+	sec := func(x float64) time.Duration { return time.Duration(math.Round(x * 1e9)) }
+	a.Spent = Spent{Slew: sec(su.slew), Settle: sec(su.settle), FilterChange: sec(math.Max(0, su.filter-su.slew-su.settle)),
+		Focus: sec(su.focus), Acquisition: sec(su.acq)}
+	a.Spent.Idle = sec(math.Max(0, r.s-base-su.total()))
+	if r.flipAt >= 0 {
+		starts := p.frameStarts(r)
+		prevEnd := starts[r.flipBefore-1] + p.bd[b].frame
+		a.Spent.Flip = sec(starts[r.flipBefore] - prevEnd)
+	}
+	return a
+}
+
+// unplaced explains every block with frames left and no run.
+func (p *Problem) unplaced(sc *sched) []Unplaced {
+	var out []Unplaced
+	from := p.stepAt(p.tFrom)
+	for b := range p.Blocks {
+		d := &p.bd[b]
+		if d.rem <= 0 || sc.planned[b] > 0 {
+			continue
+		}
+		u := Unplaced{Block: b, ID: p.Blocks[b].ID}
+		v := p.Vis[b]
+		var count [constraints.NumReasons]int
+		open := 0
+		longest, cur := 0, 0
+		fits := false
+		for i := from; i < p.n; i++ {
+			r := v.Reason[i]
+			if r == constraints.OK && p.closed[i] {
+				r = constraints.ReasonClosure
+			}
+			count[r]++
+			if r != constraints.OK {
+				cur = 0
+				continue
+			}
+			open++
+			if cur == 0 && !fits {
+				// A window starts: does the shortest run fit in it?
+				s := p.ceilQ(math.Max(float64(i)*p.step, p.tFrom))
+				if it, ok := p.newRun(b, s); ok {
+					need := p.minFrames(b, 0)
+					for it.r.n < need && it.next() {
+					}
+					fits = it.r.n >= need
+				}
+			}
+			cur++
+			longest = max(longest, cur)
+		}
+		switch {
+		case open == 0:
+			u.Why = NeverObservable
+			best := constraints.OK
+			for r := constraints.Reason(1); int(r) < constraints.NumReasons; r++ {
+				if count[r] > count[best] || best == constraints.OK && count[r] > 0 {
+					best = r
+				}
+			}
+			u.Constraint = best
+		case !fits:
+			u.Why = WindowTooShort
+		default:
+			u.Why = LostToHigherValue
+		}
+		u.LongestWindow = time.Duration(float64(longest) * p.step * float64(time.Second))
+		out = append(out, u)
+	}
+	return out
+}
