@@ -58,6 +58,7 @@ type planJob struct {
 	closures   []*nightloomv1.Closure
 	kept       []*nightloomv1.Assignment // replans: runs kept from the old version, in time order
 	inProgress *nightloomv1.Assignment   // the kept run in progress at from (its frames are not reported yet)
+	previous   []*nightloomv1.Assignment // replans: the old version's runs after from, the starting timeline
 	args       planArgs
 	origin     nightloomv1.PlanOrigin
 }
@@ -181,7 +182,26 @@ func (schedulerPlanner) plan(ctx context.Context, job *planJob) (*nightloomv1.Pl
 	if err != nil {
 		return nil, fmt.Errorf("server: planning problem: %w", err)
 	}
-	sp := scheduler.Solve(prob)
+	var sp *scheduler.Plan
+	if len(job.previous) > 0 {
+		// A replan starts from the old version's later runs that are still
+		// valid and moves only what is worth moving (scheduler.Replan).
+		old := &scheduler.Plan{}
+		for _, a := range job.previous {
+			i, ok := index[a.GetBlockId()]
+			if !ok {
+				continue
+			}
+			old.Assignments = append(old.Assignments, scheduler.Assignment{Block: i, ID: a.GetBlockId(),
+				Start: a.GetStart().AsTime(), End: a.GetEnd().AsTime(), Frames: int(a.GetFrames())})
+		}
+		sp, _, err = scheduler.Replan(prob, old, scheduler.State{Now: from, Executed: executed, Closures: closures})
+		if err != nil {
+			return nil, fmt.Errorf("server: replan: %w", err)
+		}
+	} else {
+		sp = scheduler.Solve(prob)
+	}
 	// The solver's plan is checked against the model independently
 	// (overheads, frame layout, visibility and the solar-avoidance floor at
 	// every covered step) before it can reach a telescope: a plan that

@@ -508,11 +508,13 @@ func (s *Server) replanLocked(ctx context.Context, site *siteModel, old *nightlo
 	// What stays: runs over before `from`, and the one in progress unless
 	// a closure cuts it (then it ends at the closure with the frames that
 	// fit).
-	var kept []*nightloomv1.Assignment
+	var kept, previous []*nightloomv1.Assignment
 	var inProgress *nightloomv1.Assignment
 	for _, a := range old.GetAssignments() {
 		a0, a1 := a.GetPrepareStart().AsTime(), a.GetEnd().AsTime()
 		switch {
+		case !a0.Before(from):
+			previous = append(previous, a)
 		case !a1.After(from):
 			kept = append(kept, a)
 		case a0.Before(from):
@@ -544,7 +546,7 @@ func (s *Server) replanLocked(ctx context.Context, site *siteModel, old *nightlo
 		blocks = in
 	}
 	job := &planJob{site: site, start: start, end: end, from: from, night: old.GetNight(), closures: cls,
-		blocks: blocks, kept: kept, inProgress: inProgress, args: args, origin: origin}
+		blocks: blocks, kept: kept, inProgress: inProgress, previous: previous, args: args, origin: origin}
 	began := time.Now()
 	body, err := s.planner.plan(ctx, job)
 	s.metrics.observeSolve(strings.ToLower(strings.TrimPrefix(origin.String(), "PLAN_ORIGIN_")), time.Since(began))

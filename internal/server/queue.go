@@ -361,13 +361,6 @@ func (x *queueService) ReportProgress(ctx context.Context, req *nightloomv1.Repo
 		return nil, err
 	}
 	r := req.GetReport()
-	// frames_counted is what the report added: the store caps frames done
-	// at frames wanted, so it is the difference of frames done around the
-	// call, bounded by frames_kept.
-	before, err := x.s.db.GetBlock(ctx, r.GetBlockId())
-	if err != nil {
-		return nil, err
-	}
 	after, dup, err := x.s.db.ReportProgress(ctx, store.ProgressReport{
 		ReportID: r.GetReportId(), BlockID: r.GetBlockId(), FramesKept: int(r.GetFramesKept()),
 		Start: start, End: end, Outcome: r.GetOutcome().String(),
@@ -384,7 +377,14 @@ func (x *queueService) ReportProgress(ctx context.Context, req *nightloomv1.Repo
 	}
 	resp := &nightloomv1.ReportProgressResponse{Block: b, Duplicate: dup}
 	if !dup {
-		resp.FramesCounted = int32(max(0, min(after.FramesDone-before.FramesDone, int(r.GetFramesKept()))))
+		// frames_counted is what this report added, as the store recorded
+		// it in the same transaction (frames kept capped at frames wanted),
+		// so concurrent reports for one block are each counted right.
+		stored, err := x.s.db.GetProgressReport(ctx, r.GetReportId())
+		if err != nil {
+			return nil, err
+		}
+		resp.FramesCounted = int32(stored.FramesApplied)
 	}
 	return resp, nil
 }

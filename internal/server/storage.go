@@ -31,6 +31,7 @@ type Storage interface {
 	WithdrawBlock(ctx context.Context, id string) (store.Block, error)
 	QueueSize(ctx context.Context, siteID string) (int, error)
 	ReportProgress(ctx context.Context, r store.ProgressReport) (store.Block, bool, error)
+	GetProgressReport(ctx context.Context, reportID string) (store.ProgressReport, error)
 
 	CreatePlan(ctx context.Context, p store.Plan) (store.Plan, error)
 	GetPlan(ctx context.Context, id string) (store.Plan, error)

@@ -15,17 +15,20 @@ import (
 type ProgressReport struct {
 	ReportID, BlockID string
 	FramesKept        int
-	Start, End        time.Time
-	Outcome           string
-	ReceivedAt        time.Time
+	// FramesApplied is what the report added to the block's frames done
+	// (FramesKept capped at what was still wanted); set by the store.
+	FramesApplied int
+	Start, End    time.Time
+	Outcome       string
+	ReceivedAt    time.Time
 }
 
-const reportCols = `report_id, block_id, frames_kept, start_at, end_at, outcome, received_at`
+const reportCols = `report_id, block_id, frames_kept, frames_applied, start_at, end_at, outcome, received_at`
 
 func scanReport(s scanner) (ProgressReport, error) {
 	var x ProgressReport
 	var start, end, received int64
-	if err := s.Scan(&x.ReportID, &x.BlockID, &x.FramesKept, &start, &end, &x.Outcome, &received); err != nil {
+	if err := s.Scan(&x.ReportID, &x.BlockID, &x.FramesKept, &x.FramesApplied, &start, &end, &x.Outcome, &received); err != nil {
 		return ProgressReport{}, err
 	}
 	x.Start, x.End, x.ReceivedAt = decTime(start), decTime(end), decTime(received)
