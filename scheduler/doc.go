@@ -64,7 +64,8 @@
 //
 // (lambda = Options.UrgencyWeight, default 1): a block with many chances
 // left counts about once, one that must be done tonight twice. Without a
-// lookahead u_b = 1.
+// lookahead u_b = 1. Cadence blocks always have u_b = 1 + lambda: each of
+// their slots exists only tonight.
 //
 // # Algorithms
 //

@@ -298,7 +298,13 @@ func (p *Problem) prepare(closures []Closure, executed []Assignment, from time.T
 		}
 		d.minSetup = p.oh.settle + p.oh.acq
 		u := 1.0
-		if p.Chances != nil {
+		switch {
+		case b.Cadence != nil:
+			// Each cadence slot has one chance, tonight's: a missed point of
+			// a light curve is lost for good, so cadence runs count at the
+			// full urgency whatever later nights offer.
+			u = 1 + p.Options.UrgencyWeight
+		case p.Chances != nil:
 			u = urgency(p.Options.UrgencyWeight, d.rem, d.maxRun, p.Chances[i])
 		}
 		p.Urgency[i] = u
