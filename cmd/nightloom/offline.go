@@ -87,6 +87,9 @@ func readOrbit(path string) (*ephem.Conic, error) {
 	if err := dec.Decode(&f); err != nil {
 		return nil, flagError("orbit", "%s: %v", path, err)
 	}
+	if _, err := dec.Token(); err != io.EOF {
+		return nil, flagError("orbit", "%s: data after the JSON object", path)
+	}
 	need := []struct {
 		name string
 		v    *float64
