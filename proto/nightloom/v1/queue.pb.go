@@ -841,7 +841,7 @@ func (x *ListBlocksRequest) GetPageToken() string {
 // Response of ListBlocks.
 type ListBlocksResponse struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
-	// The blocks of this page, ordered by id.
+	// The blocks of this page, in creation order.
 	Blocks []*Block `protobuf:"bytes,1,rep,name=blocks,proto3" json:"blocks,omitempty"`
 	// Token for the next page; empty on the last page.
 	NextPageToken string `protobuf:"bytes,2,opt,name=next_page_token,json=nextPageToken,proto3" json:"next_page_token,omitempty"`

@@ -49,7 +49,7 @@ type QueueServiceClient interface {
 	// GetBlock returns one block by id, with its frames done and state.
 	// Errors: NOT_FOUND.
 	GetBlock(ctx context.Context, in *GetBlockRequest, opts ...grpc.CallOption) (*GetBlockResponse, error)
-	// ListBlocks returns blocks ordered by id, one page at a time, optionally
+	// ListBlocks returns blocks in creation order, one page at a time, optionally
 	// only those of one site, one target or some states.
 	ListBlocks(ctx context.Context, in *ListBlocksRequest, opts ...grpc.CallOption) (*ListBlocksResponse, error)
 	// WithdrawBlock takes an open block out of the queue (state
@@ -149,7 +149,7 @@ type QueueServiceServer interface {
 	// GetBlock returns one block by id, with its frames done and state.
 	// Errors: NOT_FOUND.
 	GetBlock(context.Context, *GetBlockRequest) (*GetBlockResponse, error)
-	// ListBlocks returns blocks ordered by id, one page at a time, optionally
+	// ListBlocks returns blocks in creation order, one page at a time, optionally
 	// only those of one site, one target or some states.
 	ListBlocks(context.Context, *ListBlocksRequest) (*ListBlocksResponse, error)
 	// WithdrawBlock takes an open block out of the queue (state

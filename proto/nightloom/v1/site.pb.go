@@ -565,7 +565,7 @@ type Site struct {
 	// and returned.
 	ZenithSkyBrightnessVMagArcsec2 *float64 `protobuf:"fixed64,11,opt,name=zenith_sky_brightness_v_mag_arcsec2,json=zenithSkyBrightnessVMagArcsec2,proto3,oneof" json:"zenith_sky_brightness_v_mag_arcsec2,omitempty"`
 	// Hard floor on the angle between any pointing and the Sun's centre, in
-	// deg, 5..180. Unset on create: 15, stored and returned. No block can ask
+	// deg, 5..90. Unset on create: 15, stored and returned. No block can ask
 	// for less.
 	SolarAvoidanceDeg *float64 `protobuf:"fixed64,12,opt,name=solar_avoidance_deg,json=solarAvoidanceDeg,proto3,oneof" json:"solar_avoidance_deg,omitempty"`
 	// The mount. Required.
@@ -964,7 +964,7 @@ func (x *ListSitesRequest) GetPageToken() string {
 // Response of ListSites.
 type ListSitesResponse struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
-	// The sites of this page, ordered by id.
+	// The sites of this page, in creation order.
 	Sites []*Site `protobuf:"bytes,1,rep,name=sites,proto3" json:"sites,omitempty"`
 	// Token for the next page; empty on the last page.
 	NextPageToken string `protobuf:"bytes,2,opt,name=next_page_token,json=nextPageToken,proto3" json:"next_page_token,omitempty"`

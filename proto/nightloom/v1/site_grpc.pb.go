@@ -41,7 +41,7 @@ type SiteServiceClient interface {
 	// GetSite returns one site by id.
 	// Errors: NOT_FOUND for an unknown id.
 	GetSite(ctx context.Context, in *GetSiteRequest, opts ...grpc.CallOption) (*GetSiteResponse, error)
-	// ListSites returns sites ordered by id, one page at a time.
+	// ListSites returns sites in creation order, one page at a time.
 	ListSites(ctx context.Context, in *ListSitesRequest, opts ...grpc.CallOption) (*ListSitesResponse, error)
 	// UpdateSite replaces the fields of a site named in update_mask. Plans
 	// already made are not changed; the next MakePlan or Replan uses the new
@@ -125,7 +125,7 @@ type SiteServiceServer interface {
 	// GetSite returns one site by id.
 	// Errors: NOT_FOUND for an unknown id.
 	GetSite(context.Context, *GetSiteRequest) (*GetSiteResponse, error)
-	// ListSites returns sites ordered by id, one page at a time.
+	// ListSites returns sites in creation order, one page at a time.
 	ListSites(context.Context, *ListSitesRequest) (*ListSitesResponse, error)
 	// UpdateSite replaces the fields of a site named in update_mask. Plans
 	// already made are not changed; the next MakePlan or Replan uses the new

@@ -788,7 +788,7 @@ func (x *ListTargetsRequest) GetPageToken() string {
 // Response of ListTargets.
 type ListTargetsResponse struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
-	// The targets of this page, ordered by id.
+	// The targets of this page, in creation order.
 	Targets []*Target `protobuf:"bytes,1,rep,name=targets,proto3" json:"targets,omitempty"`
 	// Token for the next page; empty on the last page.
 	NextPageToken string `protobuf:"bytes,2,opt,name=next_page_token,json=nextPageToken,proto3" json:"next_page_token,omitempty"`

@@ -43,7 +43,7 @@ type TargetServiceClient interface {
 	// GetTarget returns one target by id.
 	// Errors: NOT_FOUND for an unknown id.
 	GetTarget(ctx context.Context, in *GetTargetRequest, opts ...grpc.CallOption) (*GetTargetResponse, error)
-	// ListTargets returns targets ordered by id, one page at a time.
+	// ListTargets returns targets in creation order, one page at a time.
 	ListTargets(ctx context.Context, in *ListTargetsRequest, opts ...grpc.CallOption) (*ListTargetsResponse, error)
 	// UpdateTarget replaces the fields of a target named in update_mask. Plans
 	// already made are not changed.
@@ -126,7 +126,7 @@ type TargetServiceServer interface {
 	// GetTarget returns one target by id.
 	// Errors: NOT_FOUND for an unknown id.
 	GetTarget(context.Context, *GetTargetRequest) (*GetTargetResponse, error)
-	// ListTargets returns targets ordered by id, one page at a time.
+	// ListTargets returns targets in creation order, one page at a time.
 	ListTargets(context.Context, *ListTargetsRequest) (*ListTargetsResponse, error)
 	// UpdateTarget replaces the fields of a target named in update_mask. Plans
 	// already made are not changed.
