@@ -69,6 +69,9 @@ func (p *Problem) solve(start *sched, keepBonus float64, keep ...map[runKey]bool
 		p.repair(cur, dirty, nil, byValue, 0, nil)
 	} else {
 		cur = p.constructive()
+		if c := p.constructiveCadenceFirst(); c != nil && c.val > cur.val {
+			cur = c
+		}
 		if g := p.greedy(); g.val > cur.val {
 			cur = g
 			dirty := make([]bool, len(cur.runs)+1)
@@ -215,6 +218,31 @@ func roulette(w []float64, rng *rand.Rand) int {
 func (p *Problem) constructive() *sched {
 	sc := p.emptySched()
 	p.repair(sc, []bool{true}, nil, byValue, 0, nil)
+	return sc
+}
+
+// constructiveCadenceFirst lays out the cadence blocks' runs first, each
+// series through the night while the night is empty, then fills the rest
+// by value. Inserting by value alone lets long runs take the night before
+// the spaced runs of a light curve can find their slots; the solver keeps
+// whichever start is worth more. Nil when no block has a cadence.
+func (p *Problem) constructiveCadenceFirst() *sched {
+	var cad []int
+	for b := range p.Blocks {
+		if p.bd[b].every > 0 {
+			cad = append(cad, b)
+		}
+	}
+	if len(cad) == 0 {
+		return nil
+	}
+	sc := p.emptySched()
+	p.repair(sc, nil, cad, byValue, 0, nil)
+	dirty := make([]bool, len(sc.runs)+1)
+	for i := range dirty {
+		dirty[i] = true
+	}
+	p.repair(sc, dirty, nil, byValue, 0, nil)
 	return sc
 }
 
