@@ -92,7 +92,9 @@ func (h *Horizon) AltitudeAt(az float64) float64 {
 	case 1:
 		return h.alt[0]
 	}
-	az = ephem.NormAngle(az)
+	if az < 0 || az >= 2*math.Pi {
+		az = ephem.NormAngle(az) // tracks hold [0, 2pi) already
+	}
 	// First index with h.az[i] >= az: start from the bin's first point.
 	i := n
 	if h.first != nil {
