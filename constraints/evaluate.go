@@ -66,13 +66,16 @@ func (g *Grid) Evaluate(tr *Track, req Request) *Visibility {
 	k := site.Sky.ExtinctionV
 	dark := site.Sky.ZenithMag
 
-	// Trailing: the longest exposure whose trail stays under the limit.
-	trailing := false
-	if tr.Target.Moving() && !req.NonSidereal && site.PixelScaleArcsec > 0 {
+	// Trailing: a moving target tracked at the sidereal rate may move at
+	// most px pixels during one exposure.
+	trailing := tr.Target.Moving() && !req.NonSidereal && site.PixelScaleArcsec > 0
+	var maxRateOK float64 // arcsec/min that one exposure tolerates
+	if trailing {
 		px := c.MaxTrailPixels
 		if px == 0 {
 			px = DefaultMaxTrailPixels
 		}
+		maxRateOK = px * site.PixelScaleArcsec / req.Exposure.Minutes()
 		maxRate := 0.0
 		for i := range tr.RateRA {
 			maxRate = math.Max(maxRate, math.Hypot(float64(tr.RateRA[i]), float64(tr.RateDec[i])))
@@ -81,12 +84,6 @@ func (g *Grid) Evaluate(tr *Track, req Request) *Visibility {
 			limit := px * site.PixelScaleArcsec / (maxRate / 60) // seconds
 			v.TrailLimit = time.Duration(limit * float64(time.Second))
 		}
-		trailing = true
-	}
-	exposureS := req.Exposure.Seconds()
-	pxTrail := c.MaxTrailPixels
-	if pxTrail == 0 {
-		pxTrail = DefaultMaxTrailPixels
 	}
 
 	for i := 0; i < n; i++ {
@@ -124,7 +121,7 @@ func (g *Grid) Evaluate(tr *Track, req Request) *Visibility {
 			r = ReasonSkyBrightness
 		case c.FaintestMag != 0 && tr.Mag != nil && !(float64(tr.Mag[i]) <= c.FaintestMag):
 			r = ReasonTooFaint
-		case trailing && exposureS*math.Hypot(float64(tr.RateRA[i]), float64(tr.RateDec[i]))/60 > pxTrail*site.PixelScaleArcsec:
+		case trailing && math.Hypot(float64(tr.RateRA[i]), float64(tr.RateDec[i])) > maxRateOK:
 			r = ReasonTrailing
 		case checkFlip && float64(tr.HA[i]) >= flip0 && float64(tr.HA[i]) <= flip1:
 			r = ReasonFlipZone

@@ -1,6 +1,7 @@
 package ephem
 
 import (
+	"math"
 	"testing"
 	"time"
 )
@@ -50,11 +51,13 @@ func BenchmarkStarHorizontal(b *testing.B) {
 			sinkFloat += alt + az
 		}
 	})
-	b.Run("alt-az-ha-refraction", func(b *testing.B) {
+	// The grid's path: hour-angle frame, horizon, tabulated refraction.
+	b.Run("ha-frame-horizon-refraction", func(b *testing.B) {
 		b.ReportAllocs()
 		for i := 0; b.Loop(); i++ {
-			_, alt, az, ha := l.StarView(stars[i%len(stars)])
-			sinkFloat += o.Refraction(alt) + az + ha
+			h := o.HADecToHorizon(l.StarHADec(stars[i%len(stars)]))
+			alt := math.Asin(h[2])
+			sinkFloat += o.RefractionFast(alt) + math.Atan2(h[1], h[0])
 		}
 	})
 }

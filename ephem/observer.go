@@ -213,6 +213,3 @@ var kyTable = func() (t [90*kyPerDeg + 2]float64) {
 func (o *Observer) HADecToHorizon(hd Vec3) Vec3 {
 	return Vec3{-o.sinLat*hd[0] + o.cosLat*hd[2], hd[1], o.cosLat*hd[0] + o.sinLat*hd[2]}
 }
-
-// SinCosLat returns the sine and cosine of the geodetic latitude.
-func (o *Observer) SinCosLat() (float64, float64) { return o.sinLat, o.cosLat }

@@ -49,19 +49,8 @@ func (l *Local) OrbitPlace(c *Conic) (p Place, topo, geo View) {
 	s := l.Snap
 	var zero Vec3
 	geo = c.Observe(s.TT, s.EarthPos, s.EarthVel, zero, zero)
-	topo = c.Observe(s.TT, s.EarthPos, s.EarthVel, l.ObsPosAU, l.ObsVelAU)
-	u := s.NPB.MulVec(Aberrate(topo.Astrometric.Unit(), l.beta))
+	u, topo := l.OrbitView(c)
 	return l.place(u), topo, geo
-}
-
-// StarView is the grid's fast path for a fixed target with GCRS unit
-// direction u: the apparent true-of-date unit direction, the geometric
-// altitude and azimuth, and the local hour angle, in one pass.
-func (l *Local) StarView(u Vec3) (ofDate Vec3, alt, az, ha float64) {
-	ofDate = l.Snap.NPB.MulVec(Aberrate(u, l.beta)).Unit()
-	alt, az = horizontal(l.OfDateToHorizon.MulVec(ofDate))
-	ha = math.Remainder(l.LAST-math.Atan2(ofDate[1], ofDate[0]), 2*math.Pi)
-	return ofDate, alt, az, ha
 }
 
 // StarHADec returns a fixed target's apparent direction (GCRS unit vector u

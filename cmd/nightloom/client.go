@@ -222,6 +222,26 @@ func codeName(c codes.Code) string {
 }
 
 // callErr wraps the error of one RPC; nil stays nil.
+// allPages calls a List RPC page after page, from an empty page token until
+// the server returns none, and gathers the items; call names the RPC in
+// errors.
+func allPages[T any](a *api, call string, page func(ctx context.Context, token string) ([]T, string, error)) ([]T, error) {
+	var out []T
+	token := ""
+	for {
+		ctx, cancel := a.ctx()
+		items, next, err := page(ctx, token)
+		cancel()
+		if err != nil {
+			return nil, a.callErr(call, err)
+		}
+		out = append(out, items...)
+		if token = next; token == "" {
+			return out, nil
+		}
+	}
+}
+
 func (a *api) callErr(call string, err error) error {
 	if err == nil {
 		return nil

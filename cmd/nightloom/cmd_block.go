@@ -3,6 +3,7 @@ package main
 // `nightloom block ...` (the queue) and `nightloom progress report`.
 
 import (
+	"context"
 	"crypto/rand"
 	"encoding/hex"
 	"fmt"
@@ -239,20 +240,12 @@ func runBlockList(args []string, stdout, stderr io.Writer) error {
 }
 
 func (a *api) allBlocks(req *pb.ListBlocksRequest) ([]*pb.Block, error) {
-	var out []*pb.Block
 	req = proto.Clone(req).(*pb.ListBlocksRequest)
-	for {
-		ctx, cancel := a.ctx()
+	return allPages(a, "ListBlocks", func(ctx context.Context, token string) ([]*pb.Block, string, error) {
+		req.PageToken = token
 		resp, err := a.queue.ListBlocks(ctx, req)
-		cancel()
-		if err != nil {
-			return nil, a.callErr("ListBlocks", err)
-		}
-		out = append(out, resp.GetBlocks()...)
-		if req.PageToken = resp.GetNextPageToken(); req.PageToken == "" {
-			return out, nil
-		}
-	}
+		return resp.GetBlocks(), resp.GetNextPageToken(), err
+	})
 }
 
 func runBlockWithdraw(args []string, stdout, stderr io.Writer) error {

@@ -254,18 +254,13 @@ func runPlanList(args []string, stdout, stderr io.Writer) error {
 		return err
 	}
 	defer a.Close()
-	var plans []*pb.Plan
-	for {
-		ctx, cancel := a.ctx()
+	plans, err := allPages(a, "ListPlans", func(ctx context.Context, token string) ([]*pb.Plan, string, error) {
+		req.PageToken = token
 		resp, err := a.plans.ListPlans(ctx, req)
-		cancel()
-		if err != nil {
-			return a.callErr("ListPlans", err)
-		}
-		plans = append(plans, resp.GetPlans()...)
-		if req.PageToken = resp.GetNextPageToken(); req.PageToken == "" {
-			break
-		}
+		return resp.GetPlans(), resp.GetNextPageToken(), err
+	})
+	if err != nil {
+		return err
 	}
 	if r.conn.json {
 		return writeJSON(stdout, &pb.ListPlansResponse{Plans: plans})

@@ -3,6 +3,7 @@ package main
 // `nightloom site ...`: create, get, list, update and delete sites.
 
 import (
+	"context"
 	"flag"
 	"fmt"
 	"io"
@@ -126,20 +127,10 @@ func runSiteList(args []string, stdout, stderr io.Writer) error {
 }
 
 func (a *api) allSites(pageSize int32) ([]*pb.Site, error) {
-	var out []*pb.Site
-	token := ""
-	for {
-		ctx, cancel := a.ctx()
+	return allPages(a, "ListSites", func(ctx context.Context, token string) ([]*pb.Site, string, error) {
 		resp, err := a.sites.ListSites(ctx, &pb.ListSitesRequest{PageSize: pageSize, PageToken: token})
-		cancel()
-		if err != nil {
-			return nil, a.callErr("ListSites", err)
-		}
-		out = append(out, resp.GetSites()...)
-		if token = resp.GetNextPageToken(); token == "" {
-			return out, nil
-		}
-	}
+		return resp.GetSites(), resp.GetNextPageToken(), err
+	})
 }
 
 func runSiteUpdate(args []string, stdout, stderr io.Writer) error {

@@ -3,6 +3,7 @@ package main
 // `nightloom target ...`: fixed (ICRS) and orbit targets.
 
 import (
+	"context"
 	"errors"
 	"flag"
 	"fmt"
@@ -170,20 +171,10 @@ func runTargetList(args []string, stdout, stderr io.Writer) error {
 }
 
 func (a *api) allTargets(pageSize int32) ([]*pb.Target, error) {
-	var out []*pb.Target
-	token := ""
-	for {
-		ctx, cancel := a.ctx()
+	return allPages(a, "ListTargets", func(ctx context.Context, token string) ([]*pb.Target, string, error) {
 		resp, err := a.targets.ListTargets(ctx, &pb.ListTargetsRequest{PageSize: pageSize, PageToken: token})
-		cancel()
-		if err != nil {
-			return nil, a.callErr("ListTargets", err)
-		}
-		out = append(out, resp.GetTargets()...)
-		if token = resp.GetNextPageToken(); token == "" {
-			return out, nil
-		}
-	}
+		return resp.GetTargets(), resp.GetNextPageToken(), err
+	})
 }
 
 func runTargetUpdate(args []string, stdout, stderr io.Writer) error {
