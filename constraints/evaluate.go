@@ -39,52 +39,14 @@ func (v *Visibility) Feasible(i int) bool { return v.Reason[i] == OK }
 func (g *Grid) Evaluate(tr *Track, req Request) *Visibility {
 	n := g.N
 	v := &Visibility{Reason: make([]Reason, n), Quality: make([]float32, n)}
-	c := req.Set
-	if c == nil {
-		c = &Set{}
-	}
-	site := g.Site
-	floor := math.Max(site.SolarFloorDeg, MinSolarFloorDeg) * ephem.Deg2Rad
-	minElong := c.MinSolarElongDeg * ephem.Deg2Rad
-	minAlt := c.MinAltDeg * ephem.Deg2Rad
-	maxAlt := math.Inf(1)
-	if c.MaxAltDeg != 0 {
-		maxAlt = c.MaxAltDeg * ephem.Deg2Rad
-	}
-	maxX := math.Inf(1)
-	if c.MaxAirmass != 0 {
-		maxX = c.MaxAirmass
-	}
-	maxHA := math.Inf(1)
-	if c.MaxHourAngleDeg != 0 {
-		maxHA = c.MaxHourAngleDeg * ephem.Deg2Rad
-	}
-	minMoon := c.MinMoonSepDeg * ephem.Deg2Rad
-	flip0, flip1 := site.FlipStartHADeg*ephem.Deg2Rad, site.FlipEndHADeg*ephem.Deg2Rad
-	checkFlip := c.AvoidFlipZone && site.Mount == GermanEquatorial
+	l := newLimits(g, tr, req)
+	c, site := l.set, g.Site
+	floor, minElong, minAlt, maxAlt, maxX, maxHA, minMoon := l.floor, l.minElong, l.minAlt, l.maxAlt, l.maxX, l.maxHA, l.minMoon
+	flip0, flip1, checkFlip, trailing, maxRateOK := l.flip0, l.flip1, l.checkFlip, l.trailing, l.maxRateOK
 	useSky := g.sky != nil
 	k := site.Sky.ExtinctionV
 	dark := site.Sky.ZenithMag
-
-	// Trailing: a moving target tracked at the sidereal rate may move at
-	// most px pixels during one exposure.
-	trailing := tr.Target.Moving() && !req.NonSidereal && site.PixelScaleArcsec > 0
-	var maxRateOK float64 // arcsec/min that one exposure tolerates
-	if trailing {
-		px := c.MaxTrailPixels
-		if px == 0 {
-			px = DefaultMaxTrailPixels
-		}
-		maxRateOK = px * site.PixelScaleArcsec / req.Exposure.Minutes()
-		maxRate := 0.0
-		for i := range tr.RateRA {
-			maxRate = math.Max(maxRate, math.Hypot(float64(tr.RateRA[i]), float64(tr.RateDec[i])))
-		}
-		if maxRate > 0 {
-			limit := px * site.PixelScaleArcsec / (maxRate / 60) // seconds
-			v.TrailLimit = time.Duration(limit * float64(time.Second))
-		}
-	}
+	v.TrailLimit = l.trailLimit
 
 	for i := 0; i < n; i++ {
 		r := OK
@@ -217,4 +179,60 @@ func (v *Visibility) Dominant() Reason {
 		}
 	}
 	return best
+}
+
+// limits are a request's thresholds in radians (Inf where none), shared by
+// Evaluate and Intervals.
+type limits struct {
+	set                                          *Set
+	floor, minElong, minAlt, maxAlt, maxX, maxHA float64
+	minMoon, flip0, flip1                        float64
+	checkFlip, trailing                          bool
+	maxRateOK                                    float64 // arcsec/min one exposure tolerates
+	trailLimit                                   time.Duration
+}
+
+func newLimits(g *Grid, tr *Track, req Request) limits {
+	c := req.Set
+	if c == nil {
+		c = &Set{}
+	}
+	site := g.Site
+	l := limits{set: c,
+		floor:    math.Max(site.SolarFloorDeg, MinSolarFloorDeg) * ephem.Deg2Rad,
+		minElong: c.MinSolarElongDeg * ephem.Deg2Rad,
+		minAlt:   c.MinAltDeg * ephem.Deg2Rad,
+		maxAlt:   math.Inf(1), maxX: math.Inf(1), maxHA: math.Inf(1),
+		minMoon: c.MinMoonSepDeg * ephem.Deg2Rad,
+		flip0:   site.FlipStartHADeg * ephem.Deg2Rad, flip1: site.FlipEndHADeg * ephem.Deg2Rad,
+		checkFlip: c.AvoidFlipZone && site.Mount == GermanEquatorial,
+	}
+	if c.MaxAltDeg != 0 {
+		l.maxAlt = c.MaxAltDeg * ephem.Deg2Rad
+	}
+	if c.MaxAirmass != 0 {
+		l.maxX = c.MaxAirmass
+	}
+	if c.MaxHourAngleDeg != 0 {
+		l.maxHA = c.MaxHourAngleDeg * ephem.Deg2Rad
+	}
+	// Trailing: a moving target tracked at the sidereal rate may move at
+	// most px pixels during one exposure.
+	l.trailing = tr.Target.Moving() && !req.NonSidereal && site.PixelScaleArcsec > 0
+	if l.trailing {
+		px := c.MaxTrailPixels
+		if px == 0 {
+			px = DefaultMaxTrailPixels
+		}
+		l.maxRateOK = px * site.PixelScaleArcsec / req.Exposure.Minutes()
+		maxRate := 0.0
+		for i := range tr.RateRA {
+			maxRate = math.Max(maxRate, math.Hypot(float64(tr.RateRA[i]), float64(tr.RateDec[i])))
+		}
+		if maxRate > 0 {
+			limit := px * site.PixelScaleArcsec / (maxRate / 60) // seconds
+			l.trailLimit = time.Duration(limit * float64(time.Second))
+		}
+	}
+	return l
 }

@@ -1,0 +1,417 @@
+package constraints
+
+import (
+	"math"
+	"time"
+
+	"github.com/nightloom/nightloom/ephem"
+)
+
+// Interval is a span [Start, End) during which a block's constraints hold
+// at every instant (see Grid.Intervals).
+type Interval struct {
+	Start, End time.Time
+}
+
+// EdgeResolution is how close Grid.Intervals brings an edge to the instant
+// where a constraint starts to fail: the interval's end is an instant
+// checked observable, less than EdgeResolution before one checked not.
+const EdgeResolution = time.Second
+
+// Intervals returns the block's observable time as continuous intervals:
+// every instant of each interval satisfies the request, not only the grid's
+// samples. v must be g.Evaluate(tr, req).
+//
+// Method. Each window of observable samples is widened or narrowed to the
+// true crossings on either side by bisection on a direct evaluation at the
+// instant (a one-step grid: Sun, Moon and the target computed afresh), to
+// EdgeResolution. Between two observable instants a and b the constraints
+// are then certified, not assumed: every constraint c has a margin m_c
+// (how far it is from failing) and a bound L_c on how fast that margin can
+// change, and with tau_c = m_c / L_c (seconds of guaranteed slack)
+//
+//	tau_c(a) + tau_c(b) >= b - a for every c
+//
+// proves that no c fails inside [a, b] (a Lipschitz argument: m_c(t) >=
+// max(m_c(a) - L_c (t-a), m_c(b) - L_c (b-t)) > 0). Where the certificate
+// fails the interval is halved and its midpoint evaluated directly; a
+// failing midpoint splits the interval at crossings found by bisection.
+// Intervals shorter than EdgeResolution between two observable instants
+// are accepted.
+//
+// The bounds L_c: the altitude of a fixed target changes at most at
+// omega cos(latitude) (omega the sidereal rate), times 1.5 for refraction
+// near the horizon; azimuth at omega (|sin lat| + |cos lat| tan alt); the
+// hour angle at omega; the Sun's separation from a fixed target at the
+// Sun's own motion (under 1.02 deg/day, 2.1e-7 rad/s, plus diurnal
+// parallax: 2.5e-7 rad/s is used), which makes the solar-avoidance floor
+// provably kept between samples; the Moon's separation at 5e-6 rad/s
+// (its motion, up to 3.1e-6 rad/s, plus its diurnal parallax, 1.3e-6
+// rad/s); the Moon's illuminated fraction at 2e-6 per second; the Sun's
+// altitude (darkness) at omega cos(latitude). Moving targets add twice
+// their largest angular rate on the grid to every angle's bound. The sky
+// brightness, the target's magnitude and its rate (trailing) have no
+// closed-form bound: theirs is estimated as three times the largest change
+// between neighbouring samples plus a floor, which is conservative for the
+// smooth models used but not a proof.
+func (g *Grid) Intervals(tr *Track, req Request, v *Visibility) []Interval {
+	c := newCertifier(g, tr, req)
+	var xs []float64 // pairs of seconds from the grid's start
+	h := g.Step.Seconds()
+	for _, w := range v.Windows {
+		// The window's first and last samples are observable.
+		a, ta := float64(w.Start)*h, c.sample(w.Start)
+		if w.Start > 0 {
+			a, ta = c.bisect(a, ta, a-h)
+		}
+		var b float64
+		var tb taus
+		if w.End < g.N {
+			b, tb = c.bisect(float64(w.End-1)*h, c.sample(w.End-1), float64(w.End)*h)
+		} else {
+			b = float64(g.N) * h
+			var r Reason
+			if r, tb = c.point(b); r != OK {
+				b, tb = c.bisect(float64(w.End-1)*h, c.sample(w.End-1), b)
+			}
+		}
+		// Checkpoints: a, the samples strictly inside (a, b), b.
+		px, pt := a, ta
+		for i := w.Start; i < w.End; i++ {
+			x := float64(i) * h
+			if x <= px || x >= b {
+				continue
+			}
+			t := c.sample(i)
+			xs = c.segment(xs, px, pt, x, t)
+			px, pt = x, t
+		}
+		if b > px {
+			xs = c.segment(xs, px, pt, b, tb)
+		} else if b == px && len(xs)%2 == 0 {
+			xs = append(xs, px, px) // a single observable instant: dropped below
+		}
+	}
+	out := make([]Interval, 0, len(xs)/2)
+	for k := 0; k+1 < len(xs); k += 2 {
+		if xs[k+1] <= xs[k] {
+			continue
+		}
+		out = append(out, Interval{Start: g.at(xs[k]), End: g.at(xs[k+1])})
+	}
+	return out
+}
+
+// at converts seconds from the grid's start to an instant (nanoseconds).
+func (g *Grid) at(x float64) time.Time {
+	return g.Start.Add(time.Duration(math.Round(x * 1e9)))
+}
+
+// Constraint margins, in seconds of guaranteed slack (tau in Intervals).
+const (
+	tauDate = iota
+	tauClock
+	tauDark
+	tauHorizon
+	tauMinAlt
+	tauMaxAlt
+	tauAirmass
+	tauHA
+	tauFloor
+	tauElong
+	tauMoonSep
+	tauMoonIllum
+	tauSky
+	tauMag
+	tauTrail
+	tauFlip
+	numTau
+)
+
+type taus [numTau]float64
+
+// certifier holds one block's limits and rate bounds for Intervals.
+type certifier struct {
+	g   *Grid
+	tr  *Track
+	req Request
+	lim limits
+
+	h                   float64 // grid step, seconds
+	altRate, haRate     float64 // rad/s
+	own                 float64 // the target's own angular rate bound, rad/s
+	sunSepRate, moonSep float64 // rad/s
+	moonAltRate         float64
+	sunAltRate          float64
+	slope               float64 // steepest horizon-profile slope, rad/rad
+	sinLat, cosLat      float64
+	altX                float64 // apparent altitude of the airmass limit, rad (-Inf: none)
+	darkThr             float64 // Sun altitude that the darkness asks for, rad
+	dayFrom, dayTo      time.Time
+}
+
+// Rate bounds (see Intervals), per second.
+const (
+	omegaSidereal    = 7.2921159e-5 // rad/s
+	refractionFactor = 1.5          // d(apparent)/d(geometric) altitude near the horizon, bounded
+	sunMotionBound   = 2.5e-7       // rad/s
+	moonMotionBound  = 5e-6         // rad/s
+	illumRateBound   = 2e-6         // illuminated fraction per second
+	sepSlack         = 5e-7         // rad: float32 tracks and the hourly apparent place
+	altSlack         = 5e-7         // rad
+)
+
+func newCertifier(g *Grid, tr *Track, req Request) *certifier {
+	c := &certifier{g: g, tr: tr, req: req, lim: newLimits(g, tr, req), h: g.Step.Seconds()}
+	lat := g.Site.Observer.LatRad
+	c.sinLat, c.cosLat = math.Abs(math.Sin(lat)), math.Abs(math.Cos(lat))
+	if tr.Target.Moving() {
+		m := 0.0
+		for i := range tr.RateRA {
+			if r := math.Hypot(float64(tr.RateRA[i]), float64(tr.RateDec[i])); r > m {
+				m = r
+			}
+		}
+		c.own = 2*m*ephem.Deg2Rad/3600/60 + 1e-9
+	}
+	c.altRate = refractionFactor*(omegaSidereal*c.cosLat+c.own) + 1e-9
+	c.haRate = omegaSidereal*1.003 + c.own*50 // 1/cos(dec) <= 50 off the poles' last 1.2 deg
+	c.sunSepRate = sunMotionBound + c.own
+	c.moonSep = moonMotionBound + c.own
+	c.moonAltRate = refractionFactor * (omegaSidereal*c.cosLat + moonMotionBound)
+	c.sunAltRate = omegaSidereal*c.cosLat + sunMotionBound
+	c.slope = g.Site.Horizon.maxSlope()
+	c.altX = math.Inf(-1)
+	if x := c.lim.maxX; !math.IsInf(x, 1) {
+		c.altX = altitudeOfAirmass(x)
+	}
+	set := c.lim.set
+	c.darkThr = [...]float64{ephem.SunriseAltDeg, ephem.CivilAltDeg, ephem.NauticalAltDeg, ephem.AstronomicalAltDeg}[set.Darkness] * ephem.Deg2Rad
+	loc := g.Site.Location
+	if loc == nil {
+		loc = time.UTC
+	}
+	if !set.Earliest.IsZero() {
+		y, m, d := set.Earliest.Date()
+		c.dayFrom = time.Date(y, m, d, 0, 0, 0, 0, loc)
+	}
+	if !set.Latest.IsZero() {
+		y, m, d := set.Latest.Date()
+		c.dayTo = time.Date(y, m, d+1, 0, 0, 0, 0, loc)
+	}
+	return c
+}
+
+// altitudeOfAirmass inverts Kasten & Young's airmass (ephem.Airmass) by
+// bisection: the apparent altitude (rad) where the airmass is x >= 1.
+func altitudeOfAirmass(x float64) float64 {
+	lo, hi := 0.0, math.Pi/2
+	for k := 0; k < 60; k++ {
+		m := (lo + hi) / 2
+		if ephem.Airmass(m) > x {
+			lo = m
+		} else {
+			hi = m
+		}
+	}
+	return hi
+}
+
+// maxSlope is the steepest slope of the profile between neighbouring
+// points (wrapping through north), rad of altitude per rad of azimuth.
+func (h *Horizon) maxSlope() float64 {
+	n := len(h.az)
+	s := 0.0
+	for i := 0; i < n && n > 1; i++ {
+		j := (i + 1) % n
+		daz := h.az[j] - h.az[i]
+		if j == 0 {
+			daz += 2 * math.Pi
+		}
+		if daz > 0 {
+			s = math.Max(s, math.Abs(h.alt[j]-h.alt[i])/daz)
+		}
+	}
+	return s
+}
+
+// sample is the slack at grid step i.
+func (c *certifier) sample(i int) taus { return c.taus(c.g, c.tr, i, c.g.Time(i)) }
+
+// point evaluates the request directly at x seconds from the grid's start
+// (CheckAt): the reason and, when observable, the slack.
+func (c *certifier) point(x float64) (Reason, taus) {
+	t := c.g.at(x)
+	r, pg, ptr := c.g.checkAt(c.tr.Target, c.req, t)
+	if r != OK {
+		return r, taus{}
+	}
+	return OK, c.taus(pg, ptr, 0, t)
+}
+
+// CheckAt evaluates a request at one instant directly, on a one-step grid
+// of the same site and options (the Sun, the Moon and the target computed
+// afresh at t): OK or the first failing reason.
+func (g *Grid) CheckAt(target *Target, req Request, t time.Time) Reason {
+	r, _, _ := g.checkAt(target, req, t)
+	return r
+}
+
+func (g *Grid) checkAt(target *Target, req Request, t time.Time) (Reason, *Grid, *Track) {
+	pg, err := NewGrid(g.Site, t, t.Add(MinStep), MinStep, g.Opts)
+	if err != nil {
+		return ReasonDate, nil, nil
+	}
+	ptr, err := pg.Track(target)
+	if err != nil {
+		return ReasonDate, nil, nil
+	}
+	return pg.Evaluate(ptr, req).Reason[0], pg, ptr
+}
+
+// bisect narrows [ok, bad] (either order) to EdgeResolution around a
+// crossing and returns the observable end with its slack.
+func (c *certifier) bisect(ok float64, tok taus, bad float64) (float64, taus) {
+	res := EdgeResolution.Seconds()
+	for math.Abs(bad-ok) > res {
+		m := (ok + bad) / 2
+		if r, t := c.point(m); r == OK {
+			ok, tok = m, t
+		} else {
+			bad = m
+		}
+	}
+	return ok, tok
+}
+
+// certified reports whether the slack at a and b proves [a, b] observable.
+func certified(ta, tb *taus, d float64) bool {
+	for k := range ta {
+		if !(ta[k]+tb[k] >= d) { // NaN fails too
+			return false
+		}
+	}
+	return true
+}
+
+// segment appends the observable intervals of [a, b] (both observable) to
+// xs, merging with the last one when it ends at a.
+func (c *certifier) segment(xs []float64, a float64, ta taus, b float64, tb taus) []float64 {
+	if certified(&ta, &tb, b-a) || b-a <= EdgeResolution.Seconds() {
+		return appendSpan(xs, a, b)
+	}
+	m := (a + b) / 2
+	r, tm := c.point(m)
+	if r == OK {
+		xs = c.segment(xs, a, ta, m, tm)
+		return c.segment(xs, m, tm, b, tb)
+	}
+	e1, t1 := c.bisect(a, ta, m)
+	s2, t2 := c.bisect(b, tb, m)
+	xs = c.segment(xs, a, ta, e1, t1)
+	return c.segment(xs, s2, t2, b, tb)
+}
+
+// appendSpan adds [a, b] to the pairs in xs, extending the last pair when
+// it ends at a.
+func appendSpan(xs []float64, a, b float64) []float64 {
+	if n := len(xs); n >= 2 && xs[n-1] == a {
+		xs[n-1] = b
+		return xs
+	}
+	return append(xs, a, b)
+}
+
+// taus computes the slack of every constraint at step i of grid g (the
+// block's grid or a one-step grid), instant t. Unused constraints have
+// +Inf; a value that cannot be bounded (NaN) fails the certificate.
+func (c *certifier) taus(g *Grid, tr *Track, i int, t time.Time) taus {
+	var s taus
+	for k := range s {
+		s[k] = math.Inf(1)
+	}
+	l := &c.lim
+	set := l.set
+	alt := float64(tr.Alt[i])
+	if !set.Earliest.IsZero() {
+		s[tauDate] = t.Sub(c.dayFrom).Seconds()
+	}
+	if !set.Latest.IsZero() {
+		s[tauDate] = math.Min(s[tauDate], c.dayTo.Sub(t).Seconds())
+	}
+	if set.LocalStart != 0 || set.LocalEnd != 0 {
+		clk := g.clock[i].Seconds() + float64(t.Nanosecond())/1e9
+		day := 86400.0
+		d1 := math.Mod(clk-set.LocalStart.Seconds()+day, day)
+		d2 := math.Mod(set.LocalEnd.Seconds()-clk+day, day)
+		s[tauClock] = math.Min(d1, d2)
+	}
+	s[tauDark] = (c.darkThr - g.SunAlt[i]) / c.sunAltRate
+	// Horizon: altitude minus the profile at the azimuth; the azimuth's
+	// rate grows with the altitude (bounded over one grid step).
+	hmax := math.Min(math.Abs(alt)+c.altRate*c.h+ephem.Deg2Rad, 89*ephem.Deg2Rad)
+	azRate := omegaSidereal*(c.sinLat+c.cosLat*math.Tan(hmax)) + c.own/math.Cos(hmax)
+	s[tauHorizon] = (alt - g.Site.Horizon.AltitudeAt(float64(tr.Az[i])) - altSlack) / (c.altRate + c.slope*azRate)
+	if l.minAlt > -math.Pi/2 {
+		s[tauMinAlt] = (alt - l.minAlt - altSlack) / c.altRate
+	}
+	if !math.IsInf(l.maxAlt, 1) {
+		s[tauMaxAlt] = (l.maxAlt - alt - altSlack) / c.altRate
+	}
+	if !math.IsInf(c.altX, -1) {
+		s[tauAirmass] = (alt - c.altX - altSlack) / c.altRate
+	}
+	ha := float64(tr.HA[i])
+	if !math.IsInf(l.maxHA, 1) {
+		s[tauHA] = (l.maxHA - math.Abs(ha) - altSlack) / c.haRate
+	}
+	sun := float64(tr.SunSep[i])
+	s[tauFloor] = (sun - l.floor - sepSlack) / c.sunSepRate
+	if l.minElong > 0 {
+		s[tauElong] = (sun - l.minElong - sepSlack) / c.sunSepRate
+	}
+	if l.minMoon > 0 {
+		sep := (float64(tr.MoonSep[i]) - l.minMoon - sepSlack) / c.moonSep
+		down := (-moonSkipAlt - g.MoonAlt[i]) / c.moonAltRate
+		s[tauMoonSep] = math.Max(sep, down)
+	}
+	if set.MaxMoonIllum != 0 {
+		s[tauMoonIllum] = (set.MaxMoonIllum - g.MoonIllum[i]) / illumRateBound
+		if set.MoonIllumWhenUp {
+			s[tauMoonIllum] = math.Max(s[tauMoonIllum], -g.MoonAlt[i]/c.moonAltRate)
+		}
+	}
+	j := c.g.Index(t) // the block grid's step holding t, for estimated rates
+	if g.sky != nil && set.MinSkyMag != 0 {
+		s[tauSky] = (float64(tr.Sky[i]) - set.MinSkyMag) / c.estRate(c.tr.Sky, j, 1e-4)
+	}
+	if set.FaintestMag != 0 && tr.Mag != nil {
+		s[tauMag] = (set.FaintestMag - float64(tr.Mag[i])) / c.estRate(c.tr.Mag, j, 1e-5)
+	}
+	if l.trailing {
+		rate := math.Hypot(float64(tr.RateRA[i]), float64(tr.RateDec[i]))
+		s[tauTrail] = (l.maxRateOK - rate) / math.Max(c.estRate(c.tr.RateRA, j, 1e-4), c.estRate(c.tr.RateDec, j, 1e-4))
+	}
+	if l.checkFlip {
+		s[tauFlip] = math.Max(l.flip0-ha, ha-l.flip1) / c.haRate
+	}
+	return s
+}
+
+// estRate estimates a bound on the rate of change (per second) of a
+// sampled quantity near step j: three times the largest change between
+// neighbouring samples, plus a floor. NaN samples are skipped.
+func (c *certifier) estRate(x []float32, j int, floor float64) float64 {
+	m := 0.0
+	for k := max(0, j-1); k <= j && k+1 < len(x); k++ {
+		if d := math.Abs(float64(x[k+1]) - float64(x[k])); d > m {
+			m = d
+		}
+	}
+	if j+2 < len(x) {
+		if d := math.Abs(float64(x[j+2]) - float64(x[j+1])); d > m {
+			m = d
+		}
+	}
+	return 3*m/c.h + floor
+}
