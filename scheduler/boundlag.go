@@ -129,7 +129,7 @@ func newLagDP(p *Problem) *lagDP {
 	x := &lagDP{p: p}
 	for b := range p.Blocks {
 		d := &p.bd[b]
-		if d.rem > 0 && int(d.good[p.stepAt(p.tFrom)]) < p.n {
+		if d.rem > 0 && p.ivNext(b, p.tFrom) < p.tEnd {
 			x.active = append(x.active, b)
 		}
 	}

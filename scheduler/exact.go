@@ -86,7 +86,7 @@ func newExact(p *Problem, lim ExactLimits) (*exact, error) {
 	for b := range p.Blocks {
 		x.pos[b] = -1
 		d := &p.bd[b]
-		if d.rem <= 0 || int(d.good[p.stepAt(p.tFrom)]) >= p.n {
+		if d.rem <= 0 || p.ivNext(b, p.tFrom) >= p.tEnd {
 			continue
 		}
 		if d.every > 0 {

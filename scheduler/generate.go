@@ -71,6 +71,9 @@ func GenerateInstance(sp GenSpec) (*Instance, error) {
 	}
 	s := &in.Site
 	s.Axis1RateDegS, s.Axis2RateDegS = 3+rng.Float64()*3, 2+rng.Float64()*3
+	// Each axis reaches its rate in 1.5 s (no draw, so that the other
+	// values of an instance stay as they were).
+	s.Axis1AccelDegS2, s.Axis2AccelDegS2 = s.Axis1RateDegS/1.5, s.Axis2RateDegS/1.5
 	s.SettleS, s.AcquisitionS, s.FilterChangeS, s.ReadoutS, s.DitherS = 6, 35, 12, 5, 10
 	s.FocusS, s.FocusOnFilterChange, s.FlipS = 75, true, 140
 	if !sp.NoFocusEvery {

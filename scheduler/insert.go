@@ -124,7 +124,7 @@ func (p *Problem) bestInGap(sc *sched, pos, b, mode int) cand {
 	if ns-base < d.minSetup+float64(nmin)*d.frame {
 		return best
 	}
-	if g := d.good[p.stepAt(base)]; int(g) >= p.n || float64(g)*p.step > ns-float64(nmin)*d.frame {
+	if g := p.ivNext(b, base); g >= p.tEnd || g > ns-float64(nmin)*d.frame {
 		return best
 	}
 	lo, hi, ok := p.cadenceRange(sc, b, pos)
@@ -186,11 +186,11 @@ func (p *Problem) bestInGap(sc *sched, pos, b, mode int) cand {
 			break
 		}
 		// The window was too short: try the next one.
-		end := float64(d.bad[p.stepAt(s)]) * p.step
+		end := p.ivEnd(b, s)
 		if r.n > 0 {
 			end = math.Max(end, r.e)
 		}
-		from = end + p.step
+		from = math.Max(end, s) + p.quantum
 	}
 	if math.IsInf(se, 1) {
 		return best
@@ -232,19 +232,15 @@ func (p *Problem) bestInGap(sc *sched, pos, b, mode int) cand {
 	return best
 }
 
-// windowIn is the length of block b's observable window around s, cut to
-// the gap [base, ns).
+// windowIn is the length of block b's observable interval around s, cut
+// to the gap [base, ns).
 func (p *Problem) windowIn(b int, s, base, ns float64) float64 {
 	d := &p.bd[b]
-	i := p.stepAt(s)
-	lo := p.stepAt(base)
-	j := i
-	for j > lo && int(d.bad[j-1]) != j-1 {
-		j--
+	k := p.ivFrom(d, s)
+	if k >= len(d.iv)/2 || d.iv[2*k] > s+1e-9 {
+		return 0
 	}
-	start := math.Max(base, float64(j)*p.step)
-	end := math.Min(ns, float64(d.bad[i])*p.step)
-	return end - start
+	return math.Min(ns, d.iv[2*k+1]) - math.Max(base, d.iv[2*k])
 }
 
 // chain builds runs of block b back to back from s (each as long as it
@@ -264,7 +260,7 @@ func (p *Problem) chain(prev prevState, b int, base, s float64, planned, nb int,
 			if s, _, ok = p.earliest(prev, b, base, base); !ok || s >= ns {
 				return
 			}
-			if float64(d.bad[p.stepAt(base)])*p.step < s {
+			if p.ivEnd(b, base) < s {
 				return // the window ended: the chain would not be back to back
 			}
 		}

@@ -48,6 +48,8 @@ type InstanceSite struct {
 
 	Axis1RateDegS       float64 `json:"axis1_rate_deg_s"`
 	Axis2RateDegS       float64 `json:"axis2_rate_deg_s"`
+	Axis1AccelDegS2     float64 `json:"axis1_accel_deg_s2,omitempty"`
+	Axis2AccelDegS2     float64 `json:"axis2_accel_deg_s2,omitempty"`
 	SettleS             float64 `json:"settle_s"`
 	AcquisitionS        float64 `json:"acquisition_s"`
 	FilterChangeS       float64 `json:"filter_change_s"`
@@ -208,6 +210,7 @@ func (in *Instance) SiteOf() (*Site, error) {
 		return nil, err
 	}
 	site := &Site{Site: cs, Overheads: Overheads{Axis1RateDegS: s.Axis1RateDegS, Axis2RateDegS: s.Axis2RateDegS,
+		Axis1AccelDegS2: s.Axis1AccelDegS2, Axis2AccelDegS2: s.Axis2AccelDegS2,
 		Settle: secs(s.SettleS), Acquisition: secs(s.AcquisitionS), FilterChange: secs(s.FilterChangeS),
 		Readout: secs(s.ReadoutS), Dither: secs(s.DitherS), Focus: secs(s.FocusS), FocusEvery: secs(s.FocusEveryS),
 		FocusOnFilterChange: s.FocusOnFilterChange, Flip: secs(s.FlipS)}}

@@ -320,7 +320,7 @@ func (p *Problem) destroy(sc *sched, op int, rng *rand.Rand) []bool {
 func (p *Problem) clearSeries(sc *sched, del []bool, rng *rand.Rand) bool {
 	var cads []int
 	for b := range p.bd {
-		if d := &p.bd[b]; d.every > 0 && sc.planned[b] < d.rem && int(d.good[p.stepAt(p.tFrom)]) < p.n {
+		if d := &p.bd[b]; d.every > 0 && sc.planned[b] < d.rem && p.ivNext(b, p.tFrom) < p.tEnd {
 			cads = append(cads, b)
 		}
 	}

@@ -16,8 +16,13 @@ type Overheads struct {
 	// Axis1RateDegS and Axis2RateDegS are the slew rates of the two mount
 	// axes: hour angle and declination for equatorial mounts, azimuth and
 	// altitude for alt-azimuth ones. A slew lasts as long as the slower
-	// axis needs (both move at once, at constant rate).
+	// axis needs (both move at once).
 	Axis1RateDegS, Axis2RateDegS float64
+	// Axis1AccelDegS2 and Axis2AccelDegS2 are each axis's acceleration
+	// and deceleration (deg/s^2): a slew is a trapezoidal speed profile,
+	// or a triangle for short moves (AxisSeconds); 0 means the rate is
+	// reached at once.
+	Axis1AccelDegS2, Axis2AccelDegS2 float64
 	// Settle follows every slew, before the camera may expose.
 	Settle time.Duration
 	// Acquisition is the time to take a pointing frame and centre the
@@ -46,11 +51,12 @@ type Overheads struct {
 }
 
 // DefaultOverheads returns values typical of a small robotic observatory
-// (common practice, no published source): 4 deg/s on both axes, 5 s settle,
+// (common practice, no published source): 4 deg/s on both axes reached at
+// 2 deg/s^2, 5 s settle,
 // 30 s acquisition, 10 s filter change, 4 s readout, 8 s dither, a 90 s
 // focus run every hour and on filter changes, and a 150 s meridian flip.
 func DefaultOverheads() Overheads {
-	return Overheads{Axis1RateDegS: 4, Axis2RateDegS: 4, Settle: 5 * time.Second,
+	return Overheads{Axis1RateDegS: 4, Axis2RateDegS: 4, Axis1AccelDegS2: 2, Axis2AccelDegS2: 2, Settle: 5 * time.Second,
 		Acquisition: 30 * time.Second, FilterChange: 10 * time.Second, Readout: 4 * time.Second,
 		Dither: 8 * time.Second, Focus: 90 * time.Second, FocusEvery: time.Hour,
 		FocusOnFilterChange: true, Flip: 150 * time.Second}
@@ -199,6 +205,9 @@ var (
 func (o *Overheads) Validate() error {
 	if !(o.Axis1RateDegS > 0 && o.Axis2RateDegS > 0) || math.IsInf(o.Axis1RateDegS, 0) || math.IsInf(o.Axis2RateDegS, 0) {
 		return fmt.Errorf("%w: slew rates %v, %v deg/s must be positive", ErrOverheads, o.Axis1RateDegS, o.Axis2RateDegS)
+	}
+	if !(o.Axis1AccelDegS2 >= 0 && o.Axis2AccelDegS2 >= 0) || math.IsInf(o.Axis1AccelDegS2, 0) || math.IsInf(o.Axis2AccelDegS2, 0) {
+		return fmt.Errorf("%w: accelerations %v, %v deg/s^2 must be >= 0", ErrOverheads, o.Axis1AccelDegS2, o.Axis2AccelDegS2)
 	}
 	for _, d := range []time.Duration{o.Settle, o.Acquisition, o.FilterChange, o.Readout, o.Dither, o.Focus, o.FocusEvery, o.Flip} {
 		if d < 0 {

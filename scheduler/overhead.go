@@ -2,6 +2,7 @@ package scheduler
 
 import (
 	"math"
+	"time"
 
 	"github.com/nightloom/nightloom/constraints"
 	"github.com/nightloom/nightloom/ephem"
@@ -105,13 +106,24 @@ func (p *Problem) axesOf(b, i int, side int8, prev bool) (a1, a2 float64) {
 		ha, dec = float64(tr.HA[i])*ephem.Rad2Deg, float64(tr.Dec[i])*ephem.Rad2Deg
 		az, alt = float64(tr.Az[i])*ephem.Rad2Deg, float64(tr.Alt[i])*ephem.Rad2Deg
 	}
-	switch p.Site.Mount {
+	return mountAxes(p.Site.Site, ha, dec, az, alt, side, prev)
+}
+
+// mountAxes maps a pointing to the mount's mechanical axes (degrees):
+// azimuth and altitude for alt-azimuth mounts, hour angle and declination
+// for fork mounts, and for german equatorial mounts the pier-side axis
+// angles (east side: HA + 90 with HA unwrapped below the flip zone's end;
+// west side: HA - 90 and 180 - Dec). prev marks the previous target of a
+// slew: a german mount tracking it on the east side has stopped at the
+// flip limit.
+func mountAxes(site *constraints.Site, ha, dec, az, alt float64, side int8, prev bool) (a1, a2 float64) {
+	switch site.Mount {
 	case constraints.AltAzimuth:
 		return az, alt
 	case constraints.ForkEquatorial:
 		return ha, dec
 	}
-	f0, f1 := p.Site.FlipStartHADeg, p.Site.FlipEndHADeg
+	f0, f1 := site.FlipStartHADeg, site.FlipEndHADeg
 	if side == sideEast {
 		if prev && ha > f1 && ha < f1+180 {
 			ha = f1
@@ -149,18 +161,65 @@ func (p *Problem) precomputeAxes() {
 }
 
 // slewTime is the time (s) to move from the previous pointing to block b on
-// the given side, both where they are at x. The slower axis wins; german
-// equatorial axes do not wrap (the counterweight must stay down), the
-// other mounts take the shorter way round on axis 1.
+// the given side, both where they are at x (SlewSeconds).
 func (p *Problem) slewTime(prev prevState, b int, side int8, x float64) float64 {
 	a1, a2 := p.axes(prev.block, x, prev.side, true)
 	c1, c2 := p.axes(b, x, side, false)
+	return p.Site.Overheads.slewSeconds(p.Site.Mount, a1, a2, c1, c2)
+}
+
+// AxisSeconds is the time (s) one axis needs to travel d degrees from rest
+// to rest: a trapezoidal speed profile that accelerates at accel (deg/s^2)
+// up to rate (deg/s), cruises, and decelerates at accel, or a triangle when
+// the move is too short to reach the rate (d < rate^2/accel):
+//
+//	t = d/rate + rate/accel   (d >= rate^2/accel)
+//	t = 2 sqrt(d/accel)       (otherwise)
+//
+// accel = 0 means the rate is reached at once (t = d/rate). Kinematics of
+// constant acceleration, no published source needed.
+func AxisSeconds(d, rate, accel float64) float64 {
+	d = math.Abs(d)
+	if d == 0 || !(rate > 0) {
+		return 0
+	}
+	if !(accel > 0) || d >= rate*rate/accel {
+		t := d / rate
+		if accel > 0 {
+			t += rate / accel
+		}
+		return t
+	}
+	return 2 * math.Sqrt(d/accel)
+}
+
+// slewSeconds is the slew between two axis positions (degrees): both axes
+// move at once, the slower one wins; german equatorial axes do not wrap
+// (the counterweight must stay down), the other mounts take the shorter
+// way round on axis 1.
+func (o *Overheads) slewSeconds(mount constraints.MountKind, a1, a2, c1, c2 float64) float64 {
 	d1 := math.Abs(c1 - a1)
-	if p.Site.Mount != constraints.GermanEquatorial {
+	if mount != constraints.GermanEquatorial {
 		d1 = math.Abs(math.Remainder(c1-a1, 360))
 	}
 	d2 := math.Abs(c2 - a2)
-	return math.Max(d1/p.oh.r1, d2/p.oh.r2)
+	return math.Max(AxisSeconds(d1, o.Axis1RateDegS, o.Axis1AccelDegS2), AxisSeconds(d2, o.Axis2RateDegS, o.Axis2AccelDegS2))
+}
+
+// SlewTime is the time the site's mount needs to move from one pointing to
+// another (the same model as the planner's: mechanical axes of the mount
+// kind, pier sides of a german mount, trapezoidal profiles, slower axis
+// wins). from.PierWest and to.PierWest give the sides.
+func (s *Site) SlewTime(from, to Pointing) time.Duration {
+	side := func(west bool) int8 {
+		if west && s.Mount == constraints.GermanEquatorial {
+			return sideWest
+		}
+		return sideEast
+	}
+	a1, a2 := mountAxes(s.Site, from.HADeg, from.DecDeg, from.AzDeg, from.AltDeg, side(from.PierWest), false)
+	c1, c2 := mountAxes(s.Site, to.HADeg, to.DecDeg, to.AzDeg, to.AltDeg, side(to.PierWest), false)
+	return secs(s.Overheads.slewSeconds(s.Mount, a1, a2, c1, c2))
 }
 
 // focusPeriod is the periodic-focus period of x (seconds from the grid's

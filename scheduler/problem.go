@@ -37,25 +37,29 @@ type Input struct {
 // the solver's per-block tables. It is read-only once made and may be used
 // by several solvers at once.
 type Problem struct {
-	Site     *Site
-	Grid     *constraints.Grid
-	Blocks   []Block
-	Tracks   []*constraints.Track
-	Vis      []*constraints.Visibility
-	Closures []Closure
-	Executed []Assignment
-	From     time.Time
+	Site   *Site
+	Grid   *constraints.Grid
+	Blocks []Block
+	Tracks []*constraints.Track
+	Vis    []*constraints.Visibility
+	// Intervals are each block's observable time, continuous (every
+	// instant checked or certified, constraints.Grid.Intervals), before
+	// closures. Runs must lie inside one of them.
+	Intervals [][]constraints.Interval
+	Closures  []Closure
+	Executed  []Assignment
+	From      time.Time
 	// Urgency is the factor u of each block (package doc).
 	Urgency []float64
 	Chances []int
 	Options Options
 
-	step, quantum float64 // seconds
-	n             int     // grid steps
-	tEnd          float64 // end of the grid, seconds from its start
-	tFrom         float64 // From, seconds from the grid's start
-	closed        []bool
-	closedNext    []int32 // first closed step at or after i (n if none)
+	step, quantum float64   // seconds
+	n             int       // grid steps
+	tEnd          float64   // end of the grid, seconds from its start
+	tFrom         float64   // From, seconds from the grid's start
+	closed        []bool    // steps that overlap a closure (explanations and bounds)
+	cl            []float64 // merged closures, pairs of seconds from the grid's start
 	bd            []bdat
 	anchor        anchor
 	execStart     []float64       // start of each block's last executed run tonight (NaN if none)
@@ -68,7 +72,6 @@ type Problem struct {
 
 // ohSec is the overhead model in seconds.
 type ohSec struct {
-	r1, r2                                           float64 // deg/s
 	settle, acq, filter, readout, dither, focus, flp float64
 	focusEvery                                       float64
 	focusOnFilter                                    bool
@@ -84,11 +87,19 @@ type bdat struct {
 	bonus              float64
 	filter             int
 	q                  []float32
-	bad                []int32 // first infeasible (or closed) step at or after i; n if none
-	good               []int32 // first feasible step at or after i; n if none
-	every, tol         float64 // cadence, seconds (every = 0: none)
-	minSetup           float64
-	peak               int // step of the best quality
+	// iv holds the block's observable intervals less closures, as pairs
+	// of seconds from the grid's start (sorted, disjoint); ivAt[i] is the
+	// first pair that ends after step i's start.
+	iv   []float64
+	ivAt []int32
+	// bad and good describe the steps for the bounds: a step is good when
+	// an interval overlaps it. bad[i] is the first step at or after i that
+	// is not good, good[i] the first good one (n if none).
+	bad        []int32
+	good       []int32
+	every, tol float64 // cadence, seconds (every = 0: none)
+	minSetup   float64
+	peak       int // step of the best quality
 }
 
 // anchor is the mount's state when the plan starts.
@@ -144,6 +155,15 @@ func newProblem(in Input, tracks []*constraints.Track, vis []*constraints.Visibi
 			return nil, fmt.Errorf("%w %q: %w", ErrBlock, in.Blocks[i].ID, constraints.ErrTarget)
 		}
 	}
+	p.Intervals = make([][]constraints.Interval, len(p.Blocks))
+	workers := p.Options.Workers
+	if workers <= 0 {
+		workers = runtime.GOMAXPROCS(0)
+	}
+	parallel(len(p.Blocks), workers, func(i int) {
+		b := &p.Blocks[i]
+		p.Intervals[i] = p.Grid.Intervals(p.Tracks[i], constraints.Request{Set: b.Set, Exposure: b.Exposure, NonSidereal: b.NonSidereal}, p.Vis[i])
+	})
 	if err := p.prepare(in.Closures, in.Executed, in.From); err != nil {
 		return nil, err
 	}
@@ -230,7 +250,7 @@ func (p *Problem) prepare(closures []Closure, executed []Assignment, from time.T
 	p.tEnd = float64(g.N) * p.step
 	p.tFrom = math.Max(0, p.rel(from))
 	o := p.Site.Overheads
-	p.oh = ohSec{r1: o.Axis1RateDegS, r2: o.Axis2RateDegS, settle: o.Settle.Seconds(), acq: o.Acquisition.Seconds(),
+	p.oh = ohSec{settle: o.Settle.Seconds(), acq: o.Acquisition.Seconds(),
 		filter: o.FilterChange.Seconds(), readout: o.Readout.Seconds(), dither: o.Dither.Seconds(),
 		focus: o.Focus.Seconds(), flp: o.Flip.Seconds(), focusEvery: o.FocusEvery.Seconds(),
 		focusOnFilter: o.FocusOnFilterChange}
@@ -238,27 +258,27 @@ func (p *Problem) prepare(closures []Closure, executed []Assignment, from time.T
 	p.flip1 = p.Site.FlipEndHADeg * ephem.Deg2Rad
 	// The longest possible setup: a slew over the whole travel of both
 	// axes, settling, a filter change, focus and acquisition.
-	p.maxSetup = math.Max(360/p.oh.r1, 360/p.oh.r2) + p.oh.settle + p.oh.filter + p.oh.focus + p.oh.acq
+	p.maxSetup = math.Max(AxisSeconds(360, o.Axis1RateDegS, o.Axis1AccelDegS2), AxisSeconds(360, o.Axis2RateDegS, o.Axis2AccelDegS2)) +
+		p.oh.settle + p.oh.filter + p.oh.focus + p.oh.acq
 
 	p.closed = make([]bool, p.n)
-	for _, c := range p.Closures {
+	p.cl = p.cl[:0:0]
+	cs := append([]Closure(nil), p.Closures...)
+	sort.Slice(cs, func(i, j int) bool { return cs[i].Start.Before(cs[j].Start) })
+	for _, c := range cs {
 		if !c.End.After(c.Start) {
 			return fmt.Errorf("%w: closure %v..%v is empty", ErrInput, c.Start, c.End)
 		}
 		a, b := p.rel(c.Start), p.rel(c.End)
+		if k := len(p.cl); k > 0 && a <= p.cl[k-1] {
+			p.cl[k-1] = math.Max(p.cl[k-1], b)
+		} else {
+			p.cl = append(p.cl, a, b)
+		}
 		for i := max(0, int(math.Floor(a/p.step))); i < p.n && float64(i)*p.step < b; i++ {
 			if float64(i+1)*p.step > a {
 				p.closed[i] = true
 			}
-		}
-	}
-	p.closedNext = make([]int32, p.n+1)
-	p.closedNext[p.n] = int32(p.n)
-	for i := p.n - 1; i >= 0; i-- {
-		if p.closed[i] {
-			p.closedNext[i] = int32(i)
-		} else {
-			p.closedNext[i] = p.closedNext[i+1]
 		}
 	}
 
@@ -312,25 +332,7 @@ func (p *Problem) prepare(closures []Closure, executed []Assignment, from time.T
 		if d.rem > 0 {
 			d.bonus = p.Options.CompletionBonus * d.w * float64(b.FramesWanted)
 		}
-		v := p.Vis[i]
-		d.q = v.Quality
-		d.bad = make([]int32, p.n+1)
-		d.good = make([]int32, p.n+1)
-		d.bad[p.n], d.good[p.n] = int32(p.n), int32(p.n)
-		for s := range d.q {
-			if d.q[s] > d.q[d.peak] && !p.closed[s] {
-				d.peak = s
-			}
-		}
-		for s := p.n - 1; s >= 0; s-- {
-			if v.Reason[s] != constraints.OK || p.closed[s] {
-				d.bad[s] = int32(s)
-				d.good[s] = d.good[s+1]
-			} else {
-				d.bad[s] = d.bad[s+1]
-				d.good[s] = int32(s)
-			}
-		}
+		p.blockIntervals(i)
 	}
 
 	p.execStart = make([]float64, len(p.Blocks))
@@ -405,4 +407,131 @@ func (p *Problem) ceilQ(x float64) float64 {
 // floorQ rounds x down to the quantum.
 func (p *Problem) floorQ(x float64) float64 {
 	return math.Floor(x/p.quantum+1e-9) * p.quantum
+}
+
+// blockIntervals fills block b's intervals less closures, the step tables
+// of the bounds, its quality table and its best step.
+func (p *Problem) blockIntervals(b int) {
+	d := &p.bd[b]
+	d.iv = d.iv[:0:0]
+	for _, x := range p.Intervals[b] {
+		d.iv = subtractClosures(d.iv, p.rel(x.Start), p.rel(x.End), p.cl)
+	}
+	d.ivAt = make([]int32, p.n+1)
+	k := 0
+	for i := 0; i <= p.n; i++ {
+		for k < len(d.iv)/2 && d.iv[2*k+1] <= float64(i)*p.step {
+			k++
+		}
+		d.ivAt[i] = int32(k)
+	}
+	d.bad = make([]int32, p.n+1)
+	d.good = make([]int32, p.n+1)
+	d.bad[p.n], d.good[p.n] = int32(p.n), int32(p.n)
+	goodStep := make([]bool, p.n)
+	for k := 0; k < len(d.iv); k += 2 {
+		for i := max(0, int(d.iv[k]/p.step)); i < p.n && float64(i)*p.step < d.iv[k+1]; i++ {
+			goodStep[i] = true
+		}
+	}
+	for s := p.n - 1; s >= 0; s-- {
+		if !goodStep[s] {
+			d.bad[s] = int32(s)
+			d.good[s] = d.good[s+1]
+		} else {
+			d.bad[s] = d.bad[s+1]
+			d.good[s] = int32(s)
+		}
+	}
+	// Quality: the grid's where the sample is observable; a step that an
+	// interval reaches into past a failing sample takes its neighbour's.
+	q := p.Vis[b].Quality
+	d.q = q
+	for s := 0; s < p.n; s++ {
+		if goodStep[s] && q[s] == 0 {
+			if &d.q[0] == &q[0] {
+				d.q = append([]float32(nil), q...)
+			}
+			if s > 0 {
+				d.q[s] = q[s-1]
+			}
+			if s+1 < p.n && q[s+1] > d.q[s] {
+				d.q[s] = q[s+1]
+			}
+		}
+	}
+	d.peak = 0
+	for s := range d.q {
+		if goodStep[s] && (!goodStep[d.peak] || d.q[s] > d.q[d.peak]) {
+			d.peak = s
+		}
+	}
+}
+
+// subtractClosures appends [a, b) less the merged closures cl to xs.
+func subtractClosures(xs []float64, a, b float64, cl []float64) []float64 {
+	for k := 0; k < len(cl) && a < b; k += 2 {
+		c0, c1 := cl[k], cl[k+1]
+		if c1 <= a || c0 >= b {
+			continue
+		}
+		if c0 > a {
+			xs = append(xs, a, c0)
+		}
+		a = math.Max(a, c1)
+	}
+	if a < b {
+		xs = append(xs, a, b)
+	}
+	return xs
+}
+
+// ivFrom is the index of block d's first interval that ends after x.
+func (p *Problem) ivFrom(d *bdat, x float64) int {
+	i := int(math.Floor(x / p.step))
+	switch {
+	case i < 0:
+		i = 0
+	case i > p.n:
+		i = p.n
+	}
+	k := int(d.ivAt[i])
+	for k < len(d.iv)/2 && d.iv[2*k+1] <= x {
+		k++
+	}
+	return k
+}
+
+// ivEnd is the end of block b's interval holding x (seconds), or -1 when x
+// is not observable.
+func (p *Problem) ivEnd(b int, x float64) float64 {
+	d := &p.bd[b]
+	k := p.ivFrom(d, x)
+	if k < len(d.iv)/2 && d.iv[2*k] <= x+1e-9 {
+		return d.iv[2*k+1]
+	}
+	return -1
+}
+
+// ivNext is the first observable instant of block b at or after x, +Inf
+// when there is none.
+func (p *Problem) ivNext(b int, x float64) float64 {
+	d := &p.bd[b]
+	k := p.ivFrom(d, x)
+	if k >= len(d.iv)/2 {
+		return math.Inf(1)
+	}
+	return math.Max(x, d.iv[2*k])
+}
+
+// closureIn returns the end of the last merged closure that overlaps
+// [a, b), or -1 when none does.
+func (p *Problem) closureIn(a, b float64) float64 {
+	end := -1.0
+	for k := 0; k < len(p.cl); k += 2 {
+		if p.cl[k] < b && p.cl[k+1] > a {
+			end = p.cl[k+1]
+		}
+	}
+	return end
 }

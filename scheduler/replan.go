@@ -90,7 +90,9 @@ func (p *Problem) fromPlan(old *Plan) (*sched, map[runKey]bool) {
 		if _, ok := p.startOK(p.prevOf(sc, k), b, p.baseOf(sc, k), s); !ok {
 			continue
 		}
-		if a.Frames > p.maxFrames(b, sc.planned[b]) || a.Frames < p.minFrames(b, sc.planned[b]) {
+		// A run shorter than MinRun may stand anywhere in time when the
+		// plan completes its block (Validate); fixup drops it otherwise.
+		if a.Frames > p.maxFrames(b, sc.planned[b]) || a.Frames < 1 {
 			continue
 		}
 		lo, hi, ok := p.cadenceRange(sc, b, k)
@@ -147,8 +149,10 @@ func Dispatch(p *Problem, plan *Plan, st State) (*Assignment, error) {
 			if a.Block < 0 || a.Block >= len(q.Blocks) || q.Blocks[a.Block].ID != a.ID {
 				return nil, fmt.Errorf("%w: plan assignment of unknown block %q", ErrInput, a.ID)
 			}
-			sc, _ := q.fromPlan(&Plan{Assignments: []Assignment{*a}})
-			if len(sc.runs) == 1 {
+			// The rest of the plan, not the run alone: a run shorter than
+			// MinRun is valid when later runs complete its block.
+			sc, _ := q.fromPlan(&Plan{Assignments: plan.Assignments[i:]})
+			if len(sc.runs) > 0 && sc.runs[0].b == a.Block && math.Abs(sc.runs[0].s-q.rel(a.Start)) < 1e-6 {
 				out := q.assignment(sc, 0)
 				return &out, nil
 			}

@@ -23,24 +23,23 @@ type runIter struct {
 	d     *bdat
 	r     run
 	t     float64 // when the next frame could start
-	limit float64 // the run must end by here (first infeasible step, or the grid's end)
+	limit float64 // the run must end by here (the end of its observable interval)
 	side  int8
 }
 
-// newRun starts a run of block b at s; ok is false when s's step is not
+// newRun starts a run of block b at s; ok is false when s is not
 // observable.
 func (p *Problem) newRun(b int, s float64) (runIter, bool) {
 	if s < 0 || s >= p.tEnd {
 		return runIter{}, false
 	}
 	d := &p.bd[b]
-	i := p.stepAt(s)
-	bad := d.bad[i]
-	if int(bad) == i {
+	limit := p.ivEnd(b, s)
+	if limit < 0 {
 		return runIter{}, false
 	}
 	side := p.startSide(b, s)
-	it := runIter{p: p, d: d, t: s, limit: float64(bad) * p.step, side: side,
+	it := runIter{p: p, d: d, t: s, limit: limit, side: side,
 		r: run{b: b, s: s, e: s, side0: side, side1: side, flipAt: -1}}
 	return it, true
 }
@@ -127,41 +126,28 @@ func (p *Problem) maxFrames(b, planned int) int {
 }
 
 // setupClear reports whether the setup interval [s-tot, s) avoids every
-// closed step.
+// closure.
 func (p *Problem) setupClear(s, tot float64) bool {
-	if len(p.Closures) == 0 {
-		return true
-	}
-	a := s - tot
-	if a < 0 {
-		a = 0
-	}
-	first, last := p.stepAt(a), p.lastStep(s)
-	if last < first {
-		return true
-	}
-	return int(p.closedNext[first]) > last
+	return len(p.cl) == 0 || p.closureIn(math.Max(0, s-tot), s) < 0
 }
 
 // earliest returns the earliest start at or after notBefore of a run of
 // block b after prev, the mount being free from base (a quantum boundary):
 // the setup fits between base and the start, avoids closures, and the
-// start's step is observable. ok is false when no such start exists before
-// the grid ends.
+// start is observable. ok is false when no such start exists before the
+// grid ends.
 func (p *Problem) earliest(prev prevState, b int, base, notBefore float64) (s float64, su setupParts, ok bool) {
-	d := &p.bd[b]
 	s = p.ceilQ(math.Max(base, notBefore))
 	for iter := 0; iter < 64; iter++ {
 		if s >= p.tEnd {
 			return 0, su, false
 		}
-		i := p.stepAt(s)
-		if int(d.bad[i]) == i {
-			g := d.good[i]
-			if int(g) >= p.n {
+		if p.ivEnd(b, s) < 0 {
+			g := p.ivNext(b, s)
+			if g >= p.tEnd {
 				return 0, su, false
 			}
-			s = p.ceilQ(float64(g) * p.step)
+			s = p.ceilQ(g)
 			continue
 		}
 		su = p.setup(prev, b, s)
@@ -170,14 +156,10 @@ func (p *Problem) earliest(prev prevState, b int, base, notBefore float64) (s fl
 			s = need
 			continue
 		}
-		if !p.setupClear(s, tot) {
-			// Start the setup after the closed span that it overlaps.
-			c := int(p.closedNext[p.stepAt(math.Max(0, s-tot))])
-			for c < p.n && p.closed[c] {
-				c++
-			}
-			s = p.ceilQ(float64(c)*p.step + tot)
-			base = math.Max(base, float64(c)*p.step)
+		if c := p.closureIn(math.Max(0, s-tot), s); c >= 0 {
+			// Start the setup after the closure that it overlaps.
+			s = p.ceilQ(c + tot)
+			base = math.Max(base, c)
 			continue
 		}
 		return s, su, true

@@ -94,19 +94,37 @@ const slewTol = 0.01
 
 // independentSlew recomputes the slew before b from the previous
 // assignment a: both targets where they are at b's start (the previous
-// one stopped at the flip limit on a german mount's east side), axis
-// travel over rate, the slower axis winning.
+// one stopped at the flip limit on a german mount's east side), each axis
+// a rest-to-rest move with constant acceleration a up to rate v (written
+// here from the kinematics: cruise time (d - v^2/a)/v plus 2 v/a to speed
+// up and slow down, or 2 sqrt(d/a) when the rate is never reached), the
+// slower axis winning.
 func independentSlew(p *Problem, a, b *Assignment) float64 {
 	i := p.Grid.Index(b.Start)
 	ta, tb := p.Tracks[a.Block], p.Tracks[b.Block]
 	deg := func(x float32) float64 { return float64(x) * ephem.Rad2Deg }
 	wrap := func(x float64) float64 { return math.Abs(math.Remainder(x, 360)) }
 	o := p.Site.Overheads
+	move := func(d, v, a float64) float64 {
+		if d == 0 {
+			return 0
+		}
+		if a == 0 {
+			return d / v
+		}
+		if ramp := v * v / a; d >= ramp { // v^2/(2a) to speed up, the same to slow down
+			return (d-ramp)/v + 2*v/a
+		}
+		return 2 * math.Sqrt(d/a)
+	}
+	two := func(d1, d2 float64) float64 {
+		return math.Max(move(d1, o.Axis1RateDegS, o.Axis1AccelDegS2), move(d2, o.Axis2RateDegS, o.Axis2AccelDegS2))
+	}
 	switch p.Site.Mount {
 	case constraints.AltAzimuth:
-		return math.Max(wrap(deg(tb.Az[i])-deg(ta.Az[i]))/o.Axis1RateDegS, math.Abs(deg(tb.Alt[i])-deg(ta.Alt[i]))/o.Axis2RateDegS)
+		return two(wrap(deg(tb.Az[i])-deg(ta.Az[i])), math.Abs(deg(tb.Alt[i])-deg(ta.Alt[i])))
 	case constraints.ForkEquatorial:
-		return math.Max(wrap(deg(tb.HA[i])-deg(ta.HA[i]))/o.Axis1RateDegS, math.Abs(deg(tb.Dec[i])-deg(ta.Dec[i]))/o.Axis2RateDegS)
+		return two(wrap(deg(tb.HA[i])-deg(ta.HA[i])), math.Abs(deg(tb.Dec[i])-deg(ta.Dec[i])))
 	}
 	// German equatorial: axis 1 = HA +- 90 deg by pier side, no wrapping;
 	// axis 2 = dec (east) or 180 - dec (west).
@@ -135,7 +153,7 @@ func independentSlew(p *Problem, a, b *Assignment) float64 {
 	aWest := a.Pointing.PierWest || !a.Flip.IsZero()
 	a1, a2 := axes(deg(ta.HA[i]), deg(ta.Dec[i]), aWest, true)
 	c1, c2 := axes(deg(tb.HA[i]), deg(tb.Dec[i]), b.Pointing.PierWest, false)
-	return math.Max(math.Abs(c1-a1)/o.Axis1RateDegS, math.Abs(c2-a2)/o.Axis2RateDegS)
+	return two(math.Abs(c1-a1), math.Abs(c2-a2))
 }
 
 // Hard constraints, checked at every grid step an assignment covers
@@ -619,7 +637,9 @@ func TestExactAgainstBruteForceAndBounds(t *testing.T) {
 		if s > ex*(1+1e-9) || g > ex*(1+1e-9) {
 			t.Errorf("seed %d: a heuristic beats the exact optimum: alns %v greedy %v exact %v", seed, s, g, ex)
 		}
-		if bd < ex*(1-1e-9) || bf < ex*(1-1e-9) {
+		// 1e-7: the bounds sum float32 quality tables in another order
+		// than the runs do (float32 carries 6e-8 relative).
+		if bd < ex*(1-1e-7) || bf < ex*(1-1e-7) {
 			t.Errorf("seed %d: a bound is below the optimum: dp %v flow %v exact %v", seed, bd, bf, ex)
 		}
 		if s < 0.97*ex {

@@ -32,10 +32,11 @@ const (
 //     a dither after every DitherEvery frames, a meridian flip (german
 //     equatorial mounts) that starts inside the flip zone and lasts the
 //     site's flip time, and no east-side frame that ends past the zone;
-//   - every grid step that a run covers is observable for its block (the
-//     Visibility says OK) and is not closed; the Sun is at least the site's
-//     solar-avoidance floor away at every such step (checked on the track
-//     itself); no run or setup overlaps a closure;
+//   - every run lies inside one continuous observable interval of its
+//     block (Problem.Intervals: every instant, not only the grid's
+//     samples), every grid sample inside it is observable with the Sun at
+//     least the site's solar-avoidance floor away (checked on the track
+//     itself), and no run or setup overlaps a closure;
 //   - runs are between MinRun (unless they complete the block) and MaxRun
 //     frames, no block gets more frames than it wants, cadence series are
 //     evenly spaced;
@@ -135,13 +136,15 @@ func Validate(pl *Plan, p *Problem) error {
 			}
 			val += d.w * float64(d.q[p.stepAt(t+d.exp/2)])
 		}
-		// Every covered step.
-		for i := p.stepAt(s); i <= p.lastStep(e); i++ {
+		// The run lies in one continuous observable interval of its block
+		// (closures taken out), and every grid sample inside it is
+		// observable with the Sun beyond the floor.
+		if lim := p.ivEnd(b, s); lim < 0 || e > lim+validateTimeTol {
+			return bad(k, "%s [%v, %v] is not inside one observable interval (ends %v)", blk.ID, a.Start, a.End, p.abs(lim))
+		}
+		for i := int(math.Ceil(s / p.step)); i < p.n && float64(i)*p.step <= e; i++ {
 			if r := p.Vis[b].Reason[i]; r != constraints.OK {
 				return bad(k, "%s at step %d (%v): %v", blk.ID, i, p.Grid.Time(i), r)
-			}
-			if p.closed[i] {
-				return bad(k, "%s at step %d (%v): site closed", blk.ID, i, p.Grid.Time(i))
 			}
 			if sep := float64(p.Tracks[b].SunSep[i]); sep < floor {
 				return bad(k, "%s at step %d: %.2f deg from the Sun, inside the floor %.2f deg", blk.ID, i,
