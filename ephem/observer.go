@@ -213,3 +213,17 @@ var kyTable = func() (t [90*kyPerDeg + 2]float64) {
 func (o *Observer) HADecToHorizon(hd Vec3) Vec3 {
 	return Vec3{-o.sinLat*hd[0] + o.cosLat*hd[2], hd[1], o.cosLat*hd[0] + o.sinLat*hd[2]}
 }
+
+// HorizonToHADec converts an altitude and azimuth (radians; azimuth from
+// north through east) to the local hour angle (east negative, (-pi, pi])
+// and declination at the observer's latitude: the standard
+// spherical-triangle relations (Meeus, Astronomical Algorithms, 2nd ed.,
+// ch. 13, with azimuth from north), as the inverse of HADecToHorizon.
+func (o *Observer) HorizonToHADec(alt, az float64) (ha, dec float64) {
+	sh, ch := math.Sincos(alt)
+	sa, ca := math.Sincos(az)
+	sd := o.sinLat*sh + o.cosLat*ch*ca
+	dec = math.Asin(math.Max(-1, math.Min(1, sd)))
+	ha = math.Atan2(-sa*ch, o.cosLat*sh-o.sinLat*ch*ca)
+	return ha, dec
+}

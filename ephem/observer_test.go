@@ -141,3 +141,35 @@ func TestRefractionFast(t *testing.T) {
 		t.Errorf("table refraction differs by %.3f arcsec, want < 0.05", worst*Rad2Arcsec)
 	}
 }
+
+// HorizonToHADec against cases that follow from the definitions: the
+// zenith is at hour angle 0 and declination = latitude; the north point of
+// the horizon at declination 90 - latitude, hour angle 180; the east point
+// at declination 0, hour angle -90 deg (6 h east); and it inverts
+// HADecToHorizon.
+func TestHorizonToHADec(t *testing.T) {
+	const tol = 1e-9 // deg, exact arithmetic
+	cases := []struct{ lat, alt, az, ha, dec float64 }{
+		{41.6, 90, 0, 0, 41.6},
+		{41.6, 0, 0, 180, 90 - 41.6},
+		{41.6, 0, 90, -90, 0},
+		{-30, 0, 270, 90, 0},
+	}
+	for _, c := range cases {
+		o, err := NewObserver(c.lat, 0, 0)
+		if err != nil {
+			t.Fatal(err)
+		}
+		ha, dec := o.HorizonToHADec(c.alt*Deg2Rad, c.az*Deg2Rad)
+		ha, dec = ha*Rad2Deg, dec*Rad2Deg
+		if math.Abs(math.Remainder(ha-c.ha, 360)) > tol && c.alt != 90 || math.Abs(dec-c.dec) > tol {
+			t.Errorf("lat %v alt %v az %v: ha %v dec %v, want %v %v", c.lat, c.alt, c.az, ha, dec, c.ha, c.dec)
+		}
+		sh, ch := math.Sincos(ha * Deg2Rad)
+		sd, cd := math.Sincos(dec * Deg2Rad)
+		h := o.HADecToHorizon(Vec3{cd * ch, -cd * sh, sd})
+		if alt := math.Asin(h[2]) * Rad2Deg; math.Abs(alt-c.alt) > 1e-7 {
+			t.Errorf("round trip altitude %v, want %v", alt, c.alt)
+		}
+	}
+}

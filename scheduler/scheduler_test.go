@@ -912,3 +912,20 @@ func TestMeridianFlip(t *testing.T) {
 	t.Logf("run %s-%s UTC, flip at %s (HA %.2f deg) before frame %d, %v spent", a.Start.Format("15:04"), a.End.Format("15:04"),
 		a.Flip.Format("15:04:05"), ha(a.Flip), a.FlipBefore, a.Spent.Flip.Round(time.Second))
 }
+
+// AxisSeconds: the trapezoidal slew profile, with values worked from the
+// kinematics: at 4 deg/s and 2 deg/s^2 the axis needs 4 deg to reach full
+// speed and 4 to stop, so 8 deg take 8/4 + 4/2 = 4 s either way, 90 deg
+// take 90/4 + 4/2 = 24.5 s, and 2 deg never reach full speed: 2 sqrt(2/2)
+// = 2 s.
+func TestAxisSeconds(t *testing.T) {
+	const tol = 1e-9 // s
+	for _, c := range []struct{ d, want float64 }{{90, 24.5}, {2, 2}, {8, 4}, {0, 0}, {-8, 4}} {
+		if got := AxisSeconds(c.d, 4, 2); math.Abs(got-c.want) > tol {
+			t.Errorf("AxisSeconds(%v deg) = %v s, want %v", c.d, got, c.want)
+		}
+	}
+	if got := AxisSeconds(90, 3, 0); math.Abs(got-30) > tol {
+		t.Errorf("constant speed: %v s, want 30", got)
+	}
+}

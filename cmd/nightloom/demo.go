@@ -151,6 +151,7 @@ func demo(stdout, stderr io.Writer, outDir string, verbose bool, budget time.Dur
 	fmt.Fprintf(stdout, "\n4. Interruption: clouds close the roof %s-%s %s (%s-%s UTC)\n", mid.In(c.loc).Format("15:04"),
 		mid.Add(demoClosure).In(c.loc).Format("15:04"), mid.In(c.loc).Format("MST"), mid.UTC().Format("15:04"),
 		mid.Add(demoClosure).UTC().Format("15:04"))
+	d.clock.Set(mid) // the simulated night: the reports come as the roof closes
 	done, cut, framesDone, err := reportUntil(a, plan, mid)
 	if err != nil {
 		return err

@@ -75,13 +75,15 @@ func TestMain(m *testing.M) {
 // token.
 type testDaemon struct {
 	addr, admin, viewer string
+	clock               *simClock
 }
 
 func startTestDaemon(t *testing.T) *testDaemon {
 	t.Helper()
 	ctx := context.Background()
+	clk := &simClock{}
 	srv, err := server.Start(ctx, server.Config{Listen: "127.0.0.1:0", DBPath: filepath.Join(t.TempDir(), "test.db"),
-		Logger: slog.New(slog.NewTextHandler(io.Discard, nil))})
+		Logger: slog.New(slog.NewTextHandler(io.Discard, nil)), Now: clk.Now})
 	if err != nil {
 		t.Fatalf("starting the daemon: %v", err)
 	}
@@ -94,7 +96,7 @@ func startTestDaemon(t *testing.T) *testDaemon {
 	if err != nil {
 		t.Fatal(err)
 	}
-	return &testDaemon{addr: srv.Addr().String(), admin: admin, viewer: viewer}
+	return &testDaemon{addr: srv.Addr().String(), admin: admin, viewer: viewer, clock: clk}
 }
 
 // result is one run of the binary.
@@ -278,7 +280,10 @@ func TestClientAgainstDaemon(t *testing.T) {
 		t.Errorf("plan next: %v, want block %s of plan %s", &nr, first.GetBlockId(), plan.GetId())
 	}
 
-	// Progress: by flags, then the same report again (idempotent).
+	// Progress: by flags, then the same report again (idempotent). The
+	// daemon's clock moves past the run (a report must not be in the
+	// future).
+	d.clock.Set(first.GetEnd().AsTime().Add(time.Minute))
 	rep := []string{"progress", "report", "--block", first.GetBlockId(), "--frames", "2", "--report-id", "e2e-1",
 		"--start", first.GetStart().AsTime().Format(time.RFC3339), "--end", first.GetEnd().AsTime().Format(time.RFC3339),
 		"--plan", plan.GetId()}

@@ -227,9 +227,6 @@ type ledger struct {
 	unexpected                             []string
 }
 
-// crashT0 is the start of the runs the reports describe.
-var crashT0 = time.Date(2031, 3, 15, 21, 0, 0, 0, time.UTC)
-
 // TestCrashSafetyUnderSIGKILL: 20 rounds (5 with -short) of four
 // concurrent clients against a nightloomd process that is killed with
 // SIGKILL after a random number of acknowledgements (fixed seed). After
@@ -285,7 +282,7 @@ func TestCrashSafetyUnderSIGKILL(t *testing.T) {
 		targets = append(targets, r.GetTarget().GetId())
 	}
 	block := func(target, label string, wanted int32) *nightloomv1.Block {
-		return &nightloomv1.Block{SiteId: siteID, TargetId: target, Filter: "L", Exposure: durationpb.New(2 * time.Minute),
+		return &nightloomv1.Block{SiteId: siteID, TargetId: target, Filter: "L", Exposure: durationpb.New(10 * time.Second),
 			FramesWanted: wanted, MinRunFrames: 1, Priority: 3, Label: label}
 	}
 	var initial []*nightloomv1.Block
@@ -362,10 +359,12 @@ func crashClient(ctx context.Context, L *ledger, queue nightloomv1.QueueServiceC
 			blockID := L.blocks[rng.IntN(len(L.blocks))]
 			L.mu.Unlock()
 			id := fmt.Sprintf("r%02d-c%d-%04d", round, client, n)
-			start := crashT0.Add(time.Duration(n) * time.Minute)
+			// A run that just ended: reports must be possible (after the
+			// block was queued, not in the future, frames that fit).
+			start := time.Now().Add(-time.Minute).Truncate(time.Second)
 			call := &reportCall{req: &nightloomv1.ReportProgressRequest{Report: &nightloomv1.ProgressReport{
 				ReportId: id, BlockId: blockID, FramesKept: int32(1 + rng.IntN(4)),
-				Interval: &nightloomv1.TimeInterval{Start: timestamppb.New(start), End: timestamppb.New(start.Add(time.Minute))},
+				Interval: &nightloomv1.TimeInterval{Start: timestamppb.New(start), End: timestamppb.New(start.Add(50 * time.Second))},
 				Outcome:  nightloomv1.ProgressOutcome_PROGRESS_OUTCOME_DONE}}}
 			L.mu.Lock()
 			L.reports[id] = call
@@ -388,7 +387,7 @@ func crashClient(ctx context.Context, L *ledger, queue nightloomv1.QueueServiceC
 			req := &nightloomv1.QueueBlocksRequest{RequestId: id}
 			for i := 0; i < 1+rng.IntN(3); i++ {
 				req.Blocks = append(req.Blocks, &nightloomv1.Block{SiteId: siteID, TargetId: targets[rng.IntN(len(targets))],
-					Filter: "R", Exposure: durationpb.New(time.Minute), FramesWanted: int32(2 + rng.IntN(6)), MinRunFrames: 1,
+					Filter: "R", Exposure: durationpb.New(10 * time.Second), FramesWanted: int32(2 + rng.IntN(6)), MinRunFrames: 1,
 					Priority: 2, Label: fmt.Sprintf("%s#%d", id, i)})
 			}
 			call := &queueCall{req: req}

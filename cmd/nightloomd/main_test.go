@@ -222,17 +222,17 @@ func TestKill9KeepsAcknowledgedReports(t *testing.T) {
 		t.Fatal(err)
 	}
 	q, err := nightloomv1.NewQueueServiceClient(conn).QueueBlocks(ctx, &nightloomv1.QueueBlocksRequest{Blocks: []*nightloomv1.Block{{
-		SiteId: site.GetSite().GetId(), TargetId: tg.GetTarget().GetId(), Filter: "L", Exposure: durationpb.New(time.Minute),
+		SiteId: site.GetSite().GetId(), TargetId: tg.GetTarget().GetId(), Filter: "L", Exposure: durationpb.New(5 * time.Second),
 		FramesWanted: 1000, Priority: 5}}})
 	if err != nil {
 		t.Fatal(err)
 	}
 	block := q.GetBlocks()[0].GetId()
-	t0 := time.Date(2031, 3, 15, 21, 0, 0, 0, time.UTC)
+	t0 := time.Now().Add(-time.Minute).Truncate(time.Second) // a run that just ended (7 frames of 5 s fit)
 	const rounds = 3
 	for round := 1; round <= rounds; round++ {
 		rep := &nightloomv1.ReportProgressRequest{Report: &nightloomv1.ProgressReport{ReportId: fmt.Sprintf("kill-%d", round), BlockId: block,
-			FramesKept: 7, Interval: &nightloomv1.TimeInterval{Start: timestamppb.New(t0), End: timestamppb.New(t0.Add(10 * time.Minute))},
+			FramesKept: 7, Interval: &nightloomv1.TimeInterval{Start: timestamppb.New(t0), End: timestamppb.New(t0.Add(50 * time.Second))},
 			Outcome: nightloomv1.ProgressOutcome_PROGRESS_OUTCOME_DONE}}
 		r, err := nightloomv1.NewQueueServiceClient(conn).ReportProgress(ctx, rep)
 		if err != nil {

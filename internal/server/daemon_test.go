@@ -48,6 +48,7 @@ func TestRestartKeepsEverything(t *testing.T) {
 		t.Fatal(err)
 	}
 	t0 := time.Date(2031, 3, 15, 22, 0, 0, 0, time.UTC)
+	e.clock.Set(t0.Add(time.Hour)) // the report comes after its run
 	rp, err := e.queue.ReportProgress(as(RoleTelescope, e), &nightloomv1.ReportProgressRequest{Report: &nightloomv1.ProgressReport{
 		ReportId: "restart-1", BlockId: f.blocks[1].GetId(), FramesKept: 4,
 		Interval: &nightloomv1.TimeInterval{Start: ts(t0), End: ts(t0.Add(10 * time.Minute))}, Outcome: nightloomv1.ProgressOutcome_PROGRESS_OUTCOME_DONE}})
@@ -74,6 +75,7 @@ func TestRestartKeepsEverything(t *testing.T) {
 	if err != nil || !proto.Equal(gp.GetPlan(), mk.GetPlans()[0]) {
 		t.Fatalf("plan after restart: %v", err)
 	}
+	e2.clock.Set(t0.Add(time.Hour))
 	dup, err := e2.queue.ReportProgress(as(RoleTelescope, e2), &nightloomv1.ReportProgressRequest{Report: &nightloomv1.ProgressReport{
 		ReportId: "restart-1", BlockId: f.blocks[1].GetId(), FramesKept: 4,
 		Interval: &nightloomv1.TimeInterval{Start: ts(t0), End: ts(t0.Add(10 * time.Minute))}, Outcome: nightloomv1.ProgressOutcome_PROGRESS_OUTCOME_DONE}})

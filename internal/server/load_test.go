@@ -160,6 +160,7 @@ func TestLoad(t *testing.T) {
 	plan := mk.GetPlans()[0]
 	nightStart := plan.GetInterval().GetStart().AsTime()
 	t0 := nightStart.Add(time.Hour)
+	e.clock.Set(t0.Add(time.Hour)) // progress reports come after their runs
 
 	type weighted struct {
 		name   string
@@ -204,7 +205,7 @@ func TestLoad(t *testing.T) {
 			c.n++
 			_, err := c.queue.ReportProgress(c.ctx(RoleTelescope), &nightloomv1.ReportProgressRequest{Report: &nightloomv1.ProgressReport{
 				ReportId: fmt.Sprintf("load-c%d-%d", c.id, c.n), BlockId: sink[c.rng.IntN(len(sink))].GetId(), FramesKept: 1 + int32(c.rng.IntN(3)),
-				Interval: &nightloomv1.TimeInterval{Start: ts(t0), End: ts(t0.Add(5 * time.Minute))},
+				Interval: &nightloomv1.TimeInterval{Start: ts(t0), End: ts(t0.Add(10 * time.Minute))},
 				Outcome:  nightloomv1.ProgressOutcome_PROGRESS_OUTCOME_DONE}})
 			return err
 		}},
@@ -445,12 +446,14 @@ func TestFramesCountedUnderConcurrentReports(t *testing.T) {
 	f := e.seed(t, 0)
 	t0 := time.Date(2031, 3, 15, 21, 0, 0, 0, time.UTC)
 	for trial := 0; trial < trials; trial++ {
+		e.clock.Set(t0.Add(-time.Minute)) // queued before the run, reported after it
 		q, err := e.queue.QueueBlocks(as(RoleOperator, e), &nightloomv1.QueueBlocksRequest{
 			Blocks: []*nightloomv1.Block{testBlock(f.site.GetId(), f.targets[0].GetId(), "L", wanted, 5)}})
 		if err != nil {
 			t.Fatal(err)
 		}
 		id := q.GetBlocks()[0].GetId()
+		e.clock.Set(t0.Add(time.Hour))
 		bs.arm()
 		counted := make([]int32, reporters)
 		var wg sync.WaitGroup
@@ -460,7 +463,7 @@ func TestFramesCountedUnderConcurrentReports(t *testing.T) {
 				defer wg.Done()
 				r, err := e.queue.ReportProgress(as(RoleTelescope, e), &nightloomv1.ReportProgressRequest{Report: &nightloomv1.ProgressReport{
 					ReportId: fmt.Sprintf("count-%d-%d", trial, c), BlockId: id, FramesKept: kept,
-					Interval: &nightloomv1.TimeInterval{Start: ts(t0), End: ts(t0.Add(time.Minute))},
+					Interval: &nightloomv1.TimeInterval{Start: ts(t0), End: ts(t0.Add(10 * time.Minute))},
 					Outcome:  nightloomv1.ProgressOutcome_PROGRESS_OUTCOME_DONE}})
 				if err != nil {
 					t.Error(err)

@@ -21,7 +21,6 @@ import (
 	"google.golang.org/protobuf/types/known/timestamppb"
 
 	"github.com/nightloom/nightloom/constraints"
-	"github.com/nightloom/nightloom/ephem"
 	nightloomv1 "github.com/nightloom/nightloom/proto/nightloom/v1"
 	"github.com/nightloom/nightloom/scheduler"
 )
@@ -70,13 +69,14 @@ type schedulerPlanner struct{}
 // lookaheadStep is the coarse grid of the urgency lookahead.
 const lookaheadStep = scheduler.LookaheadStep
 
-// overheadsOf is the scheduler's overhead model of a site. The scheduler
-// slews at constant speed, so the axes' accelerations (site.proto) are not
-// used by the solver; they are by NextAssignment (axisTime).
+// overheadsOf is the scheduler's overhead model of a site: the one model of
+// slews (trapezoidal, per axis), settle, filter changes, focus, acquisition
+// and flips that planning, replanning and NextAssignment share.
 func overheadsOf(s *nightloomv1.Site) scheduler.Overheads {
 	m, in := s.GetMount(), s.GetInstrument()
 	o := scheduler.Overheads{
 		Axis1RateDegS: m.GetPrimaryAxis().GetRateDegPerS(), Axis2RateDegS: m.GetSecondaryAxis().GetRateDegPerS(),
+		Axis1AccelDegS2: m.GetPrimaryAxis().GetAccelerationDegPerS2(), Axis2AccelDegS2: m.GetSecondaryAxis().GetAccelerationDegPerS2(),
 		Settle: m.GetSettle().AsDuration(), Acquisition: in.GetAcquisition().AsDuration(),
 		FilterChange: in.GetFilterChange().AsDuration(), Readout: in.GetReadout().AsDuration(),
 		Dither: in.GetDither().AsDuration(),
@@ -111,7 +111,7 @@ func schedBlock(b *planBlock, byNight bool) scheduler.Block {
 
 func (schedulerPlanner) plan(ctx context.Context, job *planJob) (*nightloomv1.Plan, error) {
 	began := time.Now()
-	site := &scheduler.Site{Site: job.site.cons, Overheads: overheadsOf(job.site.pb)}
+	site := job.site.sched
 	body := &nightloomv1.Plan{Interval: &nightloomv1.TimeInterval{Start: timestamppb.New(job.start), End: timestamppb.New(job.end)}}
 	body.Assignments = append(body.Assignments, job.kept...)
 
@@ -237,85 +237,70 @@ func (schedulerPlanner) plan(ctx context.Context, job *planJob) (*nightloomv1.Pl
 	return body, nil
 }
 
-// assignmentsOf turns one scheduler run into one assignment, or two when a
-// meridian flip splits it.
+// assignmentsOf turns one scheduler assignment into the API's: one, or
+// two when a meridian flip splits it (scheduler.Problem.Runs).
 func assignmentsOf(job *planJob, prob *scheduler.Problem, a *scheduler.Assignment, ordinal int) []*nightloomv1.Assignment {
 	b := job.blocks[a.Block]
-	site := job.site.pb
-	exp := b.pb.GetExposure().AsDuration()
-	frame := exp + site.GetInstrument().GetReadout().AsDuration()
-	starts := a.FrameStarts
-	if len(starts) != a.Frames || a.Frames == 0 {
-		starts = nil // no layout: one part from Start to End
-	}
-	type part struct {
-		first, n   int
-		start, end time.Time
-		flipBefore time.Time // the flip's start, for the second part
-	}
-	parts := []part{{first: 0, n: a.Frames, start: a.Start, end: a.End}}
-	if !a.Flip.IsZero() && starts != nil && a.FlipBefore > 0 && a.FlipBefore < a.Frames {
-		k := a.FlipBefore
-		parts = []part{
-			{first: 0, n: k, start: starts[0], end: starts[k-1].Add(frame)},
-			{first: k, n: a.Frames - k, start: starts[k], end: a.End, flipBefore: starts[k-1].Add(frame)},
-		}
-	}
 	var out []*nightloomv1.Assignment
-	for pi, p := range parts {
-		as := &nightloomv1.Assignment{
-			BlockId: b.pb.GetId(), TargetId: b.pb.GetTargetId(), TargetName: b.target.pb.GetName(),
-			Start: timestamppb.New(p.start), End: timestamppb.New(p.end), Frames: int32(p.n),
-			Filter: b.pb.GetFilter(), Exposure: durationpb.New(exp), DitherEveryFrames: b.pb.GetDitherEveryFrames(),
-			NonSiderealTracking: b.pb.GetNonSiderealTracking(),
-		}
-		oh := &nightloomv1.Overheads{}
-		if pi == 0 {
-			s := a.Spent
-			oh.Slew, oh.Settle, oh.Acquisition = durationpb.New(s.Slew), durationpb.New(s.Settle), durationpb.New(s.Acquisition)
-			oh.FilterChange, oh.Focus, oh.MeridianFlip = durationpb.New(s.FilterChange), durationpb.New(s.Focus), durationpb.New(0)
-		} else {
-			zero := durationpb.New(0)
-			oh.Slew, oh.Settle, oh.Acquisition, oh.FilterChange, oh.Focus = zero, zero, zero, zero, zero
-			oh.MeridianFlip = durationpb.New(p.start.Sub(p.flipBefore))
-		}
-		as.Overheads = oh
-		total := oh.Slew.AsDuration() + oh.Settle.AsDuration() + oh.Acquisition.AsDuration() + oh.FilterChange.AsDuration() +
-			oh.Focus.AsDuration() + oh.MeridianFlip.AsDuration()
-		as.PrepareStart = timestamppb.New(p.start.Add(-total))
-		if b.pb.GetCadence() != nil {
-			as.CadenceRun = int32(ordinal)
-		}
-		o0 := observe(job.site.cons, b.target.model, p.start)
-		o1 := observe(job.site.cons, b.target.model, p.end)
-		as.Pointing = o0.pointing
-		if o0.moving {
-			as.Rate = &nightloomv1.NonSiderealRate{RaCosDecArcsecPerMin: o0.rateRA, DecArcsecPerMin: o0.rateDec}
-		}
-		as.ConditionsAtStart = conditions(o0, qualityAt(prob, a.Block, p.start))
-		as.ConditionsAtEnd = conditions(o1, qualityAt(prob, a.Block, p.end.Add(-time.Nanosecond)))
-		out = append(out, as)
+	for _, r := range prob.Runs(a) {
+		out = append(out, assignmentProto(b.pb, b.target.pb, r, ordinal))
 	}
 	return out
 }
 
-// qualityAt is the grid's quality factor of block b at t.
-func qualityAt(prob *scheduler.Problem, b int, t time.Time) float64 {
-	g := prob.Grid
-	return float64(prob.Vis[b].Quality[g.Index(t)])
+// assignmentProto converts a run of block b (target t) to the API's
+// assignment; ordinal is the run's number among the block's cadence runs.
+func assignmentProto(b *nightloomv1.Block, t *nightloomv1.Target, r scheduler.Run, ordinal int) *nightloomv1.Assignment {
+	as := &nightloomv1.Assignment{
+		BlockId: b.GetId(), TargetId: b.GetTargetId(), TargetName: t.GetName(),
+		Start: timestamppb.New(r.Start), End: timestamppb.New(r.End), Frames: int32(r.Frames),
+		Filter: b.GetFilter(), Exposure: durationpb.New(r.Exposure), DitherEveryFrames: b.GetDitherEveryFrames(),
+		NonSiderealTracking: b.GetNonSiderealTracking(), PrepareStart: timestamppb.New(r.PrepareStart),
+	}
+	o := r.Overheads
+	as.Overheads = &nightloomv1.Overheads{Slew: durationpb.New(o.Slew), Settle: durationpb.New(o.Settle),
+		Acquisition: durationpb.New(o.Acquisition), FilterChange: durationpb.New(o.FilterChange),
+		Focus: durationpb.New(o.Focus), MeridianFlip: durationpb.New(o.Flip)}
+	if b.GetCadence() != nil {
+		as.CadenceRun = int32(ordinal)
+	}
+	as.Pointing = pointingOf(r.AtStart)
+	if r.AtStart.Moving {
+		as.Rate = &nightloomv1.NonSiderealRate{RaCosDecArcsecPerMin: r.AtStart.RateRA, DecArcsecPerMin: r.AtStart.RateDec}
+	}
+	as.ConditionsAtStart = conditions(r.AtStart, r.QualityStart)
+	as.ConditionsAtEnd = conditions(r.AtEnd, r.QualityEnd)
+	return as
+}
+
+// runOf is the domain's view of a stored assignment of a block whose
+// target is t: times, frames, overheads and the pointing at the start
+// (the observations at both ends are recomputed when the run changes).
+func runOf(a *nightloomv1.Assignment, t *constraints.Target) scheduler.Run {
+	o := a.GetOverheads()
+	r := scheduler.Run{Block: -1, ID: a.GetBlockId(), Target: t, Filter: a.GetFilter(), Exposure: a.GetExposure().AsDuration(),
+		DitherEvery: int(a.GetDitherEveryFrames()), Start: a.GetStart().AsTime(), End: a.GetEnd().AsTime(),
+		PrepareStart: a.GetPrepareStart().AsTime(), Frames: int(a.GetFrames()),
+		Overheads: scheduler.Spent{Slew: o.GetSlew().AsDuration(), Settle: o.GetSettle().AsDuration(),
+			FilterChange: o.GetFilterChange().AsDuration(), Focus: o.GetFocus().AsDuration(),
+			Acquisition: o.GetAcquisition().AsDuration(), Flip: o.GetMeridianFlip().AsDuration()}}
+	p := a.GetPointing()
+	r.AtStart = constraints.Observation{HADeg: p.GetHourAngleDeg(), DecDeg: p.GetDecApparentDeg(), RADeg: p.GetRaApparentDeg(),
+		AltDeg: p.GetAltitudeDeg(), AzDeg: p.GetAzimuthDeg(), RAICRSDeg: p.GetRaIcrsDeg(), DecICRSDeg: p.GetDecIcrsDeg()}
+	return r
 }
 
 // conditions are the predicted conditions of an observation.
-func conditions(o observation, quality float64) *nightloomv1.PredictedConditions {
-	c := &nightloomv1.PredictedConditions{AltitudeDeg: o.altDeg, MoonSeparationDeg: o.moonSepDeg, Quality: quality}
-	if !math.IsInf(o.airmass, 0) {
-		c.Airmass = o.airmass
+func conditions(o constraints.Observation, quality float64) *nightloomv1.PredictedConditions {
+	c := &nightloomv1.PredictedConditions{AltitudeDeg: o.AltDeg, MoonSeparationDeg: o.MoonSepDeg, Quality: quality}
+	if !math.IsInf(o.Airmass, 0) {
+		c.Airmass = o.Airmass
 	}
-	if !math.IsNaN(o.sky) {
-		c.SkyBrightnessVMagArcsec2 = o.sky
+	if !math.IsNaN(o.Sky) {
+		c.SkyBrightnessVMagArcsec2 = o.Sky
 	}
-	if !math.IsNaN(o.observedMagnitude) {
-		c.Magnitude = proto.Float64(o.observedMagnitude)
+	if !math.IsNaN(o.ObservedMagnitude) {
+		c.Magnitude = proto.Float64(o.ObservedMagnitude)
 	}
 	return c
 }
@@ -333,7 +318,7 @@ func unplacedOf(job *planJob, prob *scheduler.Problem, u *scheduler.Unplaced) *n
 	case scheduler.WindowTooShort:
 		out.Reason = nightloomv1.Reason_REASON_WINDOW_TOO_SHORT
 		out.Detail = fmt.Sprintf("longest window %s is shorter than the shortest useful run (%s with overheads)",
-			roundMin(u.LongestWindow), roundMin(shortestRun(job.site.pb, b.pb)))
+			roundMin(u.LongestWindow), roundMin(shortestRun(job.site, b.pb)))
 	default:
 		out.Reason = nightloomv1.Reason_REASON_LOST_TO_HIGHER_VALUE
 		out.Detail = "observable " + windowsText(prob, u.Block, clock) + ", but the time went to blocks of higher value"
@@ -423,117 +408,70 @@ func closedTime(cs []*nightloomv1.Closure, from, to time.Time) time.Duration {
 	return d
 }
 
-// truncateAssignment ends a run at cut with the frames that fit (Replan:
-// a closure overlaps the run in progress); nil when none fits.
-func truncateAssignment(site *siteModel, a *nightloomv1.Assignment, cut time.Time) *nightloomv1.Assignment {
-	start := a.GetStart().AsTime()
-	exp := a.GetExposure().AsDuration()
-	every := int(a.GetDitherEveryFrames())
-	n := int(a.GetFrames())
-	for n > 0 && start.Add(runLength(site.pb, exp, n, every)).After(cut) {
-		n--
+// shortestRun is the time a block's shortest useful run needs with the
+// overheads before it (scheduler.Site.ShortestRun): min_run_frames, or the
+// frames left if fewer.
+func shortestRun(site *siteModel, b *nightloomv1.Block) time.Duration {
+	n := int(max(1, b.GetMinRunFrames()))
+	if left := int(b.GetFramesWanted() - b.GetFramesDone()); left > 0 && left < n {
+		n = left
 	}
-	if n == 0 {
+	return site.sched.ShortestRun(b.GetExposure().AsDuration(), n, int(b.GetDitherEveryFrames()))
+}
+
+// truncateAssignment ends a run at cut with the frames that fit and its
+// conditions recomputed (Replan: a closure overlaps the run in progress);
+// nil when none fits.
+func truncateAssignment(site *siteModel, a *nightloomv1.Assignment, t *constraints.Target, cut time.Time) *nightloomv1.Assignment {
+	r, ok := site.sched.Truncate(runOf(a, t), cut)
+	if !ok {
 		return nil
 	}
+	if r.Frames == int(a.GetFrames()) {
+		return a
+	}
 	out := proto.Clone(a).(*nightloomv1.Assignment)
-	out.Frames = int32(n)
-	out.End = timestamppb.New(start.Add(runLength(site.pb, exp, n, every)))
+	out.Frames, out.End = int32(r.Frames), timestamppb.New(r.End)
+	out.ConditionsAtEnd = conditions(r.AtEnd, r.QualityEnd)
 	return out
 }
 
-// dispatch adjusts a planned assignment for NextAssignment: the frames the
-// block still wants, and overheads from the telescope's actual state. A run
-// already in progress at now is returned as planned. nil means the run has
-// nothing left to do.
-func dispatch(site *siteModel, a *nightloomv1.Assignment, b *nightloomv1.Block, state *nightloomv1.TelescopeState, now time.Time) (*nightloomv1.Assignment, bool) {
-	left := int(b.GetFramesWanted() - b.GetFramesDone())
-	if left <= 0 {
-		return nil, false
-	}
-	out := proto.Clone(a).(*nightloomv1.Assignment)
-	start := a.GetStart().AsTime()
-	if !start.After(now) {
-		return out, true
-	}
-	asPlanned := true
-	if int(out.GetFrames()) > left {
-		out.Frames = int32(left)
-		out.End = timestamppb.New(start.Add(runLength(site.pb, a.GetExposure().AsDuration(), left, int(a.GetDitherEveryFrames()))))
-		asPlanned = false
-	}
-	if state != nil && (state.GetPosition() != nil || state.GetFilter() != "" || state.GetLastFocusTime() != nil) {
-		oh := proto.Clone(a.GetOverheads()).(*nightloomv1.Overheads)
-		m, in := site.pb.GetMount(), site.pb.GetInstrument()
+// dispatch adjusts a planned assignment for NextAssignment
+// (scheduler.Site.Redispatch): the frames the block still wants, overheads
+// from the telescope's actual state, a later start if need be, and the
+// constraints re-checked over a moved run. A run already in progress at now
+// is returned as planned. nil means the run has nothing left to do.
+func dispatch(site *siteModel, a *nightloomv1.Assignment, b *nightloomv1.Block, t *constraints.Target, req *constraints.Request,
+	state *nightloomv1.TelescopeState, now time.Time) (*nightloomv1.Assignment, bool) {
+	var st *scheduler.TelescopeState
+	if state != nil {
+		st = &scheduler.TelescopeState{Filter: state.GetFilter()}
 		if p := state.GetPosition(); p != nil {
-			oh.Slew = durationpb.New(slewTime(site, p.GetAltitudeDeg(), p.GetAzimuthDeg(), a.GetPointing()))
-			if oh.Slew.AsDuration() > 0 {
-				oh.Settle = durationpb.New(m.GetSettle().AsDuration())
-			}
-		}
-		changed := false
-		if f := state.GetFilter(); f != "" {
-			changed = f != a.GetFilter()
-			oh.FilterChange = durationpb.New(0)
-			if changed {
-				oh.FilterChange = durationpb.New(in.GetFilterChange().AsDuration())
-			}
+			st.HasPosition, st.AltDeg, st.AzDeg = true, p.GetAltitudeDeg(), p.GetAzimuthDeg()
 		}
 		if lf := state.GetLastFocusTime(); lf != nil {
-			fp := in.GetFocus()
-			due := fp != nil && ((fp.GetInterval().AsDuration() > 0 && start.Sub(lf.AsTime()) >= fp.GetInterval().AsDuration()) ||
-				(changed && fp.GetOnFilterChange()))
-			oh.Focus = durationpb.New(0)
-			if due {
-				oh.Focus = durationpb.New(fp.GetDuration().AsDuration())
-			}
+			st.LastFocus = lf.AsTime()
 		}
-		if !proto.Equal(oh, a.GetOverheads()) {
-			asPlanned = false
-		}
-		out.Overheads = oh
-		total := oh.GetSlew().AsDuration() + oh.GetSettle().AsDuration() + oh.GetAcquisition().AsDuration() +
-			oh.GetFilterChange().AsDuration() + oh.GetFocus().AsDuration() + oh.GetMeridianFlip().AsDuration()
-		ps := start.Add(-total)
-		if ps.Before(now) {
-			// The preparations cannot begin in the past: start later.
-			shift := now.Sub(ps)
-			ps = now
-			out.Start = timestamppb.New(start.Add(shift))
-			out.End = timestamppb.New(out.GetEnd().AsTime().Add(shift))
-			asPlanned = false
-		}
-		out.PrepareStart = timestamppb.New(ps)
 	}
-	return out, asPlanned
-}
-
-// slewTime is the time to slew from a horizontal position to a pointing on
-// the site's two axes (trapezoidal profile; the slower axis counts):
-// azimuth and altitude for alt-azimuth mounts, hour angle and declination
-// for equatorial ones.
-func slewTime(site *siteModel, altDeg, azDeg float64, to *nightloomv1.Pointing) time.Duration {
-	m := site.pb.GetMount()
-	var d1, d2 float64
-	if m.GetKind() == nightloomv1.MountKind_MOUNT_KIND_ALT_AZIMUTH {
-		d1 = math.Abs(math.Remainder(to.GetAzimuthDeg()-azDeg, 360))
-		d2 = math.Abs(to.GetAltitudeDeg() - altDeg)
-	} else {
-		ha, dec := horizontalToHADec(site.pb.GetLatitudeDeg(), altDeg, azDeg)
-		d1 = math.Abs(math.Remainder(to.GetHourAngleDeg()-ha, 360))
-		d2 = math.Abs(to.GetDecApparentDeg() - dec)
+	r, asPlanned, ok := site.sched.Redispatch(runOf(a, t), int(b.GetFramesWanted()-b.GetFramesDone()), st, req, now)
+	if !ok {
+		return nil, false
 	}
-	return max(axisTime(m.GetPrimaryAxis(), d1), axisTime(m.GetSecondaryAxis(), d2))
-}
-
-// horizontalToHADec converts altitude and azimuth (north through east) to
-// hour angle and declination at a latitude, all in degrees (the standard
-// spherical-triangle relations, e.g. Meeus, Astronomical Algorithms, 2nd
-// ed., ch. 13, with azimuth from north).
-func horizontalToHADec(latDeg, altDeg, azDeg float64) (haDeg, decDeg float64) {
-	phi, h, a := latDeg*ephem.Deg2Rad, altDeg*ephem.Deg2Rad, azDeg*ephem.Deg2Rad
-	sd := math.Sin(phi)*math.Sin(h) + math.Cos(phi)*math.Cos(h)*math.Cos(a)
-	dec := math.Asin(math.Max(-1, math.Min(1, sd)))
-	ha := math.Atan2(-math.Sin(a)*math.Cos(h), math.Cos(phi)*math.Sin(h)-math.Sin(phi)*math.Cos(h)*math.Cos(a))
-	return ha * ephem.Rad2Deg, dec * ephem.Rad2Deg
+	if asPlanned {
+		return proto.Clone(a).(*nightloomv1.Assignment), true
+	}
+	out := proto.Clone(a).(*nightloomv1.Assignment)
+	out.Start, out.End, out.PrepareStart = timestamppb.New(r.Start), timestamppb.New(r.End), timestamppb.New(r.PrepareStart)
+	out.Frames = int32(r.Frames)
+	o := r.Overheads
+	out.Overheads = &nightloomv1.Overheads{Slew: durationpb.New(o.Slew), Settle: durationpb.New(o.Settle),
+		Acquisition: durationpb.New(o.Acquisition), FilterChange: durationpb.New(o.FilterChange),
+		Focus: durationpb.New(o.Focus), MeridianFlip: durationpb.New(o.Flip)}
+	out.Pointing = pointingOf(r.AtStart)
+	if r.AtStart.Moving {
+		out.Rate = &nightloomv1.NonSiderealRate{RaCosDecArcsecPerMin: r.AtStart.RateRA, DecArcsecPerMin: r.AtStart.RateDec}
+	}
+	out.ConditionsAtStart = conditions(r.AtStart, r.QualityStart)
+	out.ConditionsAtEnd = conditions(r.AtEnd, r.QualityEnd)
+	return out, false
 }

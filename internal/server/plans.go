@@ -14,6 +14,7 @@ import (
 	"google.golang.org/protobuf/types/known/durationpb"
 	"google.golang.org/protobuf/types/known/timestamppb"
 
+	"github.com/nightloom/nightloom/constraints"
 	"github.com/nightloom/nightloom/internal/store"
 	nightloomv1 "github.com/nightloom/nightloom/proto/nightloom/v1"
 )
@@ -505,34 +506,79 @@ func (s *Server) replanLocked(ctx context.Context, site *siteModel, old *nightlo
 		return nil, 0, 0, failedPrecondition("%d open blocks x %d grid steps exceed %d block-steps", len(blocks), steps, MaxBlockSteps)
 	}
 
-	// What stays: runs over before `from`, and the one in progress unless
-	// a closure cuts it (then it ends at the closure with the frames that
-	// fit).
+	// What stays: runs over before `from`, as their progress reports say
+	// they went (a run reported short or interrupted ends where the report
+	// ends, with the frames it kept), and the one in progress unless a
+	// closure cuts it (then it ends at the closure with the frames that
+	// fit, its conditions recomputed).
+	reports, err := s.db.ReportsEndingAfter(ctx, site.pb.GetId(), start)
+	if err != nil {
+		return nil, 0, 0, err
+	}
+	targets := map[string]*constraints.Target{}
+	for _, b := range blocks {
+		targets[b.pb.GetId()] = b.target.model
+	}
+	targetOf := func(blockID string) (*constraints.Target, error) {
+		if t, ok := targets[blockID]; ok {
+			return t, nil
+		}
+		rec, err := s.db.GetBlock(ctx, blockID)
+		if err != nil {
+			return nil, err
+		}
+		b, err := blockProto(rec, nil, s.now())
+		if err != nil {
+			return nil, err
+		}
+		_, t, err := s.loadTarget(ctx, b.GetTargetId())
+		if err != nil {
+			return nil, err
+		}
+		targets[blockID] = t
+		return t, nil
+	}
 	var kept, previous []*nightloomv1.Assignment
 	var inProgress *nightloomv1.Assignment
 	for _, a := range old.GetAssignments() {
 		a0, a1 := a.GetPrepareStart().AsTime(), a.GetEnd().AsTime()
-		switch {
-		case !a0.Before(from):
+		if !a0.Before(from) {
 			previous = append(previous, a)
-		case !a1.After(from):
+			continue
+		}
+		if rep, ok := reportOf(reports, a); ok {
+			if rep.FramesKept == 0 || !rep.End.After(a.GetStart().AsTime()) {
+				continue // nothing was kept: the run did not happen
+			}
+			t, err := targetOf(a.GetBlockId())
+			if err != nil {
+				return nil, 0, 0, err
+			}
+			kept = append(kept, asReported(site, a, t, rep))
+			continue
+		}
+		if !a1.After(from) {
 			kept = append(kept, a)
-		case a0.Before(from):
-			cut := a1
-			for _, c := range cls {
-				c0, c1 := c.GetInterval().GetStart().AsTime(), c.GetInterval().GetEnd().AsTime()
-				if overlaps(from, a1, c0, c1) && c0.Before(cut) {
-					cut = c0
-				}
+			continue
+		}
+		cut := a1
+		for _, c := range cls {
+			c0, c1 := c.GetInterval().GetStart().AsTime(), c.GetInterval().GetEnd().AsTime()
+			if overlaps(from, a1, c0, c1) && c0.Before(cut) {
+				cut = c0
 			}
-			if cut.Equal(a1) {
-				inProgress = a
-			} else {
-				inProgress = truncateAssignment(site, a, cut)
+		}
+		if cut.Equal(a1) {
+			inProgress = a
+		} else {
+			t, err := targetOf(a.GetBlockId())
+			if err != nil {
+				return nil, 0, 0, err
 			}
-			if inProgress != nil {
-				kept = append(kept, inProgress)
-			}
+			inProgress = truncateAssignment(site, a, t, cut)
+		}
+		if inProgress != nil {
+			kept = append(kept, inProgress)
 		}
 	}
 	if old.GetNight() != nil {
@@ -581,6 +627,37 @@ func (s *Server) replanLocked(ctx context.Context, site *siteModel, old *nightlo
 		}
 	}
 	return stored, keptN, changedN, nil
+}
+
+// reportSlack is how early before an assignment's preparations a report's
+// interval may start and still be taken as the report of that run (the
+// executor's clock and its own preparations).
+const reportSlack = 5 * time.Minute
+
+// reportOf finds the progress report of a planned run: a report for the
+// same block whose interval starts between the run's preparations (less
+// reportSlack) and its planned end.
+func reportOf(reports []store.ProgressReport, a *nightloomv1.Assignment) (store.ProgressReport, bool) {
+	p0, end := a.GetPrepareStart().AsTime().Add(-reportSlack), a.GetEnd().AsTime()
+	for _, r := range reports {
+		if r.BlockID == a.GetBlockId() && !r.Start.Before(p0) && r.Start.Before(end) {
+			return r, true
+		}
+	}
+	return store.ProgressReport{}, false
+}
+
+// asReported is a planned run as its report says it went: the frames kept,
+// ending where the report ends, its conditions there recomputed.
+func asReported(site *siteModel, a *nightloomv1.Assignment, t *constraints.Target, rep store.ProgressReport) *nightloomv1.Assignment {
+	if int(a.GetFrames()) == rep.FramesKept && rep.End.Equal(a.GetEnd().AsTime()) {
+		return a
+	}
+	out := proto.Clone(a).(*nightloomv1.Assignment)
+	out.Frames, out.End = int32(rep.FramesKept), timestamppb.New(rep.End)
+	o := constraints.Observe(site.cons, t, rep.End)
+	out.ConditionsAtEnd = conditions(o, constraints.Quality(site.cons, o))
+	return out
 }
 
 // mergeClosures sorts closures and merges overlapping or touching ones
@@ -648,14 +725,23 @@ func (x *planService) NextAssignment(ctx context.Context, req *nightloomv1.NextA
 		return resp, nil
 	}
 	resp.PlanId, resp.PlanVersion = p.GetId(), p.GetVersion()
-	blocks := map[string]*nightloomv1.Block{}
+	reports, err := s.db.ReportsEndingAfter(ctx, site.pb.GetId(), p.GetInterval().GetStart().AsTime())
+	if err != nil {
+		return nil, err
+	}
+	type blockInfo struct {
+		pb     *nightloomv1.Block
+		target *constraints.Target
+		req    constraints.Request
+	}
+	blocks := map[string]*blockInfo{}
 	sites := s.newSiteCache()
 	sites.sites[site.pb.GetId()] = site
 	for _, a := range p.GetAssignments() {
 		if !a.GetEnd().AsTime().After(now) {
 			continue
 		}
-		b, ok := blocks[a.GetBlockId()]
+		bi, ok := blocks[a.GetBlockId()]
 		if !ok {
 			rec, err := s.db.GetBlock(ctx, a.GetBlockId())
 			if errors.Is(err, store.ErrNotFound) {
@@ -664,15 +750,49 @@ func (x *planService) NextAssignment(ctx context.Context, req *nightloomv1.NextA
 			if err != nil {
 				return nil, err
 			}
-			if b, err = sites.blockOut(ctx, rec); err != nil {
+			b, err := sites.blockOut(ctx, rec)
+			if err != nil {
 				return nil, err
 			}
-			blocks[a.GetBlockId()] = b
+			tpb, t, err := s.loadTarget(ctx, b.GetTargetId())
+			if errors.Is(err, store.ErrNotFound) {
+				continue
+			}
+			if err != nil {
+				return nil, err
+			}
+			bi = &blockInfo{pb: b, target: t, req: constraints.Request{Set: constraintSet(b.GetConstraints(), hasMagLaw(tpb)),
+				Exposure: b.GetExposure().AsDuration(), NonSidereal: b.GetNonSiderealTracking()}}
+			dateLimits(bi.req.Set, b)
+			blocks[a.GetBlockId()] = bi
 		}
-		if b.GetState() != nightloomv1.BlockState_BLOCK_STATE_OPEN {
+		if bi.pb.GetState() != nightloomv1.BlockState_BLOCK_STATE_OPEN {
 			continue
 		}
-		out, asPlanned := dispatch(site, a, b, req.GetState(), now)
+		if !a.GetStart().AsTime().After(now) {
+			rep, reported := reportOf(reports, a)
+			if !reported {
+				resp.Assignment, resp.AsPlanned = proto.Clone(a).(*nightloomv1.Assignment), true // in progress
+				return resp, nil
+			}
+			// The run was reported short or interrupted: what it did not
+			// take is open again, from now, if it still fits its
+			// constraints before the run's planned end.
+			rest := proto.Clone(a).(*nightloomv1.Assignment)
+			rest.Frames = a.GetFrames() - int32(rep.FramesKept)
+			if rest.Frames <= 0 {
+				continue
+			}
+			rest.Start = timestamppb.New(now)
+			rest.End = timestamppb.New(now.Add(site.sched.RunLength(a.GetExposure().AsDuration(), int(rest.Frames), int(a.GetDitherEveryFrames()))))
+			out, _ := dispatch(site, rest, bi.pb, bi.target, &bi.req, req.GetState(), now)
+			if out == nil || out.GetEnd().AsTime().After(a.GetEnd().AsTime()) {
+				continue
+			}
+			resp.Assignment, resp.AsPlanned = out, false
+			return resp, nil
+		}
+		out, asPlanned := dispatch(site, a, bi.pb, bi.target, &bi.req, req.GetState(), now)
 		if out == nil {
 			continue
 		}

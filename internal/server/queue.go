@@ -354,6 +354,62 @@ func checkReport(v *violations, path string, r *nightloomv1.ProgressReport) (tim
 	return start, end
 }
 
+// Limits on what a progress report may claim (checkReportFacts).
+const (
+	// ReportClockTolerance is how far past the server's clock a report's
+	// interval may end (the telescope's clock may run ahead).
+	ReportClockTolerance = 2 * time.Minute
+	// MaxReportSpan is the longest interval a report may cover: no run
+	// lasts longer than a night.
+	MaxReportSpan = 24 * time.Hour
+	// reportFitTolerance absorbs the rounding of the telescope's clock
+	// when frames are checked against the interval.
+	reportFitTolerance = 2 * time.Second
+)
+
+// checkReportFacts refuses a report that cannot be true: frames that do not
+// fit its interval at the block's exposure and the site's readout (the last
+// readout may fall after the interval), an interval that ends in the
+// future beyond ReportClockTolerance, starts before the block was queued
+// or lasts longer than MaxReportSpan. Nothing is stored for a refused
+// report.
+func (s *Server) checkReportFacts(ctx context.Context, r *nightloomv1.ProgressReport, start, end time.Time) error {
+	rec, err := s.db.GetBlock(ctx, r.GetBlockId())
+	if err != nil {
+		return err
+	}
+	b, err := blockProto(rec, nil, s.now())
+	if err != nil {
+		return err
+	}
+	site, _, err := s.loadSite(ctx, rec.SiteID)
+	if err != nil {
+		return err
+	}
+	var v violations
+	now := s.now()
+	if end.After(now.Add(ReportClockTolerance)) {
+		v.add("report.interval.end", "%s is in the future (now %s, tolerance %v)", end.Format(time.RFC3339),
+			now.Format(time.RFC3339), ReportClockTolerance)
+	}
+	if start.Before(rec.CreatedAt.Add(-ReportClockTolerance)) {
+		v.add("report.interval.start", "%s is before the block was queued (%s)", start.Format(time.RFC3339),
+			rec.CreatedAt.Format(time.RFC3339))
+	}
+	if d := end.Sub(start); d > MaxReportSpan {
+		v.add("report.interval", "lasts %v, longer than a night (at most %v)", d, MaxReportSpan)
+	}
+	if n := int(r.GetFramesKept()); n > 0 {
+		exp, readout := b.GetExposure().AsDuration(), site.sched.Readout
+		need := time.Duration(n)*exp + time.Duration(n-1)*readout
+		if need > end.Sub(start)+reportFitTolerance {
+			v.add("report.frames_kept", "%d frames of %v with %v readout need at least %v; the interval lasts %v",
+				n, exp, readout, need, end.Sub(start))
+		}
+	}
+	return v.err()
+}
+
 func (x *queueService) ReportProgress(ctx context.Context, req *nightloomv1.ReportProgressRequest) (*nightloomv1.ReportProgressResponse, error) {
 	var v violations
 	start, end := checkReport(&v, "report", req.GetReport())
@@ -361,6 +417,9 @@ func (x *queueService) ReportProgress(ctx context.Context, req *nightloomv1.Repo
 		return nil, err
 	}
 	r := req.GetReport()
+	if err := x.s.checkReportFacts(ctx, r, start, end); err != nil {
+		return nil, err
+	}
 	after, dup, err := x.s.db.ReportProgress(ctx, store.ProgressReport{
 		ReportID: r.GetReportId(), BlockID: r.GetBlockId(), FramesKept: int(r.GetFramesKept()),
 		Start: start, End: end, Outcome: r.GetOutcome().String(),

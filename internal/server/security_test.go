@@ -224,6 +224,7 @@ func validCalls(e *env, f fixture, plan *nightloomv1.Plan) map[string]validCall 
 		nightloomv1.QueueService_ReportProgress_FullMethodName: func(*testing.T) func(ctx context.Context) error {
 			id := fmt.Sprintf("auth-report-%d", next())
 			return func(ctx context.Context) error {
+				e.clock.Set(p0.Add(2 * time.Hour)) // a report comes after its run
 				_, err := e.queue.ReportProgress(ctx, &nightloomv1.ReportProgressRequest{Report: &nightloomv1.ProgressReport{
 					ReportId: id, BlockId: blk, FramesKept: 0,
 					Interval: &nightloomv1.TimeInterval{Start: ts(p0), End: ts(p0.Add(time.Minute))},

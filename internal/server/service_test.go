@@ -12,6 +12,7 @@ import (
 	"google.golang.org/protobuf/proto"
 	"google.golang.org/protobuf/types/known/fieldmaskpb"
 
+	"github.com/nightloom/nightloom/constraints"
 	nightloomv1 "github.com/nightloom/nightloom/proto/nightloom/v1"
 )
 
@@ -259,6 +260,7 @@ func TestReportProgressIdempotent(t *testing.T) {
 	b := f.blocks[0] // 10 frames wanted
 	tel := as(RoleTelescope, e)
 	t0 := time.Date(2031, 3, 15, 21, 0, 0, 0, time.UTC)
+	e.clock.Set(t0.Add(time.Hour)) // reports come after the run
 	rep := func(id string, frames int32, outcome nightloomv1.ProgressOutcome) *nightloomv1.ReportProgressRequest {
 		return &nightloomv1.ReportProgressRequest{Report: &nightloomv1.ProgressReport{ReportId: id, BlockId: b.GetId(), FramesKept: frames,
 			Interval: &nightloomv1.TimeInterval{Start: ts(t0), End: ts(t0.Add(20 * time.Minute))}, Outcome: outcome, Note: "seeing 2.1\""}}
@@ -425,9 +427,14 @@ func TestPlanLifecycle(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
+	// The block's frames in one report: an interval long enough to hold
+	// them, ending where the current run ends (reports must be possible).
+	wanted := blk.GetBlock().GetFramesWanted()
+	frame := blk.GetBlock().GetExposure().AsDuration() + 4*time.Second
+	e.clock.Set(cur.GetEnd().AsTime())
 	if _, err := e.queue.ReportProgress(tel, &nightloomv1.ReportProgressRequest{Report: &nightloomv1.ProgressReport{
-		ReportId: "complete-" + b0, BlockId: b0, FramesKept: blk.GetBlock().GetFramesWanted(),
-		Interval: &nightloomv1.TimeInterval{Start: cur.GetStart(), End: cur.GetEnd()}, Outcome: nightloomv1.ProgressOutcome_PROGRESS_OUTCOME_DONE, PlanId: np.GetId()}}); err != nil {
+		ReportId: "complete-" + b0, BlockId: b0, FramesKept: wanted,
+		Interval: &nightloomv1.TimeInterval{Start: ts(cur.GetEnd().AsTime().Add(-time.Duration(wanted) * frame)), End: cur.GetEnd()}, Outcome: nightloomv1.ProgressOutcome_PROGRESS_OUTCOME_DONE, PlanId: np.GetId()}}); err != nil {
 		t.Fatal(err)
 	}
 	na, err = e.plans.NextAssignment(tel, &nightloomv1.NextAssignmentRequest{SiteId: site, Now: cur.GetEnd()})
@@ -441,7 +448,7 @@ func TestPlanLifecycle(t *testing.T) {
 	// and another filter change the overheads.
 	nb := na.GetAssignment()
 	if nb != nil {
-		st := &nightloomv1.TelescopeState{Position: &nightloomv1.HorizontalPosition{AltitudeDeg: 20, AzimuthDeg: wrap360(nb.GetPointing().GetAzimuthDeg() + 170)},
+		st := &nightloomv1.TelescopeState{Position: &nightloomv1.HorizontalPosition{AltitudeDeg: 20, AzimuthDeg: constraints.Wrap360(nb.GetPointing().GetAzimuthDeg() + 170)},
 			Filter: "Ha-not-" + nb.GetFilter()}
 		na2, err := e.plans.NextAssignment(tel, &nightloomv1.NextAssignmentRequest{SiteId: site, Now: cur.GetEnd(), State: st})
 		if err != nil {

@@ -10,6 +10,7 @@ import (
 	"github.com/nightloom/nightloom/constraints"
 	"github.com/nightloom/nightloom/ephem"
 	nightloomv1 "github.com/nightloom/nightloom/proto/nightloom/v1"
+	"github.com/nightloom/nightloom/scheduler"
 )
 
 // Site defaults applied on create (site.proto).
@@ -165,8 +166,9 @@ func checkInstrument(v *violations, path string, in *nightloomv1.Instrument) {
 
 // siteModel is a validated site in the forms the server computes with.
 type siteModel struct {
-	pb   *nightloomv1.Site
-	cons *constraints.Site
+	pb    *nightloomv1.Site
+	cons  *constraints.Site
+	sched *scheduler.Site // cons with the overhead model
 }
 
 // newSiteModel builds the constraint evaluator's view of a validated site.
@@ -213,7 +215,11 @@ func newSiteModel(s *nightloomv1.Site) (*siteModel, error) {
 	if err := cs.Validate(); err != nil {
 		return nil, err
 	}
-	return &siteModel{pb: s, cons: cs}, nil
+	sched := &scheduler.Site{Site: cs, Overheads: overheadsOf(s)}
+	if err := sched.Overheads.Validate(); err != nil {
+		return nil, err
+	}
+	return &siteModel{pb: s, cons: cs, sched: sched}, nil
 }
 
 // loc is the site's time zone.

@@ -28,29 +28,7 @@ type skyService struct {
 // does not set.
 func (m *siteModel) planningInterval(d time.Time) (start, end time.Time, ok bool) {
 	n := ephem.NightOf(&m.cons.Observer, d.Year(), d.Month(), d.Day())
-	return planningSpan(&m.cons.Observer, &n)
-}
-
-func planningSpan(o *ephem.Observer, n *ephem.Night) (start, end time.Time, ok bool) {
-	if set, has := n.Get(ephem.Sunset); has {
-		start = set
-	} else if sunAltDeg(o, n.Start) < ephem.SunriseAltDeg {
-		start = n.Start
-	} else {
-		return time.Time{}, time.Time{}, false
-	}
-	end = n.End
-	if rise, has := n.Get(ephem.Sunrise); has && rise.After(start) {
-		end = rise
-	}
-	return start, end, end.After(start)
-}
-
-// sunAltDeg is the Sun's geometric altitude (centre) at t.
-func sunAltDeg(o *ephem.Observer, t time.Time) float64 {
-	snap := ephem.Prepare(ephem.NewInstant(t))
-	l := snap.Local(o)
-	return l.SunPlace().Alt * ephem.Rad2Deg
+	return ephem.PlanningSpan(&m.cons.Observer, &n)
 }
 
 // subjectTarget resolves a stored or inline target of a Sky request.
@@ -108,27 +86,27 @@ func (x *skyService) Ephemeris(ctx context.Context, req *nightloomv1.EphemerisRe
 }
 
 func ephemerisRow(site *siteModel, target *constraints.Target, t time.Time) *nightloomv1.EphemerisRow {
-	o := observe(site.cons, target, t)
+	o := constraints.Observe(site.cons, target, t)
 	row := &nightloomv1.EphemerisRow{
-		Time: timestamppb.New(t), Pointing: o.pointing, AboveHorizonProfile: o.aboveProfile,
-		MoonSeparationDeg: o.moonSepDeg, SolarElongationDeg: o.sunSepDeg, SunAltitudeDeg: o.sunAltDeg,
-		Darkness: darknessLevel(o.sunAltDeg), MoonAltitudeDeg: o.moonAltDeg, MoonIllumination: o.moonIllum,
+		Time: timestamppb.New(t), Pointing: pointingOf(o), AboveHorizonProfile: o.AboveProfile,
+		MoonSeparationDeg: o.MoonSepDeg, SolarElongationDeg: o.SunSepDeg, SunAltitudeDeg: o.SunAltDeg,
+		Darkness: darknessLevel(o.SunAltDeg), MoonAltitudeDeg: o.MoonAltDeg, MoonIllumination: o.MoonIllum,
 	}
-	if o.altDeg >= 0 {
-		if !math.IsInf(o.airmass, 0) {
-			row.Airmass = proto.Float64(o.airmass)
+	if o.AltDeg >= 0 {
+		if !math.IsInf(o.Airmass, 0) {
+			row.Airmass = proto.Float64(o.Airmass)
 		}
-		if !math.IsNaN(o.sky) {
-			row.SkyBrightnessVMagArcsec2 = proto.Float64(o.sky)
+		if !math.IsNaN(o.Sky) {
+			row.SkyBrightnessVMagArcsec2 = proto.Float64(o.Sky)
 		}
 	}
-	if o.moving {
-		os := &nightloomv1.OrbitState{HeliocentricDistanceAu: o.rAU, GeocentricDistanceAu: o.deltaAU, PhaseAngleDeg: o.phaseDeg,
-			Rate: &nightloomv1.NonSiderealRate{RaCosDecArcsecPerMin: o.rateRA, DecArcsecPerMin: o.rateDec}}
-		if !math.IsNaN(o.magnitude) {
-			os.Magnitude = proto.Float64(o.magnitude)
-			if !math.IsNaN(o.observedMagnitude) && o.altDeg >= 0 {
-				os.ObservedMagnitude = proto.Float64(o.observedMagnitude)
+	if o.Moving {
+		os := &nightloomv1.OrbitState{HeliocentricDistanceAu: o.RAU, GeocentricDistanceAu: o.DeltaAU, PhaseAngleDeg: o.PhaseDeg,
+			Rate: &nightloomv1.NonSiderealRate{RaCosDecArcsecPerMin: o.RateRA, DecArcsecPerMin: o.RateDec}}
+		if !math.IsNaN(o.Magnitude) {
+			os.Magnitude = proto.Float64(o.Magnitude)
+			if !math.IsNaN(o.ObservedMagnitude) && o.AltDeg >= 0 {
+				os.ObservedMagnitude = proto.Float64(o.ObservedMagnitude)
 			}
 		}
 		row.Orbit = os
@@ -163,54 +141,12 @@ func (x *skyService) Night(ctx context.Context, req *nightloomv1.NightRequest) (
 	resp.Moonrise, resp.Moonset = set(ephem.Moonrise), set(ephem.Moonset)
 	mid := ephem.Prepare(ephem.NewInstant(n.Start.Add(12 * time.Hour)))
 	resp.MoonIllumination, _ = mid.MoonIllumination()
-	if st, en, ok := planningSpan(o, &n); ok {
+	if st, en, ok := ephem.PlanningSpan(o, &n); ok {
 		resp.PlanningInterval = &nightloomv1.TimeInterval{Start: timestamppb.New(st), End: timestamppb.New(en)}
 	}
-	dark, moonless := darkTimes(o, n.Start, n.End)
+	dark, moonless := ephem.DarkTimes(o, n.Start, n.End)
 	resp.AstronomicalDark, resp.MoonlessDark = durationpb.New(dark), durationpb.New(moonless)
 	return resp, nil
-}
-
-// darkTimes returns the time in [start, end) with the Sun's centre below
-// -18 deg, and the part of it with the Moon down. The intervals come from
-// the crossings that ephem.AllEvents finds (astronomical dusk and dawn,
-// moonrise and moonset) and the state at start; "Moon down" uses the same
-// horizon as moonrise and moonset (the upper limb at the refracted
-// horizon), a few minutes from its centre at 0 deg.
-func darkTimes(o *ephem.Observer, start, end time.Time) (dark, moonless time.Duration) {
-	snap := ephem.Prepare(ephem.NewInstant(start))
-	l := snap.Local(o)
-	sunDark := l.SunPlace().Alt*ephem.Rad2Deg < ephem.AstronomicalAltDeg
-	mp := l.MoonPlace()
-	moonUp := mp.Alt > (-34.0/60)*ephem.Deg2Rad-ephem.MoonSemidiameter(l.MoonOfDate().Norm())
-	t := start
-	add := func(to time.Time) {
-		if sunDark {
-			dark += to.Sub(t)
-			if !moonUp {
-				moonless += to.Sub(t)
-			}
-		}
-		t = to
-	}
-	for _, e := range ephem.AllEvents(o, start, end) {
-		switch e.Kind {
-		case ephem.AstronomicalDusk:
-			add(e.Time)
-			sunDark = true
-		case ephem.AstronomicalDawn:
-			add(e.Time)
-			sunDark = false
-		case ephem.Moonrise:
-			add(e.Time)
-			moonUp = true
-		case ephem.Moonset:
-			add(e.Time)
-			moonUp = false
-		}
-	}
-	add(end)
-	return dark, moonless
 }
 
 func (x *skyService) Visibility(ctx context.Context, req *nightloomv1.VisibilityRequest) (*nightloomv1.VisibilityResponse, error) {
@@ -343,7 +279,7 @@ func (x *skyService) Visibility(ctx context.Context, req *nightloomv1.Visibility
 	}
 	var shortest time.Duration
 	if block != nil {
-		shortest = shortestRun(site.pb, block)
+		shortest = shortestRun(site, block)
 	}
 	var visible time.Duration
 	for _, w := range vis.Windows {
@@ -375,57 +311,4 @@ func (x *skyService) Visibility(ctx context.Context, req *nightloomv1.Visibility
 	}
 	resp.VisibleTime = durationpb.New(visible)
 	return resp, nil
-}
-
-// runLength is end - start of a run of n frames (plan.proto Assignment.end):
-// n (exposure + readout) + dithers x dither, dithering after every `every`
-// frames but not after the last.
-func runLength(site *nightloomv1.Site, exposure time.Duration, n, every int) time.Duration {
-	in := site.GetInstrument()
-	d := time.Duration(n) * (exposure + in.GetReadout().AsDuration())
-	if every > 0 && n > 1 {
-		d += time.Duration((n-1)/every) * in.GetDither().AsDuration()
-	}
-	return d
-}
-
-// typicalSlewDeg is the axis travel assumed for "the slew before" a run
-// when the previous pointing is unknown (Visibility's fits_shortest_run):
-// 90 deg on both axes, the mean angular distance between random points on
-// the sphere (our choice).
-const typicalSlewDeg = 90.0
-
-// axisTime is the time of a trapezoidal slew over d deg (site.proto
-// AxisSlew: accelerate at a up to rate v, cruise, decelerate; a = 0 means
-// constant speed).
-func axisTime(a *nightloomv1.AxisSlew, d float64) time.Duration {
-	v, acc := a.GetRateDegPerS(), a.GetAccelerationDegPerS2()
-	d = math.Abs(d)
-	if v <= 0 || d == 0 {
-		return 0
-	}
-	var s float64
-	switch {
-	case acc <= 0:
-		s = d / v
-	case d >= v*v/acc:
-		s = d/v + v/acc
-	default:
-		s = 2 * math.Sqrt(d/acc)
-	}
-	return time.Duration(s * float64(time.Second))
-}
-
-// shortestRun is the time a block's shortest useful run needs with the
-// overheads before it: a typical slew, settle and acquisition, then
-// min_run_frames (or the frames left, if fewer) with readouts and dithers.
-func shortestRun(site *nightloomv1.Site, b *nightloomv1.Block) time.Duration {
-	m := site.GetMount()
-	slew := max(axisTime(m.GetPrimaryAxis(), typicalSlewDeg), axisTime(m.GetSecondaryAxis(), typicalSlewDeg))
-	n := int(max(1, b.GetMinRunFrames()))
-	if left := int(b.GetFramesWanted() - b.GetFramesDone()); left > 0 && left < n {
-		n = left
-	}
-	return slew + m.GetSettle().AsDuration() + site.GetInstrument().GetAcquisition().AsDuration() +
-		runLength(site, b.GetExposure().AsDuration(), n, int(b.GetDitherEveryFrames()))
 }

@@ -2,6 +2,7 @@ package server
 
 import (
 	"context"
+	"time"
 
 	"github.com/nightloom/nightloom/internal/store"
 )
@@ -32,6 +33,7 @@ type Storage interface {
 	QueueSize(ctx context.Context, siteID string) (int, error)
 	ReportProgress(ctx context.Context, r store.ProgressReport) (store.Block, bool, error)
 	GetProgressReport(ctx context.Context, reportID string) (store.ProgressReport, error)
+	ReportsEndingAfter(ctx context.Context, siteID string, t time.Time) ([]store.ProgressReport, error)
 
 	CreatePlan(ctx context.Context, p store.Plan) (store.Plan, error)
 	GetPlan(ctx context.Context, id string) (store.Plan, error)

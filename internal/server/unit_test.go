@@ -1,7 +1,6 @@
 package server
 
 import (
-	"math"
 	"testing"
 	"time"
 
@@ -107,45 +106,5 @@ func TestMergeClosures(t *testing.T) {
 	}
 	if d := closedTime(got, t0.Add(-time.Hour), t0.Add(35*time.Minute)); d != 30*time.Minute {
 		t.Errorf("closed time %v, want 30m", d)
-	}
-}
-
-// TestHorizontalToHADec against cases that follow from the definitions:
-// the zenith is at hour angle 0 and declination = latitude; the north
-// point of the horizon at declination 90 - latitude, hour angle 180; the
-// east point at declination 0, hour angle -90 deg (6 h east).
-func TestHorizontalToHADec(t *testing.T) {
-	const tol = 1e-9
-	cases := []struct{ lat, alt, az, ha, dec float64 }{
-		{41.6, 90, 0, 0, 41.6},
-		{41.6, 0, 0, 180, 90 - 41.6},
-		{41.6, 0, 90, -90, 0},
-		{-30, 0, 270, 90, 0},
-	}
-	for _, c := range cases {
-		ha, dec := horizontalToHADec(c.lat, c.alt, c.az)
-		if math.Abs(math.Remainder(ha-c.ha, 360)) > tol && c.alt != 90 || math.Abs(dec-c.dec) > tol {
-			t.Errorf("lat %v alt %v az %v: ha %v dec %v, want %v %v", c.lat, c.alt, c.az, ha, dec, c.ha, c.dec)
-		}
-	}
-}
-
-// TestAxisTime: the trapezoidal slew profile of site.proto, with values
-// worked from the kinematics: at 4 deg/s and 2 deg/s^2 the axis needs 4 deg
-// to reach full speed and 4 to stop, so 8 deg take 8/4 + 4/2 = 4 s either
-// way, 90 deg take 90/4 + 4/2 = 24.5 s, and 2 deg never reach full speed:
-// 2 sqrt(2/2) = 2 s.
-func TestAxisTime(t *testing.T) {
-	a := &nightloomv1.AxisSlew{RateDegPerS: 4, AccelerationDegPerS2: 2}
-	for _, c := range []struct {
-		d    float64
-		want time.Duration
-	}{{90, 24500 * time.Millisecond}, {2, 2 * time.Second}, {8, 4 * time.Second}, {0, 0}} {
-		if got := axisTime(a, c.d); (got - c.want).Abs() > time.Microsecond {
-			t.Errorf("axisTime(%v deg) = %v, want %v", c.d, got, c.want)
-		}
-	}
-	if got := axisTime(&nightloomv1.AxisSlew{RateDegPerS: 3}, 90); got != 30*time.Second {
-		t.Errorf("constant speed: %v", got)
 	}
 }

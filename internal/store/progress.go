@@ -165,3 +165,29 @@ func (d *DB) ListProgressReports(ctx context.Context, blockID string, p Page) ([
 	})
 	return out, next, mapErr(ctx, op, err)
 }
+
+// ReportsEndingAfter returns the reports for blocks queued at a site whose
+// interval ends after t, ordered by interval start (then id): what replans
+// and NextAssignment need to know of runs that a report ended early.
+func (d *DB) ReportsEndingAfter(ctx context.Context, siteID string, t time.Time) ([]ProgressReport, error) {
+	op := fmt.Sprintf("list progress reports of site %q ending after %s", siteID, t.Format(time.RFC3339Nano))
+	rows, err := d.r.QueryContext(ctx, `SELECT r.report_id, r.block_id, r.frames_kept, r.frames_applied, r.start_at,
+		r.end_at, r.outcome, r.received_at FROM progress_reports r JOIN blocks b ON b.id = r.block_id
+		WHERE b.site_id = ? AND r.end_at > ? ORDER BY r.start_at, r.report_id`, siteID, t.UTC().UnixNano())
+	if err != nil {
+		return nil, mapErr(ctx, op, err)
+	}
+	defer rows.Close()
+	var out []ProgressReport
+	for rows.Next() {
+		r, err := scanReport(rows)
+		if err != nil {
+			return nil, mapErr(ctx, op, err)
+		}
+		out = append(out, r)
+	}
+	if err := rows.Err(); err != nil {
+		return nil, mapErr(ctx, op, err)
+	}
+	return out, nil
+}
