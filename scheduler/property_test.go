@@ -69,6 +69,10 @@ const (
 	moonSkipAltDeg = 0.5
 )
 
+// siderealArcsecPerS is the rate of a fixed target's hour angle (one
+// sidereal day per 360 deg).
+const siderealArcsecPerS = 15.041
+
 // propNights is the number of random nights (issue 10 asks for at least
 // 200); short mode runs propNightsShort.
 const (
@@ -221,7 +225,9 @@ func tryNight(rng *rand.Rand, seed uint64) (*propNight, error) {
 
 	day := time.Date(2025, 1, 1, 0, 0, 0, 0, time.UTC).AddDate(0, 0, rng.IntN(6*365))
 	// The weakest darkness first: the grid starts there.
-	weak := constraints.Dark(rng.IntN(4))
+	// Bright-twilight nights are drawn more often: comets close to the
+	// Sun are seen only then.
+	weak := constraints.Dark([]int{0, 0, 0, 1, 1, 1, 2, 3}[rng.IntN(8)])
 	ds, de, ok := scheduler.NightBounds(&obs, day.Year(), day.Month(), day.Day(), weak)
 	if !ok {
 		return nil, fmt.Errorf("no %v night", weak)
@@ -242,12 +248,17 @@ func tryNight(rng *rand.Rand, seed uint64) (*propNight, error) {
 		}
 		blocks = append(blocks, randBlock(rng, fmt.Sprintf("F%d", i), &constraints.Target{Name: "fixed", Star: &st}, weak, ds, de, loc, false))
 	}
-	for c := 0; c < 1+rng.IntN(2); c++ {
+	for c := 0; c < 1+rng.IntN(3); c++ {
 		cn := propComet(rng, nt, ds, de)
 		if cn == nil {
 			continue
 		}
 		b := randBlock(rng, fmt.Sprintf("C%d", c), &constraints.Target{Name: "comet", Orbit: cn}, weak, ds, de, loc, true)
+		// Comets are urgent and short-lived: high priority, short runs.
+		b.Priority, b.MinRun = uniform(rng, 8, 10), 1+rng.IntN(3)
+		if b.MaxRun != 0 && b.MaxRun < b.MinRun {
+			b.MaxRun = b.MinRun
+		}
 		blocks = append(blocks, b)
 	}
 	if rng.Float64() < 0.5 {
@@ -276,41 +287,112 @@ func tryNight(rng *rand.Rand, seed uint64) (*propNight, error) {
 	return nt, nil
 }
 
-// propComet invents a comet near perihelion that the site sees within 25
-// deg of the Sun in twilight at least once (the grid's evaluation is not
-// used to pick it): random orbits until one qualifies, nil if none does.
+// propComet invents a comet that the site sees within 20 deg of the Sun
+// in twilight (the grid's evaluation is not used to pick it): at an instant
+// near dusk or dawn a direction is chosen a few degrees above the horizon
+// and 1-5 deg beyond the solar-avoidance floor from the Sun, the comet is
+// put there at a random distance with a random velocity, and its elements
+// follow from that state. Nil when no draw qualifies.
 func propComet(rng *rand.Rand, nt *propNight, ds, de time.Time) *ephem.Conic {
 	obs := &nt.site.Observer
-	var ls []ephem.Local
-	var snaps []ephem.Snapshot
-	for _, t := range []time.Time{ds, ds.Add(20 * time.Minute), ds.Add(40 * time.Minute), de.Add(-40 * time.Minute), de.Add(-20 * time.Minute), de} {
-		snaps = append(snaps, ephem.Prepare(ephem.NewInstant(t)))
-	}
-	for i := range snaps {
-		ls = append(ls, snaps[i].Local(obs))
-	}
-	tt := snaps[0].TT.Value()
-	for try := 0; try < 3000; try++ {
-		o := ephem.Orbit{QAU: uniform(rng, 0.1, 0.9), E: uniform(rng, 0.99, 1.02), IncDeg: uniform(rng, 0, 180),
-			NodeDeg: uniform(rng, 0, 360), PeriDeg: uniform(rng, 0, 360), PerihelionTT: ephem.JD{Hi: tt + uniform(rng, -15, 15)},
-			Law: ephem.MagComet, M1: uniform(rng, 4, 10), K1: 10}
-		if rng.Float64() < 0.1 {
-			o.E = 1
+	floor := math.Max(nt.site.SolarFloorDeg, constraints.MinSolarFloorDeg)
+	for try := 0; try < 200; try++ {
+		t0 := ds.Add(time.Duration(uniform(rng, -20, 40) * float64(time.Minute)))
+		if rng.Float64() < 0.5 {
+			t0 = de.Add(-time.Duration(uniform(rng, -20, 40) * float64(time.Minute)))
 		}
-		c, err := ephem.NewConic(o)
+		snap := ephem.Prepare(ephem.NewInstant(t0))
+		l := snap.Local(obs)
+		sun := l.SunPlace()
+		el := math.Min(20, floor+uniform(rng, 0.5, 5)) * ephem.Deg2Rad
+		h := uniform(rng, 2, 15) * ephem.Deg2Rad
+		c := (math.Cos(el) - math.Sin(h)*math.Sin(sun.Alt)) / (math.Cos(h) * math.Cos(sun.Alt))
+		if math.Abs(c) > 1 {
+			continue
+		}
+		az := sun.Az + math.Acos(c)
+		if rng.Float64() < 0.5 {
+			az = sun.Az - math.Acos(c)
+		}
+		hor := ephem.Vec3{math.Cos(h) * math.Cos(az), math.Cos(h) * math.Sin(az), math.Sin(h)}
+		u := snap.NPB.TMulVec(l.OfDateToHorizon.TMulVec(hor)) // GCRS direction
+		earth, _ := ephem.EarthHeliocentric(snap.TT)
+		r := earth.Add(u.Scale(uniform(rng, 0.2, 1.5)))
+		rn := r.Norm()
+		// A random direction; speed near the parabolic one.
+		dir := ephem.Vec3{rng.NormFloat64(), rng.NormFloat64(), rng.NormFloat64()}.Unit()
+		speed := math.Sqrt(2*propMuSun/rn) * uniform(rng, 0.8, 1.15)
+		ecl := ephem.EclipticJ2000ToGCRS.Transpose()
+		o, ok := elementsFromState(ecl.MulVec(r), ecl.MulVec(dir.Scale(speed)), snap.TT.Value())
+		if !ok {
+			continue
+		}
+		o.Law, o.M1, o.K1 = ephem.MagComet, uniform(rng, 4, 10), 10
+		cn, err := ephem.NewConic(o)
 		if err != nil {
 			continue
 		}
-		for i := range ls {
-			p, _, _ := ls[i].OrbitPlace(c)
-			sun := ls[i].SunPlace()
-			el := ephem.Separation(p.OfDate, sun.OfDate) * ephem.Rad2Deg
-			if p.AltApparent*ephem.Rad2Deg > 4 && el < 25 && el > nt.site.SolarFloorDeg-2 {
-				return c
-			}
+		p, _, _ := l.OrbitPlace(cn)
+		got := ephem.Separation(p.OfDate, sun.OfDate) * ephem.Rad2Deg
+		if p.AltApparent*ephem.Rad2Deg > 1 && got < 20.5 && got > floor {
+			return cn
 		}
 	}
 	return nil
+}
+
+// propMuSun is the Sun's GM in AU^3/day^2: the square of the Gaussian
+// gravitational constant k = 0.01720209895 (IAU 1976).
+const propMuSun = 0.01720209895 * 0.01720209895
+
+// elementsFromState converts a heliocentric state (J2000 ecliptic, AU and
+// AU/day) at TT Julian date tt into perihelion elements, by the textbook
+// two-body relations (angular momentum, eccentricity vector, Kepler's
+// equation in its elliptic or hyperbolic form; e.g. Vallado, Fundamentals
+// of Astrodynamics, algorithm "RV2COE", from memory). Near-parabolic and
+// degenerate states are refused (ok false).
+func elementsFromState(r, v ephem.Vec3, tt float64) (ephem.Orbit, bool) {
+	const mu = propMuSun
+	rn := r.Norm()
+	hv := r.Cross(v)
+	hn := hv.Norm()
+	ev := r.Scale(v.Dot(v)/mu - 1/rn).Sub(v.Scale(r.Dot(v) / mu))
+	e := ev.Norm()
+	if !(e > 0.05 && e < 3) || math.Abs(e-1) < 0.02 || hn == 0 {
+		return ephem.Orbit{}, false
+	}
+	q := hn * hn / mu / (1 + e)
+	if q < 0.05 {
+		return ephem.Orbit{}, false
+	}
+	cl := func(x float64) float64 { return math.Max(-1, math.Min(1, x)) }
+	inc := math.Acos(cl(hv[2] / hn))
+	node := math.Atan2(hv[0], -hv[1])
+	nv := ephem.Vec3{math.Cos(node), math.Sin(node), 0}
+	w := math.Acos(cl(nv.Dot(ev) / e))
+	if ev[2] < 0 {
+		w = 2*math.Pi - w
+	}
+	nu := math.Acos(cl(ev.Dot(r) / (e * rn)))
+	if r.Dot(v) < 0 {
+		nu = -nu
+	}
+	var dt float64 // days since perihelion
+	if e < 1 {
+		a := q / (1 - e)
+		ea := 2 * math.Atan(math.Sqrt((1-e)/(1+e))*math.Tan(nu/2))
+		dt = (ea - e*math.Sin(ea)) / math.Sqrt(mu/(a*a*a))
+	} else {
+		a := q / (e - 1)
+		x := math.Sqrt((e-1)/(e+1)) * math.Tan(nu/2)
+		if math.Abs(x) >= 1 {
+			return ephem.Orbit{}, false
+		}
+		f := 2 * math.Atanh(x)
+		dt = (e*math.Sinh(f) - f) / math.Sqrt(mu/(a*a*a))
+	}
+	return ephem.Orbit{QAU: q, E: e, IncDeg: inc * ephem.Rad2Deg, NodeDeg: ephem.NormAngle(node) * ephem.Rad2Deg,
+		PeriDeg: w * ephem.Rad2Deg, PerihelionTT: ephem.JD{Hi: tt - dt}}, true
 }
 
 // randBlock draws a block with a random constraint set.
@@ -392,6 +474,19 @@ func randBlock(rng *rand.Rand, id string, t *constraints.Target, weak constraint
 	}
 	if orbit && !b.NonSidereal && rng.Float64() < 0.5 {
 		s.MaxTrailPixels = uniform(rng, 1, 20)
+	}
+	if orbit {
+		// Comets and asteroids low in twilight: short exposures and limits
+		// that leave them a chance.
+		b.Exposure = time.Duration([]float64{5, 10, 20, 30, 60}[rng.IntN(5)] * float64(time.Second))
+		s.MinAltDeg = math.Min(s.MinAltDeg, uniform(rng, -2, 6))
+		s.MaxAltDeg, s.MaxHourAngleDeg = 0, 0
+		if s.MaxAirmass != 0 {
+			s.MaxAirmass = uniform(rng, 3, 12)
+		}
+		if s.MinSkyMag != 0 {
+			s.MinSkyMag = uniform(rng, 10, 15)
+		}
 	}
 	if rng.Float64() < 0.08 && !orbit {
 		b.Exposure = 60 * time.Second
@@ -638,8 +733,11 @@ func runTimes(start, end time.Time) []time.Time {
 }
 
 // checkRun checks one assignment's constraints over [Start, End].
-func (nt *propNight) checkRun(a *scheduler.Assignment, b *scheduler.Block) []violation {
-	checks := nt.checksFor(b)
+func (nt *propNight) checkRun(a *scheduler.Assignment, b *scheduler.Block) (vs []violation, kinds []string) {
+	checks := append(nt.checksFor(b), nt.pierChecks(a)...)
+	for _, c := range checks {
+		kinds = append(kinds, c.kind)
+	}
 	ts := runTimes(a.Start, a.End)
 	ss := make([]sample, len(ts))
 	for i, t := range ts {
@@ -684,7 +782,7 @@ func (nt *propNight) checkRun(a *scheduler.Assignment, b *scheduler.Block) []vio
 		}
 	}
 	out = append(out, nt.checkPier(a, b, ts, ss)...)
-	return out
+	return out, kinds
 }
 
 // edge bisects between ok (margin >= 0) and bad (margin < 0) to
@@ -717,54 +815,66 @@ func (nt *propNight) checkPier(a *scheduler.Assignment, b *scheduler.Block, ts [
 	bad := func(kind string, at time.Time, ex float64, unit string) {
 		out = append(out, violation{kind: kind, seed: nt.seed, block: b.ID, at: at, excess: ex, unit: unit})
 	}
-	flipping := !a.Flip.IsZero()
-	var flipEnd time.Time
-	if flipping {
+	if !a.Flip.IsZero() {
 		if a.FlipBefore <= 0 || a.FlipBefore >= len(a.FrameStarts) {
 			bad("flip layout", a.Flip, float64(a.FlipBefore), "frame")
 			return out
 		}
-		flipEnd = a.FrameStarts[a.FlipBefore]
-		if s := nt.observe(b.Target, a.Flip); s.haDeg < f0-propAngleTolArcsec/3600 {
+		// Early by more than 1 arcsec and 1 s (the hour angle grows by
+		// 15.04 arcsec per second of time).
+		if s := nt.observe(b.Target, a.Flip); (f0-s.haDeg)*3600 > math.Max(propAngleTolArcsec, siderealArcsecPerS*propTimeTol.Seconds()) {
 			bad("flip starts before the flip zone", a.Flip, (f0-s.haDeg)*3600, "arcsec")
 		}
 		if b.Set.AvoidFlipZone {
 			bad("flip in a run that avoids the flip zone", a.Flip, 0, "flip")
 		}
 	}
-	worstE, worstW := 0.0, 0.0
-	var atE, atW time.Time
-	for i, s := range ss {
-		t := ts[i]
-		west := a.Pointing.PierWest || flipping && !t.Before(flipEnd)
-		if flipping && !t.Before(a.Flip) && t.Before(flipEnd) {
-			continue // the flip itself
+	for i := 1; i < len(ss) && b.Set.AvoidFlipZone; i++ {
+		h0, h1 := ss[i-1].haDeg, ss[i].haDeg
+		if h0 < f0 && h1 > f1 && h1-h0 < 180 {
+			bad("flip zone crossed between samples", ts[i], 0, "crossing")
 		}
-		if west {
-			d := math.Remainder(f0-s.haDeg, 360)
-			if d > 0 && d < 180 && d*3600 > worstW {
-				worstW, atW = d*3600, t
-			}
-		} else {
-			d := math.Remainder(s.haDeg-f1, 360)
-			if d > 0 && d < 180 && d*3600 > worstE {
-				worstE, atE = d*3600, t
-			}
-		}
-		if b.Set.AvoidFlipZone && i > 0 {
-			h0, h1 := ss[i-1].haDeg, s.haDeg
-			if h0 < f0 && h1 > f1 && h1-h0 < 180 {
-				bad("flip zone crossed between samples", t, 0, "crossing")
-			}
-		}
-	}
-	if worstE > propAngleTolArcsec {
-		bad("east side past the flip zone's end", atE, worstE, "arcsec")
-	}
-	if worstW > propAngleTolArcsec {
-		bad("west side before the flip zone's start", atW, worstW, "arcsec")
 	}
 	return out
+}
+
+// pierChecks are a german equatorial mount's side limits over a run: on
+// the east side (before a flip) the hour angle stays at or before the flip
+// zone's end, on the west side at or after its start; the flip itself is
+// exempt.
+func (nt *propNight) pierChecks(a *scheduler.Assignment) []propCheck {
+	site := nt.site
+	if site.Mount != constraints.GermanEquatorial {
+		return nil
+	}
+	f0, f1 := site.FlipStartHADeg, site.FlipEndHADeg
+	flipping := !a.Flip.IsZero() && a.FlipBefore > 0 && a.FlipBefore < len(a.FrameStarts)
+	var flipEnd time.Time
+	if flipping {
+		flipEnd = a.FrameStarts[a.FlipBefore]
+	}
+	inFlip := func(t time.Time) bool { return flipping && !t.Before(a.Flip) && t.Before(flipEnd) }
+	west := func(t time.Time) bool { return a.Pointing.PierWest || flipping && !t.Before(flipEnd) }
+	return []propCheck{
+		{kind: "east side past the flip zone's end", unit: "arcsec", tol: propAngleTolArcsec, margin: func(s *sample) float64 {
+			if inFlip(s.t) || west(s.t) {
+				return math.Inf(1)
+			}
+			if d := math.Remainder(s.haDeg-f1, 360); d > 0 && d < 180 {
+				return -d * 3600
+			}
+			return math.Inf(1)
+		}},
+		{kind: "west side before the flip zone's start", unit: "arcsec", tol: propAngleTolArcsec, margin: func(s *sample) float64 {
+			if inFlip(s.t) || !west(s.t) {
+				return math.Inf(1)
+			}
+			if d := math.Remainder(f0-s.haDeg, 360); d > 0 && d < 180 {
+				return -d * 3600
+			}
+			return math.Inf(1)
+		}},
+	}
 }
 
 // trapezoid is the time to move an axis by d degrees at top speed v deg/s
@@ -895,24 +1005,29 @@ func minTime(a, b time.Time) time.Time {
 
 // planNight plans a random night with Solve (a small, fixed iteration
 // count: deterministic and fast) and returns the plan and every breach.
-func planNight(seed uint64) (*propNight, *scheduler.Plan, []violation, error) {
+func planNight(seed uint64) (*propNight, *scheduler.Plan, []violation, map[string]int, error) {
 	nt, err := genNight(seed)
 	if err != nil {
-		return nil, nil, nil, fmt.Errorf("seed %d: %w", seed, err)
+		return nil, nil, nil, nil, fmt.Errorf("seed %d: %w", seed, err)
 	}
 	p, err := scheduler.NewProblem(scheduler.Input{Site: nt.site, Grid: nt.grid, Blocks: nt.blocks, Closures: nt.closures,
 		Options: scheduler.Options{Seed: seed, Iterations: propIterations, Budget: -1, Workers: 1}})
 	if err != nil {
-		return nil, nil, nil, fmt.Errorf("seed %d: %w", seed, err)
+		return nil, nil, nil, nil, fmt.Errorf("seed %d: %w", seed, err)
 	}
 	pl := scheduler.Solve(p)
 	var vs []violation
+	active := map[string]int{}
 	for k := range pl.Assignments {
 		a := &pl.Assignments[k]
-		vs = append(vs, nt.checkRun(a, &nt.blocks[a.Block])...)
+		v, kinds := nt.checkRun(a, &nt.blocks[a.Block])
+		vs = append(vs, v...)
+		for _, k := range kinds {
+			active[k]++
+		}
 	}
 	vs = append(vs, nt.checkSlews(pl)...)
-	return nt, pl, vs, nil
+	return nt, pl, vs, active, nil
 }
 
 // propSeeds reads the regression seeds (../testdata/property/seeds.txt: one
@@ -954,13 +1069,21 @@ func TestPlansHoldEverySecond(t *testing.T) {
 	if testing.Short() {
 		n = propNightsShort
 	}
+	seen := map[uint64]bool{}
+	for _, s := range seeds {
+		seen[s] = true
+	}
+	regression := len(seeds)
 	for i := 0; i < n; i++ {
-		seeds = append(seeds, propSeedBase+uint64(i))
+		if s := propSeedBase + uint64(i); !seen[s] {
+			seeds = append(seeds, s)
+		}
 	}
 	type result struct {
 		runs, orbitRuns int
 		mount           constraints.MountKind
 		vs              []violation
+		active          map[string]int
 		err             error
 	}
 	res := make([]result, len(seeds))
@@ -971,8 +1094,8 @@ func TestPlansHoldEverySecond(t *testing.T) {
 		go func() {
 			defer wg.Done()
 			for i := range next {
-				nt, pl, vs, err := planNight(seeds[i])
-				res[i].vs, res[i].err = vs, err
+				nt, pl, vs, active, err := planNight(seeds[i])
+				res[i].vs, res[i].active, res[i].err = vs, active, err
 				if pl != nil {
 					res[i].runs = len(pl.Assignments)
 					res[i].mount = nt.site.Mount
@@ -1000,6 +1123,7 @@ func TestPlansHoldEverySecond(t *testing.T) {
 	kinds := map[string]*agg{}
 	runs, orbitRuns := 0, 0
 	var mounts [3]int
+	active := map[string]int{}
 	for i, r := range res {
 		if r.err != nil {
 			t.Errorf("seed %d: %v", seeds[i], r.err)
@@ -1007,6 +1131,9 @@ func TestPlansHoldEverySecond(t *testing.T) {
 		}
 		runs += r.runs
 		orbitRuns += r.orbitRuns
+		for k, n := range r.active {
+			active[k] += n
+		}
 		mounts[r.mount]++
 		for _, v := range r.vs {
 			g := kinds[v.kind]
@@ -1022,7 +1149,8 @@ func TestPlansHoldEverySecond(t *testing.T) {
 		}
 	}
 	t.Logf("%d nights (%d regression seeds; german/fork/alt-az mounts %v), %d runs (%d of orbit targets) checked every %v and at both ends",
-		len(seeds), len(seeds)-n, mounts, runs, orbitRuns, propSample)
+		len(seeds), regression, mounts, runs, orbitRuns, propSample)
+	t.Logf("runs per check: %v", active)
 	names := make([]string, 0, len(kinds))
 	for k := range kinds {
 		names = append(names, k)
