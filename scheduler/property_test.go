@@ -110,6 +110,7 @@ type propNight struct {
 	grid     *constraints.Grid
 	blocks   []scheduler.Block
 	closures []scheduler.Closure
+	orbits   map[string]ephem.Orbit // elements of the orbit targets, by block ID
 }
 
 // zoneByOffset lists IANA zones by standard offset (hours), so that a
@@ -212,7 +213,7 @@ func tryNight(rng *rand.Rand, seed uint64) (*propNight, error) {
 		oh.FocusEvery = time.Hour
 	}
 	site := &scheduler.Site{Site: cs, Overheads: oh}
-	nt := &propNight{seed: seed, site: site, loc: loc, horizon: hz}
+	nt := &propNight{seed: seed, site: site, loc: loc, horizon: hz, orbits: map[string]ephem.Orbit{}}
 	if rng.Float64() < 0.85 {
 		nt.accel = [2]float64{uniform(rng, 0.3, 4), uniform(rng, 0.3, 4)}
 	}
@@ -249,10 +250,11 @@ func tryNight(rng *rand.Rand, seed uint64) (*propNight, error) {
 		blocks = append(blocks, randBlock(rng, fmt.Sprintf("F%d", i), &constraints.Target{Name: "fixed", Star: &st}, weak, ds, de, loc, false))
 	}
 	for c := 0; c < 1+rng.IntN(3); c++ {
-		cn := propComet(rng, nt, ds, de)
+		cn, el := propComet(rng, nt, ds, de)
 		if cn == nil {
 			continue
 		}
+		nt.orbits[fmt.Sprintf("C%d", c)] = el
 		b := randBlock(rng, fmt.Sprintf("C%d", c), &constraints.Target{Name: "comet", Orbit: cn}, weak, ds, de, loc, true)
 		// Comets are urgent and short-lived: high priority, short runs.
 		b.Priority, b.MinRun = uniform(rng, 8, 10), 1+rng.IntN(3)
@@ -267,6 +269,7 @@ func tryNight(rng *rand.Rand, seed uint64) (*propNight, error) {
 			PerihelionTT: ephem.JD{Hi: ephem.NewInstant(ds).TT.Value() + uniform(rng, -600, 600)},
 			Law:          ephem.MagAsteroid, H: uniform(rng, 8, 15), G: 0.15}
 		if cn, err := ephem.NewConic(o); err == nil {
+			nt.orbits["A0"] = o
 			blocks = append(blocks, randBlock(rng, "A0", &constraints.Target{Name: "asteroid", Orbit: cn}, weak, ds, de, loc, true))
 		}
 	}
@@ -293,7 +296,7 @@ func tryNight(rng *rand.Rand, seed uint64) (*propNight, error) {
 // and 1-5 deg beyond the solar-avoidance floor from the Sun, the comet is
 // put there at a random distance with a random velocity, and its elements
 // follow from that state. Nil when no draw qualifies.
-func propComet(rng *rand.Rand, nt *propNight, ds, de time.Time) *ephem.Conic {
+func propComet(rng *rand.Rand, nt *propNight, ds, de time.Time) (*ephem.Conic, ephem.Orbit) {
 	obs := &nt.site.Observer
 	floor := math.Max(nt.site.SolarFloorDeg, constraints.MinSolarFloorDeg)
 	for try := 0; try < 200; try++ {
@@ -335,10 +338,10 @@ func propComet(rng *rand.Rand, nt *propNight, ds, de time.Time) *ephem.Conic {
 		p, _, _ := l.OrbitPlace(cn)
 		got := ephem.Separation(p.OfDate, sun.OfDate) * ephem.Rad2Deg
 		if p.AltApparent*ephem.Rad2Deg > 1 && got < 20.5 && got > floor {
-			return cn
+			return cn, o
 		}
 	}
-	return nil
+	return nil, ephem.Orbit{}
 }
 
 // propMuSun is the Sun's GM in AU^3/day^2: the square of the Gaussian
