@@ -721,8 +721,14 @@ type violation struct {
 }
 
 func (v violation) String() string {
-	return fmt.Sprintf("seed %d block %s at %s: %s broken by %.4g %s for %v", v.seed, v.block,
-		v.at.Format(time.RFC3339), v.kind, v.excess, v.unit, v.dur.Round(10*time.Millisecond))
+	s := fmt.Sprintf("seed %d block %s at %s: %s", v.seed, v.block, v.at.Format(time.RFC3339), v.kind)
+	switch {
+	case v.unit == "flip" || v.unit == "crossing":
+		return s
+	case v.dur > 0 && v.unit != "s":
+		return s + fmt.Sprintf(" by %.4g %s for %v", v.excess, v.unit, v.dur.Round(10*time.Millisecond))
+	}
+	return s + fmt.Sprintf(" by %.4g %s", v.excess, v.unit)
 }
 
 // runTimes are the instants checked in [start, end]: every propSample and
