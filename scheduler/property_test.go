@@ -937,9 +937,9 @@ func setupOf(a *scheduler.Assignment) time.Duration {
 
 // checkSlews checks every slew of a plan: the plan's slew lasts at least
 // the trapezoid time of the slower axis, from the previous target where it
-// is when the slew begins (the setup sits at the end of the gap, as the
-// plan declares it) to the new target at the run's start; the gap holds
-// the declared setup; runs and setups avoid closures.
+// is when the slew begins (at the end of the gap or at its start, see
+// below) to the new target at the run's start; the gap holds the declared
+// setup; runs and setups avoid closures.
 func (nt *propNight) checkSlews(pl *scheduler.Plan) []violation {
 	site := nt.site
 	var out []violation
@@ -952,21 +952,33 @@ func (nt *propNight) checkSlews(pl *scheduler.Plan) []violation {
 		b := &nt.blocks[a.Block]
 		setup := setupOf(a)
 		begin := a.Start.Add(-setup)
-		var p1, p2 float64
-		if prevBlock < 0 {
-			// Parked at the zenith, east side.
-			p1, p2 = mountAxes(site, 0, latDeg, 0, 90, false, true)
-		} else {
-			s := nt.observe(nt.blocks[prevBlock].Target, begin)
-			p1, p2 = mountAxes(site, s.haDeg, s.decDeg, s.azDeg, s.altDeg, prevWest, true)
-		}
 		s := nt.observe(b.Target, a.Start)
 		c1, c2 := mountAxes(site, s.haDeg, s.decDeg, s.azDeg, s.altDeg, a.Pointing.PierWest, false)
-		d1, d2 := c1-p1, c2-p2
-		if site.Mount != constraints.GermanEquatorial {
-			d1 = math.Remainder(d1, 360)
+		// slewFrom is the trapezoid time from the previous target where it
+		// is at instant from (the park position before the first run).
+		slewFrom := func(from time.Time) float64 {
+			var p1, p2 float64
+			if prevBlock < 0 {
+				// Parked at the zenith, east side.
+				p1, p2 = mountAxes(site, 0, latDeg, 0, 90, false, true)
+			} else {
+				s := nt.observe(nt.blocks[prevBlock].Target, from)
+				p1, p2 = mountAxes(site, s.haDeg, s.decDeg, s.azDeg, s.altDeg, prevWest, true)
+			}
+			d1, d2 := c1-p1, c2-p2
+			if site.Mount != constraints.GermanEquatorial {
+				d1 = math.Remainder(d1, 360)
+			}
+			return math.Max(trapezoid(d1, site.Axis1RateDegS, nt.accel[0]), trapezoid(d2, site.Axis2RateDegS, nt.accel[1]))
 		}
-		need := math.Max(trapezoid(d1, site.Axis1RateDegS, nt.accel[0]), trapezoid(d2, site.Axis2RateDegS, nt.accel[1]))
+		// The plan does not say when in the gap its slew begins: at the
+		// gap's end (the setup just before the run, as the plan's Spent
+		// lays it out) or right after the previous run. Either is a valid
+		// timeline, so the shorter of the two slews is the least allowed.
+		need := slewFrom(begin)
+		if prevEnd.Before(begin) {
+			need = math.Min(need, slewFrom(prevEnd))
+		}
 		sp := a.Spent
 		if sp.Slew < 0 || sp.Settle < 0 || sp.FilterChange < 0 || sp.Focus < 0 || sp.Acquisition < 0 || sp.Idle < 0 {
 			// A NaN or infinite slew in seconds becomes the most negative
