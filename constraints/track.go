@@ -115,9 +115,12 @@ func (g *Grid) Track(t *Target) (*Track, error) {
 		}
 		tr.Az[i] = float32(az)
 		if alt < belowHorizonSkip {
-			// Far below any horizon profile: nothing else is needed.
+			// Far below any horizon profile: only the hour angle and
+			// declination (where the mount must slew from, if it tracked
+			// the target down there) are needed.
 			tr.Alt[i], tr.Airmass[i] = float32(alt), float32(math.Inf(1))
-			tr.HA[i], tr.Dec[i], tr.MoonSep[i], tr.SunSep[i], tr.Sky[i] = nan, nan, nan, nan, nan
+			tr.HA[i], tr.Dec[i] = float32(ha), float32(asinFast(clamp(hd[2], -1, 1)))
+			tr.MoonSep[i], tr.SunSep[i], tr.Sky[i] = nan, nan, nan
 			if tr.Mag != nil {
 				tr.Mag[i] = nan
 			}

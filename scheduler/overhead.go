@@ -79,20 +79,33 @@ func (p *Problem) startSide(b int, x float64) int8 {
 }
 
 // axes returns the mechanical axis positions (degrees) for block b at x on
-// the given side. For the previous block (tracked), a german mount on the
-// east side stops at the flip limit. b = -1 is the park position (the
+// the given side, interpolated linearly between grid samples (axis 1
+// across its wrap). For the previous block (tracked), a german mount on
+// the east side stops at the flip limit. b = -1 is the park position (the
 // zenith, east side).
 func (p *Problem) axes(b int, x float64, side int8, prev bool) (a1, a2 float64) {
-	if b >= 0 && p.ax != nil {
-		i := p.stepAt(x)
-		k := 4 * (b*p.n + i)
-		if prev && side == sideEast && p.gem() {
-			// The previous target may have passed the flip limit.
-			return p.axesOf(b, i, side, prev)
-		}
-		return float64(p.ax[k+2*int(side)]), float64(p.ax[k+2*int(side)+1])
+	if b < 0 {
+		return p.axesOf(b, 0, side, prev)
 	}
-	return p.axesOf(b, p.stepAt(x), side, prev)
+	i := p.stepAt(x)
+	f := x/p.step - float64(i)
+	j := i + 1
+	if j >= p.n || f <= 0 {
+		j, f = i, 0
+	}
+	var u1, u2, v1, v2 float64
+	if p.ax == nil || prev && side == sideEast && p.gem() {
+		// The previous target may have passed the flip limit.
+		u1, u2 = p.axesOf(b, i, side, prev)
+		v1, v2 = p.axesOf(b, j, side, prev)
+	} else {
+		k, l := 4*(b*p.n+i)+2*int(side), 4*(b*p.n+j)+2*int(side)
+		u1, u2, v1, v2 = float64(p.ax[k]), float64(p.ax[k+1]), float64(p.ax[l]), float64(p.ax[l+1])
+	}
+	if f == 0 {
+		return u1, u2
+	}
+	return u1 + f*math.Remainder(v1-u1, 360), u2 + f*(v2-u2)
 }
 
 // axesOf computes axes for block b at step i (b = -1: park).
@@ -160,10 +173,10 @@ func (p *Problem) precomputeAxes() {
 	}
 }
 
-// slewTime is the time (s) to move from the previous pointing to block b on
-// the given side, both where they are at x (SlewSeconds).
-func (p *Problem) slewTime(prev prevState, b int, side int8, x float64) float64 {
-	a1, a2 := p.axes(prev.block, x, prev.side, true)
+// slewTime is the time (s) to move from the previous pointing, where it is
+// at from, to block b on the given side where it is at x.
+func (p *Problem) slewTime(prev prevState, from float64, b int, side int8, x float64) float64 {
+	a1, a2 := p.axes(prev.block, from, prev.side, true)
 	c1, c2 := p.axes(b, x, side, false)
 	return p.Site.Overheads.slewSeconds(p.Site.Mount, a1, a2, c1, c2)
 }
@@ -236,7 +249,7 @@ func (p *Problem) focusPeriod(x float64) int {
 func (p *Problem) setup(prev prevState, b int, x float64) setupParts {
 	d := &p.bd[b]
 	side := p.startSide(b, x)
-	s := setupParts{slew: p.slewTime(prev, b, side, x), settle: p.oh.settle, acq: p.oh.acq}
+	s := setupParts{slew: p.slewTime(prev, x, b, side, x), settle: p.oh.settle, acq: p.oh.acq}
 	changed := prev.filter != d.filter
 	if changed {
 		s.filter = p.oh.filter
@@ -245,6 +258,13 @@ func (p *Problem) setup(prev prevState, b int, x float64) setupParts {
 		p.oh.focusEvery > 0 && p.focusPeriod(prev.start) != p.focusPeriod(x)) {
 		s.doFocus = true
 		s.focus = p.oh.focus
+	}
+	if prev.block >= 0 {
+		// The mount leaves the previous target when the setup begins, not
+		// at x: the slew from there, if longer, counts.
+		if s1 := p.slewTime(prev, x-s.total(), b, side, x); s1 > s.slew {
+			s.slew = s1
+		}
 	}
 	return s
 }

@@ -98,6 +98,7 @@ type bdat struct {
 	bad        []int32
 	good       []int32
 	every, tol float64 // cadence, seconds (every = 0: none)
+	avoidFlip  bool    // the block avoids the flip zone: no flip inside a run
 	minSetup   float64
 	peak       int // step of the best quality
 }
@@ -313,6 +314,7 @@ func (p *Problem) prepare(closures []Closure, executed []Assignment, from time.T
 		}
 		d.rem = max(0, b.FramesWanted-b.FramesDone-done[i])
 		d.filter = fid(b.Filter)
+		d.avoidFlip = b.Set != nil && b.Set.AvoidFlipZone
 		if b.Cadence != nil {
 			d.every, d.tol = b.Cadence.Every.Seconds(), b.Cadence.Tolerance.Seconds()
 		}

@@ -55,9 +55,9 @@ func (it *runIter) next() bool {
 	}
 	side := it.side
 	flipAt := -1.0
-	if p.gem() && side == sideEast && p.haAt(it.r.b, t+d.frame) > p.flip1 {
-		if j == 0 {
-			return false
+	if p.gem() && side == sideEast && p.haAt(it.r.b, t+d.frame) > p.flip1-flipMargin {
+		if j == 0 || d.avoidFlip {
+			return false // a block that avoids the flip zone never flips inside a run
 		}
 		tf := t
 		if p.haAt(it.r.b, tf) < p.flip0 {
@@ -83,6 +83,11 @@ func (it *runIter) next() bool {
 	it.t = end
 	return true
 }
+
+// flipMargin keeps east-side frames this far (radians of hour angle, 30
+// arcsec, 2 s of sidereal time) before the flip zone's end: the hour angle
+// between grid samples is interpolated from float32 tracks.
+const flipMargin = 30.0 / 3600 * math.Pi / 180
 
 // frameStarts replays a run's layout and returns the start of every
 // exposure.

@@ -103,7 +103,7 @@ func Validate(pl *Plan, p *Problem) error {
 		if west != a.Pointing.PierWest {
 			return bad(k, "pier side at start: west = %v, recorded %v", west, a.Pointing.PierWest)
 		}
-		if !a.Flip.IsZero() && (!gem || west || a.FlipBefore < 1 || a.FlipBefore >= a.Frames) {
+		if !a.Flip.IsZero() && (!gem || west || d.avoidFlip || a.FlipBefore < 1 || a.FlipBefore >= a.Frames) {
 			return bad(k, "flip before frame %d not allowed here", a.FlipBefore)
 		}
 		val := 0.0
