@@ -59,7 +59,7 @@ func Horizon(in HorizonInput) ([]NightPlan, error) {
 	if err := checkInput(&Input{Site: in.Site, Grid: &constraints.Grid{}, Blocks: in.Blocks}); err != nil {
 		return nil, err
 	}
-	la, err := NewLookahead(in.Site, in.Blocks, in.First, in.Nights+o.LookaheadNights-1, LookaheadStep, workers)
+	la, err := NewLookahead(in.Site, in.Blocks, in.First, in.Nights+o.LookaheadNights-1, LookaheadStep, workers, o.Cancel)
 	if err != nil {
 		return nil, err
 	}
@@ -101,7 +101,7 @@ func Horizon(in HorizonInput) ([]NightPlan, error) {
 						bl = append(bl, in.Blocks[i])
 					}
 				}
-				nd.tracks, nd.vis = visibilities(nd.grid, bl, 1)
+				nd.tracks, nd.vis = visibilities(nd.grid, bl, 1, o.Cancel)
 			}
 			results[k] <- nd
 		}()

@@ -326,7 +326,7 @@ func (in *Instance) Problem(opts Options) (*Problem, error) {
 	}
 	var chances []int
 	if in.Lookahead > 0 {
-		la, err := NewLookahead(site, blocks, day, in.Lookahead, LookaheadStep, opts.Workers)
+		la, err := NewLookahead(site, blocks, day, in.Lookahead, LookaheadStep, opts.Workers, opts.Cancel)
 		if err != nil {
 			return nil, err
 		}

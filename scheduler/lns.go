@@ -48,14 +48,16 @@ const (
 // doc). It is deterministic for a given Options.Seed as long as the
 // iteration count, not the time budget, ends the search.
 func Solve(p *Problem) *Plan {
-	sc, iters := p.solve(nil, 0)
-	return p.toPlan(sc, "alns", iters)
+	sc, iters, stop := p.solve(nil, 0)
+	pl := p.toPlan(sc, "alns", iters)
+	pl.Stopped = stop
+	return pl
 }
 
 // solve runs the search from the constructive schedule, or from start when
 // it is not nil; runs equal to a key of keep earn keepBonus times their
 // value (replanning).
-func (p *Problem) solve(start *sched, keepBonus float64, keep ...map[runKey]bool) (*sched, int) {
+func (p *Problem) solve(start *sched, keepBonus float64, keep ...map[runKey]bool) (*sched, int, string) {
 	o := p.Options
 	rng := rand.New(rand.NewPCG(o.Seed, 0x6e6c6f6f6d))
 	var cur *sched
@@ -69,6 +71,9 @@ func (p *Problem) solve(start *sched, keepBonus float64, keep ...map[runKey]bool
 		p.repair(cur, dirty, nil, byValue, 0, nil)
 	} else {
 		cur = p.constructive()
+		if cancelled(o.Cancel) {
+			return cur, 0, StopCancelled
+		}
 		if c := p.constructiveCadenceFirst(); c != nil && c.val > cur.val {
 			cur = c
 		}
@@ -98,7 +103,7 @@ func (p *Problem) solve(start *sched, keepBonus float64, keep ...map[runKey]bool
 		return v
 	}
 	if len(cur.runs) == 0 && len(p.Blocks) == 0 {
-		return cur, 0
+		return cur, 0, StopIterations
 	}
 	best := cur.clone()
 	curObj := objective(cur)
@@ -122,8 +127,14 @@ func (p *Problem) solve(start *sched, keepBonus float64, keep ...map[runKey]bool
 	nR := make([]float64, len(repairOps))
 	trial := p.emptySched()
 	it := 0
+	stop := StopIterations
 	for ; it < o.Iterations; it++ {
 		if !deadline.IsZero() && it%8 == 0 && time.Now().After(deadline) {
+			stop = StopBudget
+			break
+		}
+		if cancelled(o.Cancel) {
+			stop = StopCancelled
 			break
 		}
 		// Simulated annealing in annealCycles cycles: each cools from t0 to
@@ -183,9 +194,11 @@ func (p *Problem) solve(start *sched, keepBonus float64, keep ...map[runKey]bool
 			adapt(wR, sR, nR)
 		}
 	}
-	p.polish(best, km, keepBonus)
+	if stop != StopCancelled {
+		p.polish(best, km, keepBonus)
+	}
 	p.recompute(best)
-	return best, it
+	return best, it, stop
 }
 
 func adapt(w, s, n []float64) {

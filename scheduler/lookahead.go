@@ -23,8 +23,9 @@ type Lookahead struct {
 }
 
 // NewLookahead evaluates nights first, first+1 day, ... on coarse grids,
-// nights at a time on at most workers goroutines.
-func NewLookahead(site *Site, blocks []Block, first time.Time, nights int, step time.Duration, workers int) (*Lookahead, error) {
+// nights at a time on at most workers goroutines. Closing cancel (nil:
+// never) stops it with ErrCancelled.
+func NewLookahead(site *Site, blocks []Block, first time.Time, nights int, step time.Duration, workers int, cancel <-chan struct{}) (*Lookahead, error) {
 	la := &Lookahead{First: first, Nights: nights, usable: make([][]bool, len(blocks))}
 	for i := range la.usable {
 		la.usable[i] = make([]bool, nights)
@@ -32,12 +33,15 @@ func NewLookahead(site *Site, blocks []Block, first time.Time, nights int, step 
 	dark := WeakestDarkness(blocks)
 	errs := make([]error, nights)
 	parallel(nights, workers, func(k int) {
+		if cancelled(cancel) {
+			return
+		}
 		day := first.AddDate(0, 0, k)
 		g, err := NightGrid(site.Site, day.Year(), day.Month(), day.Day(), dark, step, constraints.Options{NoSkyBrightness: true})
 		if err != nil {
 			return // no night: nothing usable
 		}
-		tracks, vis := visibilities(g, blocks, 1)
+		tracks, vis := visibilities(g, blocks, 1, cancel)
 		for i := range blocks {
 			if tracks[i] == nil {
 				errs[k] = constraints.ErrTarget
@@ -56,6 +60,9 @@ func NewLookahead(site *Site, blocks []Block, first time.Time, nights int, step 
 			}
 		}
 	})
+	if cancelled(cancel) {
+		return nil, ErrCancelled
+	}
 	for _, err := range errs {
 		if err != nil {
 			return nil, err

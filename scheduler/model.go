@@ -132,6 +132,11 @@ type Options struct {
 	Seed uint64
 	// Iterations of the large-neighbourhood search. Default 1500.
 	Iterations int
+	// Cancel, when closed, stops the preparation and the search as soon
+	// as they notice (within one iteration or one block's evaluation):
+	// the plan is then the best found so far, Plan.Stopped says
+	// StopCancelled, and callers that cancelled discard it.
+	Cancel <-chan struct{}
 	// Budget stops the search early when exceeded. Default 250 ms;
 	// negative means no time limit. The result is deterministic for a seed
 	// as long as Iterations, not Budget, ends the search.
@@ -199,6 +204,9 @@ var (
 	ErrInput     = errors.New("scheduler: invalid input")
 	ErrTooLarge  = errors.New("scheduler: instance too large for the exact solver")
 	ErrNoLP      = errors.New("scheduler: linear program failed")
+	// ErrCancelled: Options.Cancel was closed while the problem was
+	// being prepared.
+	ErrCancelled = errors.New("scheduler: cancelled")
 )
 
 // Validate checks the overhead model.
@@ -261,6 +269,26 @@ type Plan struct {
 	Solver string
 	// Iterations of improvement run (large-neighbourhood search).
 	Iterations int
+	// Stopped says what ended the search: StopIterations, StopBudget or
+	// StopCancelled ("" for solvers without a search).
+	Stopped string
+}
+
+// What ended a search (Plan.Stopped).
+const (
+	StopIterations = "iterations"
+	StopBudget     = "time budget"
+	StopCancelled  = "cancelled"
+)
+
+// cancelled reports whether ch is closed (a nil channel never is).
+func cancelled(ch <-chan struct{}) bool {
+	select {
+	case <-ch:
+		return true
+	default:
+		return false
+	}
 }
 
 // Assignment is one run of one block.

@@ -119,7 +119,10 @@ func NewProblem(in Input) (*Problem, error) {
 	if err := checkInput(&in); err != nil {
 		return nil, err
 	}
-	tracks, vis := visibilities(in.Grid, in.Blocks, in.Options.Workers)
+	tracks, vis := visibilities(in.Grid, in.Blocks, in.Options.Workers, in.Options.Cancel)
+	if cancelled(in.Options.Cancel) {
+		return nil, ErrCancelled
+	}
 	return newProblem(in, tracks, vis)
 }
 
@@ -162,9 +165,15 @@ func newProblem(in Input, tracks []*constraints.Track, vis []*constraints.Visibi
 		workers = runtime.GOMAXPROCS(0)
 	}
 	parallel(len(p.Blocks), workers, func(i int) {
+		if cancelled(p.Options.Cancel) {
+			return
+		}
 		b := &p.Blocks[i]
 		p.Intervals[i] = p.Grid.Intervals(p.Tracks[i], constraints.Request{Set: b.Set, Exposure: b.Exposure, NonSidereal: b.NonSidereal}, p.Vis[i])
 	})
+	if cancelled(p.Options.Cancel) {
+		return nil, ErrCancelled
+	}
 	if err := p.prepare(in.Closures, in.Executed, in.From); err != nil {
 		return nil, err
 	}
@@ -174,7 +183,7 @@ func newProblem(in Input, tracks []*constraints.Track, vis []*constraints.Visibi
 
 // visibilities samples every distinct target once and evaluates every
 // block, on a bounded pool of workers.
-func visibilities(g *constraints.Grid, blocks []Block, workers int) ([]*constraints.Track, []*constraints.Visibility) {
+func visibilities(g *constraints.Grid, blocks []Block, workers int, cancel <-chan struct{}) ([]*constraints.Track, []*constraints.Visibility) {
 	if workers <= 0 {
 		workers = runtime.GOMAXPROCS(0)
 	}
@@ -189,6 +198,9 @@ func visibilities(g *constraints.Grid, blocks []Block, workers int) ([]*constrai
 		}
 	}
 	parallel(len(uniq), workers, func(k int) {
+		if cancelled(cancel) {
+			return
+		}
 		i := uniq[k]
 		tracks[i], _ = g.Track(blocks[i].Target)
 	})
@@ -196,7 +208,7 @@ func visibilities(g *constraints.Grid, blocks []Block, workers int) ([]*constrai
 		tracks[i] = tracks[first[blocks[i].Target]]
 	}
 	parallel(len(blocks), workers, func(i int) {
-		if tracks[i] == nil {
+		if tracks[i] == nil || cancelled(cancel) {
 			return
 		}
 		b := &blocks[i]

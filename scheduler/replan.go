@@ -37,8 +37,9 @@ func Replan(p *Problem, old *Plan, st State) (*Plan, ReplanReport, error) {
 	}
 	start, keep := q.fromPlan(old)
 	q.keep = keep
-	sc, iters := q.solve(start, q.Options.KeepBonus, keep)
+	sc, iters, stop := q.solve(start, q.Options.KeepBonus, keep)
 	pl := q.toPlan(sc, "alns-replan", iters)
+	pl.Stopped = stop
 	var rep ReplanReport
 	kept := map[runKey]bool{}
 	for i := range sc.runs {

@@ -775,7 +775,7 @@ func TestUrgencyFromLookahead(t *testing.T) {
 	site, _ := in.SiteOf()
 	blocks, _ := in.BlocksOf()
 	day, _ := in.Date()
-	la, err := NewLookahead(site, blocks, day, 14, LookaheadStep, 0)
+	la, err := NewLookahead(site, blocks, day, 14, LookaheadStep, 0, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -937,5 +937,36 @@ func TestAxisSeconds(t *testing.T) {
 	}
 	if got := AxisSeconds(90, 3, 0); math.Abs(got-30) > tol {
 		t.Errorf("constant speed: %v s, want 30", got)
+	}
+}
+
+// A closed Options.Cancel stops the search at once (Plan.Stopped says so)
+// and a problem being prepared with ErrCancelled; an iteration count or a
+// budget that ends the search is reported too.
+func TestCancelAndStopReason(t *testing.T) {
+	in, err := GenerateInstance(GenSpec{Name: "cx", Seed: 5, Site: 0, Night: "2027-02-10", Blocks: 40, StepS: 60, Load: 3})
+	if err != nil {
+		t.Fatal(err)
+	}
+	p, err := in.Problem(Options{Seed: 1, Iterations: 50, Budget: -1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if pl := Solve(p); pl.Stopped != StopIterations || pl.Iterations != 50 {
+		t.Errorf("iterations: stopped %q after %d", pl.Stopped, pl.Iterations)
+	}
+	done := make(chan struct{})
+	close(done)
+	q := *p
+	q.Options.Cancel, q.Options.Iterations = done, 1<<30
+	if pl := Solve(&q); pl.Stopped != StopCancelled || pl.Iterations > 0 {
+		t.Errorf("cancelled: stopped %q after %d iterations", pl.Stopped, pl.Iterations)
+	}
+	if _, err := in.Problem(Options{Cancel: done}); !errors.Is(err, ErrCancelled) {
+		t.Errorf("preparing with a closed Cancel: %v, want ErrCancelled", err)
+	}
+	q.Options.Cancel, q.Options.Budget = nil, 20*time.Millisecond
+	if pl := Solve(&q); pl.Stopped != StopBudget {
+		t.Errorf("budget: stopped %q", pl.Stopped)
 	}
 }

@@ -160,7 +160,13 @@ func (schedulerPlanner) plan(ctx context.Context, job *planJob) (*nightloomv1.Pl
 	if budget <= 0 {
 		budget = time.Nanosecond // a budget of 0: the constructive schedule only
 	}
-	opts := scheduler.Options{Seed: uint64(job.args.seed), Budget: budget, Workers: runtime.GOMAXPROCS(0),
+	// The call's context cancels the solver (lookahead, preparation and
+	// search): a cancelled or timed-out MakePlan or Replan stops within
+	// one block's evaluation or one search iteration and says so.
+	stopped := func() error {
+		return fmt.Errorf("planning stopped after %v: %w", time.Since(began).Round(time.Millisecond), ctx.Err())
+	}
+	opts := scheduler.Options{Seed: uint64(job.args.seed), Budget: budget, Workers: runtime.GOMAXPROCS(0), Cancel: ctx.Done(),
 		LookaheadNights: max(1, job.args.lookahead)}
 	in := scheduler.Input{Site: site, Grid: grid, Blocks: blocks, Closures: closures, Executed: executed, From: from, Options: opts}
 	if job.args.lookahead > 0 && len(blocks) > 0 {
@@ -169,16 +175,22 @@ func (schedulerPlanner) plan(ctx context.Context, job *planJob) (*nightloomv1.Pl
 			first = civilOf(job.night)
 		}
 		first = time.Date(first.Year(), first.Month(), first.Day(), 0, 0, 0, 0, time.UTC)
-		la, err := scheduler.NewLookahead(site, blocks, first, job.args.lookahead, lookaheadStep, opts.Workers)
+		la, err := scheduler.NewLookahead(site, blocks, first, job.args.lookahead, lookaheadStep, opts.Workers, opts.Cancel)
+		if ctx.Err() != nil {
+			return nil, stopped()
+		}
 		if err != nil {
 			return nil, fmt.Errorf("server: lookahead: %w", err)
 		}
 		in.Chances = la.Chances(0, job.args.lookahead, nil)
 	}
 	if ctx.Err() != nil {
-		return nil, ctx.Err()
+		return nil, stopped()
 	}
 	prob, err := scheduler.NewProblem(in)
+	if ctx.Err() != nil {
+		return nil, stopped()
+	}
 	if err != nil {
 		return nil, fmt.Errorf("server: planning problem: %w", err)
 	}
@@ -201,6 +213,9 @@ func (schedulerPlanner) plan(ctx context.Context, job *planJob) (*nightloomv1.Pl
 		}
 	} else {
 		sp = scheduler.Solve(prob)
+	}
+	if ctx.Err() != nil {
+		return nil, stopped()
 	}
 	// The solver's plan is checked against the model independently
 	// (overheads, frame layout, visibility and the solar-avoidance floor at

@@ -3,6 +3,7 @@ package server
 import (
 	"context"
 	"errors"
+	"google.golang.org/grpc/status"
 	"io"
 	"math"
 	"testing"
@@ -731,5 +732,57 @@ func TestPlanFlipCadenceDither(t *testing.T) {
 	}
 	if cadRuns < 2 {
 		t.Errorf("cadence block ran %d times", cadRuns)
+	}
+}
+
+// MakePlan stops when the call's deadline passes, however long the time
+// budget, and says so with DEADLINE_EXCEEDED; nothing is stored for it.
+// The latency from the deadline to the answer is logged (issue 10 asks for
+// under 100 ms; the bound checked here is loose so that a loaded machine
+// does not fail the test; the log shows the figure).
+func TestPlanningStopsAtDeadline(t *testing.T) {
+	e := newEnv(t, "")
+	f := e.seed(t, 120)
+	op := as(RoleOperator, e)
+	ok := 0
+	for _, budget := range []time.Duration{50 * time.Millisecond, 5 * time.Second} {
+		for _, deadline := range []time.Duration{30 * time.Millisecond, 300 * time.Millisecond} {
+			ctx, cancel := context.WithTimeout(op, deadline)
+			t0 := time.Now()
+			_, err := e.plans.MakePlan(ctx, &nightloomv1.MakePlanRequest{SiteId: f.site.GetId(),
+				Span: &nightloomv1.MakePlanRequest_Night{Night: testNight}, TimeBudget: dur(budget)})
+			late := time.Since(t0) - deadline
+			cancel()
+			if err == nil {
+				ok++
+			}
+			if budget < deadline {
+				continue // may finish first
+			}
+			if c := status.Code(err); c != codes.DeadlineExceeded {
+				t.Errorf("budget %v, deadline %v: code %v (%v), want DeadlineExceeded", budget, deadline, c, err)
+			}
+			// The server must have stopped too, not only the client: the
+			// next call for the site waits for the site's planning lock.
+			t1 := time.Now()
+			if _, err := e.plans.MakePlan(op, &nightloomv1.MakePlanRequest{SiteId: f.site.GetId(),
+				Span: &nightloomv1.MakePlanRequest_Night{Night: testNight}, TimeBudget: dur(0), LookaheadNights: proto.Int32(0)}); err != nil {
+				t.Fatal(err)
+			}
+			ok++
+			next := time.Since(t1)
+			t.Logf("budget %v, deadline %v: answered %v after the deadline (%v); the next call took %v", budget, deadline,
+				late.Round(time.Millisecond), err, next.Round(time.Millisecond))
+			if late > time.Second || next > 2*time.Second {
+				t.Errorf("budget %v, deadline %v: answered %v after the deadline, the next call took %v", budget, deadline, late, next)
+			}
+		}
+	}
+	lp, err := e.plans.ListPlans(as(RoleViewer, e), &nightloomv1.ListPlansRequest{SiteId: f.site.GetId()})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(lp.GetPlans()) != ok {
+		t.Errorf("%d plans stored, %d calls succeeded", len(lp.GetPlans()), ok)
 	}
 }
