@@ -130,6 +130,13 @@ func demo(stdout, stderr io.Writer, outDir string, verbose bool, budget time.Dur
 	if err := printPlan(stdout, plan, pc, nil); err != nil {
 		return err
 	}
+	if as := plan.GetAssignments(); len(as) > 0 && nr.GetCivilDawn() != nil {
+		// The night's last run (the comet, in morning twilight) ends before
+		// civil dawn to the second: constraints hold over whole runs.
+		last := as[len(as)-1]
+		fmt.Fprintf(stdout, "last run (%s) ends %s UTC; civil dawn %s UTC\n", last.GetTargetName(),
+			last.GetEnd().AsTime().UTC().Format("15:04:05"), nr.GetCivilDawn().AsTime().UTC().Format("15:04:05"))
+	}
 
 	// 3. The chart.
 	nightPNG := filepath.Join(outDir, "night.png")

@@ -538,6 +538,14 @@ func TestDemo(t *testing.T) {
 	}
 	checkPNG(t, filepath.Join(out, "night.png"))
 	checkPNG(t, filepath.Join(out, "replan.png"))
+	// The comet's run in morning twilight ends before civil dawn (issue 10:
+	// it used to reach 34 s past it).
+	m := regexp.MustCompile(`last run \((.*)\) ends (\d\d:\d\d:\d\d) UTC; civil dawn (\d\d:\d\d:\d\d) UTC`).FindStringSubmatch(r.stdout)
+	if m == nil {
+		t.Errorf("demo output lacks the last run's end and civil dawn")
+	} else if !strings.HasPrefix(m[1], "Comet") || m[2] > m[3] {
+		t.Errorf("last run %s ends %s, civil dawn %s: want the comet, ending before dawn", m[1], m[2], m[3])
+	}
 	if elapsed > 20*time.Second {
 		t.Errorf("demo took %v, want under 20 s", elapsed)
 	}

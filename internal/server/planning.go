@@ -247,7 +247,7 @@ func (schedulerPlanner) plan(ctx context.Context, job *planJob) (*nightloomv1.Pl
 	}
 	body.Solver = &nightloomv1.SolverStats{Algorithm: sp.Solver, SolveTime: durationpb.New(time.Since(began)),
 		Iterations: int64(sp.Iterations), Seed: job.args.seed, GridStep: durationpb.New(job.args.gridStep),
-		GridSteps: int32(grid.N), BlocksConsidered: int32(len(blocks))}
+		GridSteps: int32(grid.N), BlocksConsidered: int32(len(blocks)), StopReason: sp.Stopped}
 	body.Objective = objectiveOf(job, body, &sp.Objective)
 	return body, nil
 }

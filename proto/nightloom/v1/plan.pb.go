@@ -615,8 +615,11 @@ type SolverStats struct {
 	GridSteps int32 `protobuf:"varint,6,opt,name=grid_steps,json=gridSteps,proto3" json:"grid_steps,omitempty"`
 	// Open blocks considered.
 	BlocksConsidered int32 `protobuf:"varint,7,opt,name=blocks_considered,json=blocksConsidered,proto3" json:"blocks_considered,omitempty"`
-	unknownFields    protoimpl.UnknownFields
-	sizeCache        protoimpl.SizeCache
+	// What ended the search: "iterations" (its iteration count), "time
+	// budget" (time_budget ran out); empty for plans stored before this field.
+	StopReason    string `protobuf:"bytes,8,opt,name=stop_reason,json=stopReason,proto3" json:"stop_reason,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
 }
 
 func (x *SolverStats) Reset() {
@@ -696,6 +699,13 @@ func (x *SolverStats) GetBlocksConsidered() int32 {
 		return x.BlocksConsidered
 	}
 	return 0
+}
+
+func (x *SolverStats) GetStopReason() string {
+	if x != nil {
+		return x.StopReason
+	}
+	return ""
 }
 
 // The objective the solver maximised and its parts (defined in the
@@ -1970,7 +1980,7 @@ const file_nightloom_v1_plan_proto_rawDesc = "" +
 	"\x06reason\x18\x02 \x01(\x0e2\x14.nightloom.v1.ReasonR\x06reason\x12\x16\n" +
 	"\x06detail\x18\x03 \x01(\tR\x06detail\x12\x1f\n" +
 	"\vframes_left\x18\x04 \x01(\x05R\n" +
-	"framesLeft\"\x9d\x02\n" +
+	"framesLeft\"\xbe\x02\n" +
 	"\vSolverStats\x12\x1c\n" +
 	"\talgorithm\x18\x01 \x01(\tR\talgorithm\x128\n" +
 	"\n" +
@@ -1982,7 +1992,9 @@ const file_nightloom_v1_plan_proto_rawDesc = "" +
 	"\tgrid_step\x18\x05 \x01(\v2\x19.google.protobuf.DurationR\bgridStep\x12\x1d\n" +
 	"\n" +
 	"grid_steps\x18\x06 \x01(\x05R\tgridSteps\x12+\n" +
-	"\x11blocks_considered\x18\a \x01(\x05R\x10blocksConsidered\"\xb6\x02\n" +
+	"\x11blocks_considered\x18\a \x01(\x05R\x10blocksConsidered\x12\x1f\n" +
+	"\vstop_reason\x18\b \x01(\tR\n" +
+	"stopReason\"\xb6\x02\n" +
 	"\x0eObjectiveParts\x12\x14\n" +
 	"\x05total\x18\x01 \x01(\x01R\x05total\x12+\n" +
 	"\x11weighted_exposure\x18\x02 \x01(\x01R\x10weightedExposure\x12)\n" +

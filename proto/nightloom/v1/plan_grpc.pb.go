@@ -47,6 +47,12 @@ type PlanServiceClient interface {
 	// Limits: nights 1..30; an interval of 10 min..48 h; grid_step 10 s..10
 	// min; at most 5 000 000 block-steps (open blocks times grid steps) per
 	// night; time_budget up to 60 s; at most 100 closures.
+	// Every run of a plan lies inside its block's constraints at every instant
+	// (not only at the grid's steps), and every overhead is at least what the
+	// site's overhead model needs (slews with per-axis acceleration).
+	// The call's deadline or cancellation stops the solver within one block's
+	// evaluation or one search iteration: DEADLINE_EXCEEDED or CANCELLED, and
+	// nothing is stored.
 	// Errors: INVALID_ARGUMENT (a limit above names its field); NOT_FOUND for
 	// an unknown site.
 	MakePlan(ctx context.Context, in *MakePlanRequest, opts ...grpc.CallOption) (*MakePlanResponse, error)
@@ -61,9 +67,14 @@ type PlanServiceClient interface {
 	ListPlans(ctx context.Context, in *ListPlansRequest, opts ...grpc.CallOption) (*ListPlansResponse, error)
 	// Replan plans again, from an instant to the end of a plan's interval,
 	// with the frames done so far and added closures, keeping assignments that
-	// are still good. Assignments that end before `from` are kept as they
-	// are; one in progress at `from` is kept unless a closure overlaps it, in
-	// which case it ends at the closure's start with the frames that fit.
+	// are still good. Assignments that end before `from` are kept as their
+	// progress reports say they went (a run reported short or interrupted
+	// ends where its report ends, with the frames it kept; one without a
+	// report as planned); one in progress at `from` is kept unless a closure
+	// overlaps it, in which case it ends at the closure's start with the
+	// frames that fit and its end conditions recomputed. The call's deadline
+	// or cancellation stops the solver: DEADLINE_EXCEEDED or CANCELLED, and
+	// nothing is stored.
 	// Stores the result as a new version and pushes it to watchers.
 	// Limits: as MakePlan; at most 100 closures.
 	// Errors: INVALID_ARGUMENT; NOT_FOUND for an unknown site or plan;
@@ -74,7 +85,12 @@ type PlanServiceClient interface {
 	// next at a site, given the current instant and state. It follows the
 	// site's latest plan covering `now` (the assignment in progress at `now`
 	// or the next one), skipping assignments whose block has since completed
-	// or been withdrawn, and stores nothing.
+	// or been withdrawn, and stores nothing. An assignment in progress whose
+	// run was already reported (short or interrupted) is over: the frames it
+	// did not take are offered again from `now` (as_planned false) when they
+	// still fit the block's constraints before its planned end. A moved or
+	// shortened assignment has its overheads, pointing and conditions
+	// recomputed and its constraints re-checked over the new interval.
 	// Errors: INVALID_ARGUMENT; NOT_FOUND for an unknown site.
 	NextAssignment(ctx context.Context, in *NextAssignmentRequest, opts ...grpc.CallOption) (*NextAssignmentResponse, error)
 	// WatchPlans streams every new plan version of a site, whole, in version
@@ -179,6 +195,12 @@ type PlanServiceServer interface {
 	// Limits: nights 1..30; an interval of 10 min..48 h; grid_step 10 s..10
 	// min; at most 5 000 000 block-steps (open blocks times grid steps) per
 	// night; time_budget up to 60 s; at most 100 closures.
+	// Every run of a plan lies inside its block's constraints at every instant
+	// (not only at the grid's steps), and every overhead is at least what the
+	// site's overhead model needs (slews with per-axis acceleration).
+	// The call's deadline or cancellation stops the solver within one block's
+	// evaluation or one search iteration: DEADLINE_EXCEEDED or CANCELLED, and
+	// nothing is stored.
 	// Errors: INVALID_ARGUMENT (a limit above names its field); NOT_FOUND for
 	// an unknown site.
 	MakePlan(context.Context, *MakePlanRequest) (*MakePlanResponse, error)
@@ -193,9 +215,14 @@ type PlanServiceServer interface {
 	ListPlans(context.Context, *ListPlansRequest) (*ListPlansResponse, error)
 	// Replan plans again, from an instant to the end of a plan's interval,
 	// with the frames done so far and added closures, keeping assignments that
-	// are still good. Assignments that end before `from` are kept as they
-	// are; one in progress at `from` is kept unless a closure overlaps it, in
-	// which case it ends at the closure's start with the frames that fit.
+	// are still good. Assignments that end before `from` are kept as their
+	// progress reports say they went (a run reported short or interrupted
+	// ends where its report ends, with the frames it kept; one without a
+	// report as planned); one in progress at `from` is kept unless a closure
+	// overlaps it, in which case it ends at the closure's start with the
+	// frames that fit and its end conditions recomputed. The call's deadline
+	// or cancellation stops the solver: DEADLINE_EXCEEDED or CANCELLED, and
+	// nothing is stored.
 	// Stores the result as a new version and pushes it to watchers.
 	// Limits: as MakePlan; at most 100 closures.
 	// Errors: INVALID_ARGUMENT; NOT_FOUND for an unknown site or plan;
@@ -206,7 +233,12 @@ type PlanServiceServer interface {
 	// next at a site, given the current instant and state. It follows the
 	// site's latest plan covering `now` (the assignment in progress at `now`
 	// or the next one), skipping assignments whose block has since completed
-	// or been withdrawn, and stores nothing.
+	// or been withdrawn, and stores nothing. An assignment in progress whose
+	// run was already reported (short or interrupted) is over: the frames it
+	// did not take are offered again from `now` (as_planned false) when they
+	// still fit the block's constraints before its planned end. A moved or
+	// shortened assignment has its overheads, pointing and conditions
+	// recomputed and its constraints re-checked over the new interval.
 	// Errors: INVALID_ARGUMENT; NOT_FOUND for an unknown site.
 	NextAssignment(context.Context, *NextAssignmentRequest) (*NextAssignmentResponse, error)
 	// WatchPlans streams every new plan version of a site, whole, in version

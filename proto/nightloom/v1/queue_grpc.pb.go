@@ -65,7 +65,16 @@ type QueueServiceClient interface {
 	// Idempotent on report_id: repeating a report with the same id and the
 	// same content succeeds with duplicate = true, frames_counted = 0 and the
 	// block as it is now; nothing is counted again. Reports for blocks that
-	// are no longer open are recorded and counted the same way.
+	// are no longer open (completed or withdrawn) are recorded and counted
+	// the same way, up to frames_wanted: the frames were taken; a withdrawn
+	// block stays withdrawn.
+	// A report that cannot be true is refused with INVALID_ARGUMENT naming the
+	// field, and nothing is stored: frames_kept that do not fit the interval
+	// at the block's exposure and the site's readout
+	// (report.frames_kept), an interval that ends more than 2 minutes after
+	// the server's clock (report.interval.end), starts more than 2 minutes
+	// before the block was queued (report.interval.start) or lasts longer
+	// than 24 hours (report.interval).
 	// Errors: INVALID_ARGUMENT; NOT_FOUND for an unknown block; ALREADY_EXISTS
 	// when report_id was used before with different content.
 	ReportProgress(ctx context.Context, in *ReportProgressRequest, opts ...grpc.CallOption) (*ReportProgressResponse, error)
@@ -165,7 +174,16 @@ type QueueServiceServer interface {
 	// Idempotent on report_id: repeating a report with the same id and the
 	// same content succeeds with duplicate = true, frames_counted = 0 and the
 	// block as it is now; nothing is counted again. Reports for blocks that
-	// are no longer open are recorded and counted the same way.
+	// are no longer open (completed or withdrawn) are recorded and counted
+	// the same way, up to frames_wanted: the frames were taken; a withdrawn
+	// block stays withdrawn.
+	// A report that cannot be true is refused with INVALID_ARGUMENT naming the
+	// field, and nothing is stored: frames_kept that do not fit the interval
+	// at the block's exposure and the site's readout
+	// (report.frames_kept), an interval that ends more than 2 minutes after
+	// the server's clock (report.interval.end), starts more than 2 minutes
+	// before the block was queued (report.interval.start) or lasts longer
+	// than 24 hours (report.interval).
 	// Errors: INVALID_ARGUMENT; NOT_FOUND for an unknown block; ALREADY_EXISTS
 	// when report_id was used before with different content.
 	ReportProgress(context.Context, *ReportProgressRequest) (*ReportProgressResponse, error)
