@@ -1,4 +1,6 @@
-package main
+// Package chart draws night charts with gonum.org/v1/plot (moved from
+// cmd/nightloom so that the web pages can draw them too).
+package chart
 
 // Night charts drawn with gonum.org/v1/plot: altitude against the site's
 // local time, twilight bands, the Moon, every charted target's altitude
@@ -8,6 +10,7 @@ package main
 // with the constraints grid (the same sampling the daemon plans on).
 
 import (
+	"errors"
 	"fmt"
 	"image/color"
 	"math"
@@ -28,34 +31,34 @@ import (
 	"github.com/nightloom/nightloom/ephem"
 )
 
-// chartRun is one assignment to draw over its target's curve.
-type chartRun struct {
-	start, end time.Time
-	label      string // e.g. the filter
+// Run is one assignment to draw over its target's curve.
+type Run struct {
+	Start, End time.Time
+	Label      string // e.g. the filter
 }
 
-// chartCurve is one target on the chart.
-type chartCurve struct {
-	name   string
-	target *constraints.Target
-	runs   []chartRun
+// Curve is one target on the chart.
+type Curve struct {
+	Name   string
+	Target *constraints.Target
+	Runs   []Run
 }
 
-// chartSpan is a shaded interval (a closure).
-type chartSpan struct {
-	start, end time.Time
-	label      string
+// Span is a shaded interval (a closure).
+type Span struct {
+	Start, End time.Time
+	Label      string
 }
 
-// chartSpec says what to draw.
-type chartSpec struct {
-	title      string
-	site       *constraints.Site
-	start, end time.Time     // the time axis
-	step       time.Duration // sampling of the curves
-	curves     []chartCurve
-	closures   []chartSpan
-	marks      []chartSpan // vertical lines at start (end unused), e.g. "replanned from"
+// Spec says what to draw.
+type Spec struct {
+	Title      string
+	Site       *constraints.Site
+	Start, End time.Time     // the time axis
+	Step       time.Duration // sampling of the curves
+	Curves     []Curve
+	Closures   []Span
+	Marks      []Span // vertical lines at Start (End unused), e.g. "replanned from"
 }
 
 // Colours. Twilight bands grow more saturated toward the Sun; the night is
@@ -185,27 +188,27 @@ func interpAlt(g *constraints.Grid, alt []float64, t time.Time) float64 {
 	return alt[i]*(1-f) + alt[i+1]*f
 }
 
-// buildChart computes the curves and lays out the plot and its legend.
-func buildChart(spec chartSpec) (*plot.Plot, *plot.Legend, error) {
-	step := spec.step
+// Build computes the curves and lays out the plot and its legend.
+func Build(spec Spec) (*plot.Plot, *plot.Legend, error) {
+	step := spec.Step
 	if step <= 0 {
 		step = 2 * time.Minute
 	}
 	// One step past the end so that the curves reach the axis' end.
-	g, err := constraints.NewGrid(spec.site, spec.start, spec.end.Add(step), step, constraints.Options{NoSkyBrightness: true})
+	g, err := constraints.NewGrid(spec.Site, spec.Start, spec.End.Add(step), step, constraints.Options{NoSkyBrightness: true})
 	if err != nil {
 		return nil, nil, err
 	}
-	loc := spec.site.Location
+	loc := spec.Site.Location
 	if loc == nil {
 		loc = time.UTC
 	}
 	sans := font.Font{Typeface: "Liberation", Variant: "Sans"}
 	plot.DefaultFont, plotter.DefaultFont = sans, sans
 	p := plot.New()
-	p.Title.Text = spec.title
+	p.Title.Text = spec.Title
 	p.Title.TextStyle.Font.Size = vg.Points(13)
-	p.X.Label.Text = "local time (" + zoneLabel(loc, spec.start) + ")"
+	p.X.Label.Text = "local time (" + zoneLabel(loc, spec.Start) + ")"
 	p.Y.Label.Text = "altitude"
 	p.X.Tick.Marker = hourTicks{loc}
 	p.Y.Tick.Marker = degTicks{}
@@ -235,8 +238,8 @@ func buildChart(spec chartSpec) (*plot.Plot, *plot.Legend, error) {
 			}
 		}
 	}
-	for _, c := range spec.closures {
-		p.Add(filled(rect(unix(c.start), unix(c.end), 0, 90), colClosure))
+	for _, c := range spec.Closures {
+		p.Add(filled(rect(unix(c.Start), unix(c.End), 0, 90), colClosure))
 	}
 	gr := plotter.NewGrid()
 	gr.Vertical.Color = color.RGBA{0, 0, 0, 30}
@@ -263,17 +266,17 @@ func buildChart(spec chartSpec) (*plot.Plot, *plot.Legend, error) {
 	}
 	var entries []entry
 	var labels plotter.XYLabels
-	for k, c := range spec.curves {
+	for k, c := range spec.Curves {
 		col := palette[k%len(palette)]
-		tr, err := g.Track(c.target)
+		tr, err := g.Track(c.Target)
 		if err != nil {
-			return nil, nil, fmt.Errorf("%s: %w", c.name, err)
+			return nil, nil, fmt.Errorf("%s: %w", c.Name, err)
 		}
 		alt := make([]float64, g.N)
 		hidden := make([]bool, g.N)
 		for i := 0; i < g.N; i++ {
 			alt[i] = float64(tr.Alt[i]) * ephem.Rad2Deg
-			hidden[i] = float64(tr.Alt[i]) < spec.site.Horizon.AltitudeAt(float64(tr.Az[i]))
+			hidden[i] = float64(tr.Alt[i]) < spec.Site.Horizon.AltitudeAt(float64(tr.Az[i]))
 		}
 		var first *plotter.Line
 		for i := 0; i < g.N; {
@@ -305,26 +308,26 @@ func buildChart(spec chartSpec) (*plot.Plot, *plot.Legend, error) {
 			}
 			i = j
 		}
-		for _, r := range c.runs {
-			xys := plotter.XYs{{X: unix(r.start), Y: interpAlt(g, alt, r.start)}}
+		for _, r := range c.Runs {
+			xys := plotter.XYs{{X: unix(r.Start), Y: interpAlt(g, alt, r.Start)}}
 			for i := 0; i < g.N; i++ {
-				if t := g.Time(i); t.After(r.start) && t.Before(r.end) {
+				if t := g.Time(i); t.After(r.Start) && t.Before(r.End) {
 					xys = append(xys, plotter.XY{X: unix(t), Y: alt[i]})
 				}
 			}
-			xys = append(xys, plotter.XY{X: unix(r.end), Y: interpAlt(g, alt, r.end)})
+			xys = append(xys, plotter.XY{X: unix(r.End), Y: interpAlt(g, alt, r.End)})
 			p.Add(newLine(xys, col, vg.Points(4.5)))
-			if r.label != "" {
-				m := r.start.Add(r.end.Sub(r.start) / 2)
+			if r.Label != "" {
+				m := r.Start.Add(r.End.Sub(r.Start) / 2)
 				labels.XYs = append(labels.XYs, plotter.XY{X: unix(m), Y: math.Min(interpAlt(g, alt, m)+2.2, 88)})
-				labels.Labels = append(labels.Labels, r.label)
+				labels.Labels = append(labels.Labels, r.Label)
 			}
 		}
 		thumb := newLine(nil, col, vg.Points(4))
 		if first == nil {
 			first = thumb
 		}
-		entries = append(entries, entry{c.name, thumb})
+		entries = append(entries, entry{c.Name, thumb})
 	}
 	if len(labels.XYs) > 0 {
 		lb, err := plotter.NewLabels(labels)
@@ -337,10 +340,10 @@ func buildChart(spec chartSpec) (*plot.Plot, *plot.Legend, error) {
 		}
 		p.Add(lb)
 	}
-	for _, m := range spec.marks {
-		l := newLine(plotter.XYs{{X: unix(m.start), Y: 0}, {X: unix(m.start), Y: 90}}, colMark, vg.Points(1.2), vg.Points(2), vg.Points(2))
+	for _, m := range spec.Marks {
+		l := newLine(plotter.XYs{{X: unix(m.Start), Y: 0}, {X: unix(m.Start), Y: 90}}, colMark, vg.Points(1.2), vg.Points(2), vg.Points(2))
 		p.Add(l)
-		leg.Add(m.label, l)
+		leg.Add(m.Label, l)
 	}
 
 	for _, e := range entries {
@@ -350,8 +353,8 @@ func buildChart(spec chartSpec) (*plot.Plot, *plot.Legend, error) {
 	if hiddenSample != nil {
 		leg.Add("behind the local horizon", newLine(nil, colHidden, vg.Points(1.2), vg.Points(3), vg.Points(2.5)))
 	}
-	if len(spec.closures) > 0 {
-		leg.Add("closure ("+spec.closures[0].label+")", filled(rect(0, 1, 0, 1), colClosure))
+	if len(spec.Closures) > 0 {
+		leg.Add("closure ("+spec.Closures[0].Label+")", filled(rect(0, 1, 0, 1), colClosure))
 	}
 	for _, s := range bandStyle {
 		if seen[s.level] {
@@ -359,7 +362,7 @@ func buildChart(spec chartSpec) (*plot.Plot, *plot.Legend, error) {
 		}
 	}
 	// Last: Add widens the axes to the data it is given.
-	p.X.Min, p.X.Max = unix(spec.start), unix(spec.end)
+	p.X.Min, p.X.Max = unix(spec.Start), unix(spec.End)
 	p.Y.Min, p.Y.Max = 0, 90
 	return p, &leg, nil
 }
@@ -381,13 +384,16 @@ const (
 	chartDPI    = 130
 )
 
-// writeChart draws the spec to path, as PNG or SVG by its extension.
-func writeChart(spec chartSpec, path string) error {
+// ErrFormat refuses a file name that is neither .png nor .svg.
+var ErrFormat = errors.New("chart: want a .png or .svg file name")
+
+// WriteFile draws the spec to path, as PNG or SVG by its extension.
+func WriteFile(spec Spec, path string) error {
 	ext := strings.ToLower(filepath.Ext(path))
 	if ext != ".png" && ext != ".svg" {
-		return flagError("out", "want a .png or .svg file name, got %q", path)
+		return fmt.Errorf("%w, got %q", ErrFormat, path)
 	}
-	p, leg, err := buildChart(spec)
+	p, leg, err := Build(spec)
 	if err != nil {
 		return err
 	}
