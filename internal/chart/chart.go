@@ -13,6 +13,7 @@ import (
 	"errors"
 	"fmt"
 	"image/color"
+	"io"
 	"math"
 	"os"
 	"path/filepath"
@@ -59,27 +60,66 @@ type Spec struct {
 	Curves     []Curve
 	Closures   []Span
 	Marks      []Span // vertical lines at Start (End unused), e.g. "replanned from"
+	// Theme is the colours; nil means Light.
+	Theme *Theme
 }
 
-// Colours. Twilight bands grow more saturated toward the Sun; the night is
-// left white so that the curves stand out.
-var (
-	colDay      = color.RGBA{255, 240, 190, 255}
-	colCivil    = color.RGBA{150, 175, 220, 255}
-	colNautical = color.RGBA{190, 206, 235, 255}
-	colAstro    = color.RGBA{226, 233, 246, 255}
-	colClosure  = color.NRGBA{215, 40, 40, 70}
-	colMoon     = color.RGBA{150, 110, 0, 255}
-	colHidden   = color.RGBA{150, 150, 150, 255}
-	colMark     = color.RGBA{200, 30, 30, 255}
-	// palette holds distinct colours for the targets (a qualitative scheme
-	// of our own, dark enough to read on the pale bands).
-	palette = []color.RGBA{
+// Theme is the chart's colours. Light is the printed chart's (the night
+// left white so that the curves stand out); Dark keeps a dark-adapted eye's
+// night vision (no white, dim red-brown text), for the web pages.
+type Theme struct {
+	Background, Text, Grid      color.Color
+	Day, Civil, Nautical, Astro color.Color
+	Closure, Moon, Hidden, Mark color.Color
+	// Palette holds distinct colours for the targets.
+	Palette []color.RGBA
+}
+
+// Light is the default theme. Twilight bands grow more saturated toward
+// the Sun; the night is left white so that the curves stand out.
+var Light = Theme{
+	Background: color.White,
+	Text:       color.Black,
+	Grid:       color.RGBA{0, 0, 0, 30},
+	Day:        color.RGBA{255, 240, 190, 255},
+	Civil:      color.RGBA{150, 175, 220, 255},
+	Nautical:   color.RGBA{190, 206, 235, 255},
+	Astro:      color.RGBA{226, 233, 246, 255},
+	Closure:    color.NRGBA{215, 40, 40, 70},
+	Moon:       color.RGBA{150, 110, 0, 255},
+	Hidden:     color.RGBA{150, 150, 150, 255},
+	Mark:       color.RGBA{200, 30, 30, 255},
+	// A qualitative scheme of our own, dark enough to read on the pale
+	// bands.
+	Palette: []color.RGBA{
 		{31, 100, 180, 255}, {230, 110, 0, 255}, {30, 150, 60, 255}, {200, 30, 40, 255},
 		{130, 80, 190, 255}, {130, 80, 50, 255}, {220, 60, 160, 255}, {90, 90, 90, 255},
 		{160, 160, 20, 255}, {20, 170, 190, 255}, {0, 60, 110, 255}, {120, 0, 60, 255},
-	}
-)
+	},
+}
+
+// Dark is the night theme: a near-black night, twilight bands as dim blues
+// growing lighter toward the Sun, daylight a dim amber, text a dim warm
+// grey (common practice for dark-adapted eyes, no source: keep everything
+// dim and warm).
+var Dark = Theme{
+	Background: color.RGBA{10, 8, 8, 255},
+	Text:       color.RGBA{190, 150, 140, 255},
+	Grid:       color.RGBA{255, 200, 190, 28},
+	Day:        color.RGBA{70, 50, 20, 255},
+	Civil:      color.RGBA{40, 46, 78, 255},
+	Nautical:   color.RGBA{28, 32, 56, 255},
+	Astro:      color.RGBA{18, 20, 36, 255},
+	Closure:    color.NRGBA{200, 40, 40, 80},
+	Moon:       color.RGBA{200, 170, 90, 255},
+	Hidden:     color.RGBA{110, 100, 100, 255},
+	Mark:       color.RGBA{230, 60, 60, 255},
+	Palette: []color.RGBA{
+		{90, 150, 230, 255}, {240, 140, 40, 255}, {80, 190, 100, 255}, {230, 80, 80, 255},
+		{170, 130, 230, 255}, {190, 140, 100, 255}, {230, 110, 190, 255}, {170, 170, 170, 255},
+		{200, 200, 70, 255}, {70, 200, 210, 255}, {110, 160, 220, 255}, {200, 90, 130, 255},
+	},
+}
 
 // unix is the chart's x coordinate of an instant.
 func unix(t time.Time) float64 { return float64(t.UnixNano()) / 1e9 }
@@ -203,6 +243,7 @@ func Build(spec Spec) (*plot.Plot, *plot.Legend, error) {
 	if loc == nil {
 		loc = time.UTC
 	}
+	th := spec.theme()
 	sans := font.Font{Typeface: "Liberation", Variant: "Sans"}
 	plot.DefaultFont, plotter.DefaultFont = sans, sans
 	p := plot.New()
@@ -225,10 +266,10 @@ func Build(spec Spec) (*plot.Plot, *plot.Legend, error) {
 		col   color.Color
 		name  string
 	}{
-		{constraints.Day, colDay, "daylight (Sun above -0.83°)"},
-		{constraints.CivilTwilight, colCivil, "civil twilight (Sun -0.83° to -6°)"},
-		{constraints.NauticalTwilight, colNautical, "nautical twilight (-6° to -12°)"},
-		{constraints.AstronomicalTwilight, colAstro, "astronomical twilight (-12° to -18°)"},
+		{constraints.Day, th.Day, "daylight (Sun above -0.83°)"},
+		{constraints.CivilTwilight, th.Civil, "civil twilight (Sun -0.83° to -6°)"},
+		{constraints.NauticalTwilight, th.Nautical, "nautical twilight (-6° to -12°)"},
+		{constraints.AstronomicalTwilight, th.Astro, "astronomical twilight (-12° to -18°)"},
 	}
 	for _, b := range darknessBands(g) {
 		for _, s := range bandStyle {
@@ -239,11 +280,11 @@ func Build(spec Spec) (*plot.Plot, *plot.Legend, error) {
 		}
 	}
 	for _, c := range spec.Closures {
-		p.Add(filled(rect(unix(c.Start), unix(c.End), 0, 90), colClosure))
+		p.Add(filled(rect(unix(c.Start), unix(c.End), 0, 90), th.Closure))
 	}
 	gr := plotter.NewGrid()
-	gr.Vertical.Color = color.RGBA{0, 0, 0, 30}
-	gr.Horizontal.Color = color.RGBA{0, 0, 0, 30}
+	gr.Vertical.Color = th.Grid
+	gr.Horizontal.Color = th.Grid
 	p.Add(gr)
 
 	// The Moon.
@@ -251,7 +292,7 @@ func Build(spec Spec) (*plot.Plot, *plot.Legend, error) {
 	for i := 0; i < g.N; i++ {
 		moon = append(moon, plotter.XY{X: unix(g.Time(i)), Y: g.MoonAlt[i] * ephem.Rad2Deg})
 	}
-	moonLine := newLine(moon, colMoon, vg.Points(1.4), vg.Points(7), vg.Points(3))
+	moonLine := newLine(moon, th.Moon, vg.Points(1.4), vg.Points(7), vg.Points(3))
 	p.Add(moonLine)
 	// Geocentric illuminated fraction at the middle of the chart, the
 	// quantity SkyService.Night reports.
@@ -267,7 +308,7 @@ func Build(spec Spec) (*plot.Plot, *plot.Legend, error) {
 	var entries []entry
 	var labels plotter.XYLabels
 	for k, c := range spec.Curves {
-		col := palette[k%len(palette)]
+		col := th.Palette[k%len(th.Palette)]
 		tr, err := g.Track(c.Target)
 		if err != nil {
 			return nil, nil, fmt.Errorf("%s: %w", c.Name, err)
@@ -293,7 +334,7 @@ func Build(spec Spec) (*plot.Plot, *plot.Legend, error) {
 			}
 			if len(xys) >= 2 {
 				if hidden[i] {
-					l := newLine(xys, colHidden, vg.Points(0.9), vg.Points(3), vg.Points(2.5))
+					l := newLine(xys, th.Hidden, vg.Points(0.9), vg.Points(3), vg.Points(2.5))
 					p.Add(l)
 					if hiddenSample == nil && slicesMaxY(xys[:j-i]) > 0 {
 						hiddenSample = l
@@ -341,7 +382,7 @@ func Build(spec Spec) (*plot.Plot, *plot.Legend, error) {
 		p.Add(lb)
 	}
 	for _, m := range spec.Marks {
-		l := newLine(plotter.XYs{{X: unix(m.Start), Y: 0}, {X: unix(m.Start), Y: 90}}, colMark, vg.Points(1.2), vg.Points(2), vg.Points(2))
+		l := newLine(plotter.XYs{{X: unix(m.Start), Y: 0}, {X: unix(m.Start), Y: 90}}, th.Mark, vg.Points(1.2), vg.Points(2), vg.Points(2))
 		p.Add(l)
 		leg.Add(m.Label, l)
 	}
@@ -351,15 +392,24 @@ func Build(spec Spec) (*plot.Plot, *plot.Legend, error) {
 	}
 	leg.Add(moonName, moonLine)
 	if hiddenSample != nil {
-		leg.Add("behind the local horizon", newLine(nil, colHidden, vg.Points(1.2), vg.Points(3), vg.Points(2.5)))
+		leg.Add("behind the local horizon", newLine(nil, th.Hidden, vg.Points(1.2), vg.Points(3), vg.Points(2.5)))
 	}
 	if len(spec.Closures) > 0 {
-		leg.Add("closure ("+spec.Closures[0].Label+")", filled(rect(0, 1, 0, 1), colClosure))
+		leg.Add("closure ("+spec.Closures[0].Label+")", filled(rect(0, 1, 0, 1), th.Closure))
 	}
 	for _, s := range bandStyle {
 		if seen[s.level] {
 			leg.Add(s.name, filled(rect(0, 1, 0, 1), s.col))
 		}
+	}
+	p.BackgroundColor = th.Background
+	p.Title.TextStyle.Color = th.Text
+	leg.TextStyle.Color = th.Text
+	for _, ax := range []*plot.Axis{&p.X, &p.Y} {
+		ax.Label.TextStyle.Color = th.Text
+		ax.Tick.Label.Color = th.Text
+		ax.LineStyle.Color = th.Text
+		ax.Tick.LineStyle.Color = th.Text
 	}
 	// Last: Add widens the axes to the data it is given.
 	p.X.Min, p.X.Max = unix(spec.Start), unix(spec.End)
@@ -393,6 +443,22 @@ func WriteFile(spec Spec, path string) error {
 	if ext != ".png" && ext != ".svg" {
 		return fmt.Errorf("%w, got %q", ErrFormat, path)
 	}
+	f, err := os.Create(path)
+	if err != nil {
+		return err
+	}
+	if err := write(f, spec, ext); err != nil {
+		f.Close()
+		return err
+	}
+	return f.Close()
+}
+
+// WriteSVG draws the spec as an SVG document to w. Text (target names,
+// closure reasons) is escaped by the SVG canvas (vgsvg's FillString).
+func WriteSVG(w io.Writer, spec Spec) error { return write(w, spec, ".svg") }
+
+func write(w io.Writer, spec Spec, ext string) error {
 	p, leg, err := Build(spec)
 	if err != nil {
 		return err
@@ -400,28 +466,21 @@ func WriteFile(spec Spec, path string) error {
 	var canvas vg.CanvasWriterTo
 	switch ext {
 	case ".png":
-		c := vgimg.NewWith(vgimg.UseWH(chartWidth, chartHeight), vgimg.UseDPI(chartDPI), vgimg.UseBackgroundColor(color.White))
+		c := vgimg.NewWith(vgimg.UseWH(chartWidth, chartHeight), vgimg.UseDPI(chartDPI), vgimg.UseBackgroundColor(spec.theme().Background))
 		canvas = vgimg.PngCanvas{Canvas: c}
 	case ".svg":
 		canvas = vgsvg.New(chartWidth, chartHeight)
 	}
 	dc := draw.New(canvas)
 	if ext == ".svg" {
-		dc.SetColor(color.White)
+		dc.SetColor(spec.theme().Background)
 		dc.Fill(dc.Rectangle.Path())
 	}
 	p.Draw(draw.Crop(dc, 0, -legendWidth, 0, 0))
 	legArea := draw.Crop(dc, chartWidth-legendWidth+vg.Points(8), -vg.Points(6), vg.Points(6), -vg.Points(30))
 	leg.Draw(legArea)
-	f, err := os.Create(path)
-	if err != nil {
-		return err
-	}
-	if _, err := canvas.WriteTo(f); err != nil {
-		f.Close()
-		return err
-	}
-	return f.Close()
+	_, err = canvas.WriteTo(w)
+	return err
 }
 
 // slicesMaxY is the largest Y of the points.
@@ -431,4 +490,11 @@ func slicesMaxY(xys plotter.XYs) float64 {
 		m = math.Max(m, p.Y)
 	}
 	return m
+}
+
+func (s Spec) theme() *Theme {
+	if s.Theme == nil {
+		return &Light
+	}
+	return s.Theme
 }
