@@ -4,6 +4,10 @@ package server
 // which do their own authentication and must not go through gRPC.
 
 import (
+	"net/http"
+
+	"github.com/prometheus/client_golang/prometheus/promhttp"
+
 	nightloomv1 "github.com/nightloom/nightloom/proto/nightloom/v1"
 )
 
@@ -23,3 +27,10 @@ func (s *Server) SubscribePlans(siteID string) (versions <-chan *nightloomv1.Pla
 // authorized the caller themselves (no interceptors run: errors are the
 // store's and the validators' own).
 func (s *Server) Sky() nightloomv1.SkyServiceServer { return &skyService{s: s} }
+
+// MetricsHandler serves the daemon's Prometheus metrics (the registry the
+// --metrics-addr listener serves), for another listener such as the web
+// pages'.
+func (s *Server) MetricsHandler() http.Handler {
+	return promhttp.HandlerFor(s.metrics.reg, promhttp.HandlerOpts{})
+}
