@@ -265,7 +265,7 @@ func (h *Handler) signIn(w http.ResponseWriter, r *http.Request) {
 	c, err := r.Cookie(csrfCookie)
 	if !sameOrigin(r) || err != nil || c.Value == "" ||
 		subtle.ConstantTimeCompare([]byte(c.Value), []byte(r.PostFormValue("csrf"))) != 1 {
-		h.log.Warn("web sign-in refused: CSRF check failed", "remote", r.RemoteAddr)
+		h.log.Warn("web sign-in refused: CSRF check failed", "remote", r.RemoteAddr, "origin", r.Header.Get("Origin"), "host", r.Host, "cookie", err == nil)
 		h.showSignIn(w, r, next, "The form had expired. Please sign in again.", http.StatusForbidden)
 		return
 	}

@@ -265,7 +265,7 @@ type nightView struct {
 	SiteID, SiteName, TimeZone string
 	Date, Prev, Next, Tonight  string
 	IsTonight                  bool
-	Now                        string
+	Now, NowRFC                string
 	Chart                      template.HTML
 	Events                     []eventRow
 	MoonIllum                  string
@@ -332,7 +332,7 @@ func (h *Handler) night(ctx context.Context, site *nightloomv1.Site, loc *time.L
 	now := h.now()
 	v := &nightView{SiteID: site.GetId(), SiteName: site.GetName(), TimeZone: loc.String(), Date: dateString(date),
 		Prev: dateString(date.AddDate(0, 0, -1)), Next: dateString(date.AddDate(0, 0, 1)),
-		Now: now.In(loc).Format("15:04 MST")}
+		Now: now.In(loc).Format("15:04 MST"), NowRFC: now.UTC().Format(time.RFC3339)}
 	local := func(t time.Time) string { return t.In(loc).Format("15:04") }
 
 	// The window: local noon to noon; the Sun and Moon from SkyService.Night.

@@ -160,7 +160,9 @@ func (h *Handler) ServeHTTP(w http.ResponseWriter, r *http.Request) {
 	hd.Set("Content-Security-Policy", "default-src 'none'; script-src 'self'; style-src 'self' 'unsafe-inline'; "+
 		"img-src 'self' data:; connect-src 'self'; form-action 'self'; frame-ancestors 'none'; base-uri 'none'")
 	hd.Set("X-Content-Type-Options", "nosniff")
-	hd.Set("Referrer-Policy", "no-referrer")
+	// same-origin, not no-referrer: with no-referrer browsers send
+	// "Origin: null" on the forms, which the CSRF check refuses.
+	hd.Set("Referrer-Policy", "same-origin")
 	hd.Set("X-Frame-Options", "DENY")
 	if h.cfg.Secure {
 		hd.Set("Strict-Transport-Security", "max-age=31536000")

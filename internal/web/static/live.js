@@ -19,10 +19,18 @@
   }
 
   function pad(n) { return n < 10 ? "0" + n : "" + n; }
+  // The countdown follows the server's clock (a phone's may be off): skew
+  // is the server's "now" on the page minus this browser's clock.
+  var skew = 0;
+  function syncClock() {
+    var el = document.getElementById("now");
+    if (el && el.getAttribute("data-now")) skew = Date.parse(el.getAttribute("data-now")) - Date.now();
+  }
+  syncClock();
   function tick() {
     var els = document.querySelectorAll(".countdown[data-at]");
     for (var i = 0; i < els.length; i++) {
-      var s = Math.max(0, Math.round((Date.parse(els[i].getAttribute("data-at")) - Date.now()) / 1000));
+      var s = Math.max(0, Math.round((Date.parse(els[i].getAttribute("data-at")) - Date.now() - skew) / 1000));
       var h = Math.floor(s / 3600), m = Math.floor((s % 3600) / 60);
       els[i].textContent = (h > 0 ? h + "h" + pad(m) + "m" : m + "m" + pad(s % 60) + "s");
     }
@@ -48,6 +56,7 @@
           root.innerHTML = text;
           root.setAttribute("data-updated", String(Date.now()));
           state = document.getElementById("live-state");
+          syncClock();
           if (state) state.textContent = "● live";
           tick();
         }
