@@ -150,37 +150,6 @@ func TestBrowser(t *testing.T) {
 		t.Errorf("countdown %q, want %q within %v (next run at %s)", cd, fmtCountdown(d), countdownSlack, next.Format(time.RFC3339))
 	}
 
-	// On a phone-sized screen nothing overflows the page sideways (wide
-	// tables scroll in their own box).
-	if err := chromedp.Do(ctx, chromedp.EmulateViewport(390, 844, chromedp.EmulateMobile)); err != nil {
-		t.Fatal(err)
-	}
-	if over := must(chromedp.Run(ctx, chromedp.Evaluate[int](`document.documentElement.scrollWidth - window.innerWidth`))); over > 0 {
-		t.Errorf("on a 390 px wide screen the page overflows by %d px", over)
-	}
-	if err := chromedp.Do(ctx, chromedp.EmulateReset()); err != nil {
-		t.Fatal(err)
-	}
-
-	// The session cookie: HttpOnly (invisible to scripts), SameSite=Strict,
-	// a random id.
-	cookies := must(chromedp.Call(ctx, network.GetCookies, network.GetCookiesParams{URLs: []string{e.http.URL}}))
-	var found bool
-	for _, c := range cookies.Cookies {
-		if c.Name == sessionCookie {
-			found = true
-			if !c.HTTPOnly || c.SameSite != network.CookieSameSiteStrict || c.Session || strings.Contains(c.Value, e.viewer) {
-				t.Errorf("session cookie in the browser: %+v", c)
-			}
-		}
-	}
-	if !found {
-		t.Fatalf("no session cookie in the browser")
-	}
-	if dc := must(chromedp.Run(ctx, chromedp.Evaluate[string](`document.cookie`))); strings.Contains(dc, sessionCookie) {
-		t.Errorf("document.cookie shows the session cookie: %q", dc)
-	}
-
 	// A viewer can change nothing: the only form is sign-out, and every
 	// writing method is refused on every page.
 	forms := must(chromedp.Run(ctx, chromedp.Evaluate[[]string](
@@ -244,6 +213,34 @@ func TestBrowser(t *testing.T) {
 			t.Fatal(err)
 		}
 		t.Logf("screenshot written to %s (%d bytes)", out, len(png))
+	}
+
+	// On a phone-sized screen nothing overflows the page sideways (wide
+	// tables scroll in their own box).
+	if err := chromedp.Do(ctx, chromedp.EmulateViewport(390, 844, chromedp.EmulateMobile)); err != nil {
+		t.Fatal(err)
+	}
+	if over := must(chromedp.Run(ctx, chromedp.Evaluate[int](`document.documentElement.scrollWidth - window.innerWidth`))); over > 0 {
+		t.Errorf("on a 390 px wide screen the page overflows by %d px", over)
+	}
+
+	// The session cookie: HttpOnly (invisible to scripts), SameSite=Strict,
+	// a random id.
+	cookies := must(chromedp.Call(ctx, network.GetCookies, network.GetCookiesParams{URLs: []string{e.http.URL}}))
+	var found bool
+	for _, c := range cookies.Cookies {
+		if c.Name == sessionCookie {
+			found = true
+			if !c.HTTPOnly || c.SameSite != network.CookieSameSiteStrict || c.Session || strings.Contains(c.Value, e.viewer) {
+				t.Errorf("session cookie in the browser: %+v", c)
+			}
+		}
+	}
+	if !found {
+		t.Fatalf("no session cookie in the browser")
+	}
+	if dc := must(chromedp.Run(ctx, chromedp.Evaluate[string](`document.cookie`))); strings.Contains(dc, sessionCookie) {
+		t.Errorf("document.cookie shows the session cookie: %q", dc)
 	}
 
 	// Revoking the token sends the open page back to sign-in.
