@@ -186,7 +186,7 @@ func (h *Handler) needSignIn(w http.ResponseWriter, r *http.Request, err error) 
 		http.Error(w, "session check failed; try again", http.StatusServiceUnavailable)
 		return
 	}
-	http.SetCookie(w, h.cookie(sessionCookie, "", -1))
+	http.SetCookie(w, h.cookie(r, sessionCookie, "", -1))
 	if r.URL.Query().Get("fragment") != "" || strings.HasSuffix(r.URL.Path, "/events") {
 		w.Header().Set("X-Nightloom-Signin", "/signin")
 		http.Error(w, "sign in again", http.StatusUnauthorized)
@@ -196,9 +196,10 @@ func (h *Handler) needSignIn(w http.ResponseWriter, r *http.Request, err error) 
 }
 
 // cookie makes a cookie with the flags every cookie here has: HttpOnly,
-// SameSite=Strict, path /, Secure under TLS. maxAge < 0 deletes it.
-func (h *Handler) cookie(name, value string, maxAge time.Duration) *http.Cookie {
-	c := &http.Cookie{Name: name, Value: value, Path: "/", HttpOnly: true, Secure: h.cfg.Secure,
+// SameSite=Strict, path /, Secure under TLS (Config.Secure, or a request
+// that came over TLS). maxAge < 0 deletes it.
+func (h *Handler) cookie(r *http.Request, name, value string, maxAge time.Duration) *http.Cookie {
+	c := &http.Cookie{Name: name, Value: value, Path: "/", HttpOnly: true, Secure: h.cfg.Secure || r.TLS != nil,
 		SameSite: http.SameSiteStrictMode}
 	switch {
 	case maxAge < 0:
@@ -245,7 +246,7 @@ func (h *Handler) signInForm(w http.ResponseWriter, r *http.Request) {
 
 func (h *Handler) showSignIn(w http.ResponseWriter, r *http.Request, next, msg string, code int) {
 	tok := randomID()
-	http.SetCookie(w, h.cookie(csrfCookie, tok, time.Hour))
+	http.SetCookie(w, h.cookie(r, csrfCookie, tok, time.Hour))
 	w.Header().Set("Cache-Control", "no-store")
 	h.render(w, r, code, "signin", signInView{pageBase: pageBase{Title: "Sign in"}, CSRF: tok, Next: next, Error: msg,
 		Public: h.cfg.PublicSite})
@@ -296,8 +297,8 @@ func (h *Handler) signIn(w http.ResponseWriter, r *http.Request) {
 		expires: h.now().Add(h.cfg.SessionTTL)}
 	h.sessions.put(x)
 	h.log.Info("web sign-in", "token_id", rec.ID, "role", rec.Role)
-	http.SetCookie(w, h.cookie(csrfCookie, "", -1))
-	http.SetCookie(w, h.cookie(sessionCookie, x.id, h.cfg.SessionTTL))
+	http.SetCookie(w, h.cookie(r, csrfCookie, "", -1))
+	http.SetCookie(w, h.cookie(r, sessionCookie, x.id, h.cfg.SessionTTL))
 	http.Redirect(w, r, next, http.StatusSeeOther)
 }
 
@@ -314,7 +315,7 @@ func (h *Handler) signOut(w http.ResponseWriter, r *http.Request) {
 	}
 	x := h.sessions.get(c.Value)
 	if x == nil {
-		http.SetCookie(w, h.cookie(sessionCookie, "", -1))
+		http.SetCookie(w, h.cookie(r, sessionCookie, "", -1))
 		http.Redirect(w, r, "/signin", http.StatusSeeOther)
 		return
 	}
@@ -325,6 +326,6 @@ func (h *Handler) signOut(w http.ResponseWriter, r *http.Request) {
 	}
 	h.sessions.drop(x.id)
 	h.log.Info("web sign-out", "token_id", x.tokenID)
-	http.SetCookie(w, h.cookie(sessionCookie, "", -1))
+	http.SetCookie(w, h.cookie(r, sessionCookie, "", -1))
 	http.Redirect(w, r, "/signin", http.StatusSeeOther)
 }

@@ -275,6 +275,14 @@ func TestBrowser(t *testing.T) {
 	if loc := must(chromedp.Run(ctx, chromedp.Location())); !strings.Contains(loc, "/signin") {
 		t.Fatalf("expired session: at %q after reload, want the sign-in form", loc)
 	}
+
+	// No token's secret reached the logs (the daemon's and the pages').
+	logs := e.logs.String()
+	for _, tok := range []string{e.viewer, viewer2, e.admin, e.tele} {
+		if strings.Contains(logs, strings.TrimPrefix(tok, "nlt_")[:16]) {
+			t.Errorf("a token's secret is in the logs")
+		}
+	}
 }
 
 // TestBrowserEscapes: a target named with markup shows as text and runs no

@@ -25,6 +25,7 @@ import (
 	"google.golang.org/protobuf/encoding/protojson"
 	"google.golang.org/protobuf/proto"
 	"google.golang.org/protobuf/types/known/durationpb"
+	"google.golang.org/protobuf/types/known/timestamppb"
 
 	"github.com/nightloom/nightloom/internal/server"
 	"github.com/nightloom/nightloom/internal/store"
@@ -258,4 +259,16 @@ func between(s, a, b string) string {
 		return ""
 	}
 	return s[:j]
+}
+
+// replanDemo replans the demo night from 22:00 + i minutes through the API.
+func (e *env) replanDemo(t testing.TB, i int) *pb.Plan {
+	t.Helper()
+	from := demoNight.Add(30*time.Minute + time.Duration(i)*time.Minute)
+	rr, err := pb.NewPlanServiceClient(e.conn).Replan(e.ctx(e.admin), &pb.ReplanRequest{SiteId: e.site.GetId(),
+		From: timestamppb.New(from), TimeBudget: durationpb.New(50 * time.Millisecond)})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return rr.GetPlan()
 }

@@ -164,7 +164,7 @@ func (h *Handler) ServeHTTP(w http.ResponseWriter, r *http.Request) {
 	// "Origin: null" on the forms, which the CSRF check refuses.
 	hd.Set("Referrer-Policy", "same-origin")
 	hd.Set("X-Frame-Options", "DENY")
-	if h.cfg.Secure {
+	if h.cfg.Secure || r.TLS != nil {
 		hd.Set("Strict-Transport-Security", "max-age=31536000")
 	}
 	h.mux.ServeHTTP(w, r)

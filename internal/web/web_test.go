@@ -534,3 +534,36 @@ func TestLocalPath(t *testing.T) {
 		}
 	}
 }
+
+// TestCookiesUnderTLS: over HTTPS every cookie is Secure and HSTS is sent.
+func TestCookiesUnderTLS(t *testing.T) {
+	e := newEnv(t)
+	srv := httptest.NewTLSServer(e.web)
+	t.Cleanup(srv.Close)
+	c := srv.Client()
+	c.Jar = e.client().Jar
+	c.CheckRedirect = func(*http.Request, []*http.Request) error { return http.ErrUseLastResponse }
+	resp, body := get(t, c, srv.URL+"/signin")
+	if resp.Header.Get("Strict-Transport-Security") == "" {
+		t.Errorf("no HSTS header over TLS")
+	}
+	csrf := between(body, `name="csrf" value="`, `"`)
+	resp, err := c.PostForm(srv.URL+"/signin", map[string][]string{"csrf": {csrf}, "token": {e.viewer}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	resp.Body.Close()
+	if resp.StatusCode != http.StatusSeeOther {
+		t.Fatalf("sign-in over TLS: %d", resp.StatusCode)
+	}
+	var n int
+	for _, ck := range resp.Cookies() {
+		n++
+		if !ck.Secure || !ck.HttpOnly || ck.SameSite != http.SameSiteStrictMode {
+			t.Errorf("cookie %s over TLS: Secure %v, HttpOnly %v, SameSite %v", ck.Name, ck.Secure, ck.HttpOnly, ck.SameSite)
+		}
+	}
+	if n == 0 {
+		t.Fatalf("no cookies set")
+	}
+}
