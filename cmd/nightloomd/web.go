@@ -11,6 +11,7 @@ import (
 	"crypto/x509"
 	"errors"
 	"fmt"
+	"log/slog"
 	"net"
 	"net/http"
 	"os"
@@ -96,7 +97,8 @@ func serveWeb(ctx context.Context, f *serveFlags) error {
 	}
 	// No WriteTimeout: the live pages' event streams stay open.
 	hs := &http.Server{Handler: h, TLSConfig: tc, ReadHeaderTimeout: 5 * time.Second, ReadTimeout: 10 * time.Second,
-		IdleTimeout: 2 * time.Minute, MaxHeaderBytes: 64 << 10}
+		IdleTimeout: 2 * time.Minute, MaxHeaderBytes: 64 << 10,
+		ErrorLog: slog.NewLogLogger(cfg.Logger.Handler(), slog.LevelWarn)}
 	served := make(chan error, 1)
 	go func() {
 		if tc != nil {
