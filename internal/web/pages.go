@@ -736,6 +736,8 @@ func (h *Handler) blockPage(w http.ResponseWriter, r *http.Request) {
 	if b.GetFramesWanted() > 0 {
 		v.Percent = int(100 * int64(b.GetFramesDone()) / int64(b.GetFramesWanted()))
 	}
+	// Live like the night page: the site's events refetch this page.
+	v.Live, v.Fragment = "/sites/"+site.GetId()+"/events", "/blocks/"+b.GetId()+"?fragment=1"
 	// Runs over all nights: the newest version of each night's plan.
 	recs, err := h.planRecords(ctx, site.GetId(), func(store.Plan) bool { return true })
 	if err != nil {

@@ -133,7 +133,8 @@ func TestSignInAndNightPage(t *testing.T) {
 	if resp.StatusCode != http.StatusOK {
 		t.Fatalf("block page: %d\n%s", resp.StatusCode, body)
 	}
-	for _, s := range []string{"Runs over all nights", "2027-01-14", "Visibility, night of 2027-01-14", `id="block-progress"`} {
+	for _, s := range []string{"Runs over all nights", "2027-01-14", "Visibility, night of 2027-01-14", `id="block-progress"`,
+		`data-live="/sites/` + e.site.GetId() + `/events"`} {
 		if !strings.Contains(body, s) {
 			t.Errorf("block page lacks %q", s)
 		}
