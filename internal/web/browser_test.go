@@ -220,8 +220,18 @@ func TestBrowser(t *testing.T) {
 	if err := chromedp.Do(ctx, chromedp.EmulateViewport(390, 844, chromedp.EmulateMobile)); err != nil {
 		t.Fatal(err)
 	}
-	if over := must(chromedp.Run(ctx, chromedp.Evaluate[int](`document.documentElement.scrollWidth - window.innerWidth`))); over > 0 {
-		t.Errorf("on a 390 px wide screen the page overflows by %d px", over)
+	for _, p := range []string{sitePath, "/blocks/" + a.GetBlockId(), "/"} {
+		if err := chromedp.Do(ctx, chromedp.Navigate(e.http.URL+p)); err != nil {
+			t.Fatal(err)
+		}
+		// (Against the screen's 390 px: a mobile browser widens its
+		// layout viewport, window.innerWidth, to an overflowing page.)
+		if over := must(chromedp.Run(ctx, chromedp.Evaluate[int](`document.documentElement.scrollWidth - 390`))); over > 0 {
+			t.Errorf("%s on a 390 px wide screen overflows by %d px", p, over)
+		}
+	}
+	if err := chromedp.Do(ctx, chromedp.Navigate(e.http.URL+sitePath), chromedp.WaitVisible(chromedp.ID("plan"))); err != nil {
+		t.Fatal(err)
 	}
 
 	// The session cookie: HttpOnly (invisible to scripts), SameSite=Strict,
