@@ -595,7 +595,8 @@ func history(plans []*nightloomv1.Plan, loc *time.Location) []versionRow {
 			for _, n := range old {
 				dropped += n
 			}
-			row.Changes = fmt.Sprintf("replanned from %s: %d runs kept, %d dropped, %d new", from.In(loc).Format("15:04"), kept, dropped, added)
+			row.Changes = fmt.Sprintf("replanned from %s: %s kept, %d dropped, %d new", from.In(loc).Format("15:04"),
+				plural(kept, "run"), dropped, added)
 			var cl []string
 			for _, c := range p.GetClosures() {
 				cl = append(cl, fmt.Sprintf("%s–%s %s", c.GetInterval().GetStart().AsTime().In(loc).Format("15:04"),
@@ -607,11 +608,19 @@ func history(plans []*nightloomv1.Plan, loc *time.Location) []versionRow {
 		case p.GetOrigin() == nightloomv1.PlanOrigin_PLAN_ORIGIN_REPLAN:
 			row.Changes = "replan of " + p.GetPreviousPlanId()
 		default:
-			row.Changes = fmt.Sprintf("made: %d runs, %d blocks unplaced", len(p.GetAssignments()), len(p.GetUnplaced()))
+			row.Changes = fmt.Sprintf("made: %s, %s unplaced", plural(len(p.GetAssignments()), "run"), plural(len(p.GetUnplaced()), "block"))
 		}
 		out = append(out, row)
 	}
 	return out
+}
+
+// plural is "1 run", "2 runs".
+func plural(n int, noun string) string {
+	if n == 1 {
+		return "1 " + noun
+	}
+	return fmt.Sprintf("%d %ss", n, noun)
 }
 
 var svgRoot = regexp.MustCompile(`^<svg width="[^"]*" height="[^"]*"`)
