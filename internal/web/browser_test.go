@@ -150,6 +150,18 @@ func TestBrowser(t *testing.T) {
 		t.Errorf("countdown %q, want %q within %v (next run at %s)", cd, fmtCountdown(d), countdownSlack, next.Format(time.RFC3339))
 	}
 
+	// Red night mode: the button tints the page and the browser remembers
+	// it (only in this browser: nothing is sent).
+	if err := chromedp.Do(ctx, chromedp.Click(chromedp.ID("red")), chromedp.Reload(), chromedp.WaitVisible(chromedp.ID("plan"))); err != nil {
+		t.Fatal(err)
+	}
+	if !must(chromedp.Run(ctx, chromedp.Evaluate[bool](`document.documentElement.classList.contains('red')`))) {
+		t.Errorf("red mode is not on after the click and a reload")
+	}
+	if err := chromedp.Do(ctx, chromedp.Click(chromedp.ID("red"))); err != nil {
+		t.Fatal(err)
+	}
+
 	// A viewer can change nothing: the only form is sign-out, and every
 	// writing method is refused on every page.
 	forms := must(chromedp.Run(ctx, chromedp.Evaluate[[]string](
