@@ -3,6 +3,7 @@ package main
 // `nightloom plan chart` and the chart of `nightloom sky --chart`.
 
 import (
+	"errors"
 	"fmt"
 	"io"
 	"math"
@@ -13,6 +14,7 @@ import (
 
 	"github.com/nightloom/nightloom/constraints"
 	"github.com/nightloom/nightloom/ephem"
+	"github.com/nightloom/nightloom/internal/chart"
 	pb "github.com/nightloom/nightloom/proto/nightloom/v1"
 )
 
@@ -65,80 +67,80 @@ func checkChartName(flagName, path string) error {
 
 // planChartSpec fetches a plan, its site and its targets and lays out the
 // chart of the plan's night.
-func (a *api) planChartSpec(planID string, step, margin time.Duration) (chartSpec, error) {
+func (a *api) planChartSpec(planID string, step, margin time.Duration) (chart.Spec, error) {
 	ctx, cancel := a.ctx()
 	defer cancel()
 	pr, err := a.plans.GetPlan(ctx, &pb.GetPlanRequest{PlanId: planID})
 	if err != nil {
-		return chartSpec{}, a.callErr("GetPlan", err)
+		return chart.Spec{}, a.callErr("GetPlan", err)
 	}
 	plan := pr.GetPlan()
 	sr, err := a.sites.GetSite(ctx, &pb.GetSiteRequest{SiteId: plan.GetSiteId()})
 	if err != nil {
-		return chartSpec{}, a.callErr("GetSite", err)
+		return chart.Spec{}, a.callErr("GetSite", err)
 	}
-	site, err := chartSite(sr.GetSite())
+	site, err := chart.SiteFromProto(sr.GetSite())
 	if err != nil {
-		return chartSpec{}, err
+		return chart.Spec{}, err
 	}
 	// One curve per target, in the order of its first run.
 	byTarget := map[string]int{}
-	var curves []chartCurve
+	var curves []chart.Curve
 	for _, x := range plan.GetAssignments() {
 		k, ok := byTarget[x.GetTargetId()]
 		if !ok {
 			tr, err := a.targets.GetTarget(ctx, &pb.GetTargetRequest{TargetId: x.GetTargetId()})
 			if err != nil {
-				return chartSpec{}, a.callErr("GetTarget", err)
+				return chart.Spec{}, a.callErr("GetTarget", err)
 			}
-			t, err := chartTarget(tr.GetTarget())
+			t, err := chart.TargetFromProto(tr.GetTarget())
 			if err != nil {
-				return chartSpec{}, err
+				return chart.Spec{}, err
 			}
 			k = len(curves)
 			byTarget[x.GetTargetId()] = k
-			curves = append(curves, chartCurve{name: tr.GetTarget().GetName(), target: t})
+			curves = append(curves, chart.Curve{Name: tr.GetTarget().GetName(), Target: t})
 		}
-		curves[k].runs = append(curves[k].runs, chartRun{start: x.GetStart().AsTime(), end: x.GetEnd().AsTime(), label: x.GetFilter()})
+		curves[k].Runs = append(curves[k].Runs, chart.Run{Start: x.GetStart().AsTime(), End: x.GetEnd().AsTime(), Label: x.GetFilter()})
 	}
 	for k := range curves {
-		curves[k].name = runSummary(curves[k])
+		curves[k].Name = runSummary(curves[k])
 	}
 	iv := plan.GetInterval()
-	spec := chartSpec{site: site, step: step, curves: curves,
-		start: iv.GetStart().AsTime().Add(-margin), end: iv.GetEnd().AsTime().Add(margin)}
+	spec := chart.Spec{Site: site, Step: step, Curves: curves,
+		Start: iv.GetStart().AsTime().Add(-margin), End: iv.GetEnd().AsTime().Add(margin)}
 	night := "interval"
 	if plan.GetNight() != nil {
 		night = "night of " + dateString(plan.GetNight())
 	}
-	spec.title = fmt.Sprintf("%s, %s: plan version %d (%s), %d runs", sr.GetSite().GetName(), night, plan.GetVersion(),
+	spec.Title = fmt.Sprintf("%s, %s: plan version %d (%s), %d runs", sr.GetSite().GetName(), night, plan.GetVersion(),
 		enumName(plan.GetOrigin().String(), "PLAN_ORIGIN_"), len(plan.GetAssignments()))
 	for _, c := range plan.GetClosures() {
 		reason := c.GetReason()
 		if reason == "" {
 			reason = "closed"
 		}
-		spec.closures = append(spec.closures, chartSpan{c.GetInterval().GetStart().AsTime(), c.GetInterval().GetEnd().AsTime(), reason})
+		spec.Closures = append(spec.Closures, chart.Span{Start: c.GetInterval().GetStart().AsTime(), End: c.GetInterval().GetEnd().AsTime(), Label: reason})
 	}
 	if f := plan.GetReplanFrom(); f != nil && plan.GetOrigin() != pb.PlanOrigin_PLAN_ORIGIN_MAKE_PLAN {
-		spec.marks = append(spec.marks, chartSpan{start: f.AsTime(), label: "replanned from " + f.AsTime().In(site.Location).Format("15:04")})
+		spec.Marks = append(spec.Marks, chart.Span{Start: f.AsTime(), Label: "replanned from " + f.AsTime().In(site.Location).Format("15:04")})
 	}
 	return spec, nil
 }
 
 // runSummary names a curve in the legend: the target and its filters with
 // the time spent in each, e.g. "LN 2207: Ha 1h20m, OIII 40m".
-func runSummary(c chartCurve) string {
+func runSummary(c chart.Curve) string {
 	per := map[string]time.Duration{}
 	var order []string
-	for _, r := range c.runs {
-		if _, ok := per[r.label]; !ok {
-			order = append(order, r.label)
+	for _, r := range c.Runs {
+		if _, ok := per[r.Label]; !ok {
+			order = append(order, r.Label)
 		}
-		per[r.label] += r.end.Sub(r.start)
+		per[r.Label] += r.End.Sub(r.Start)
 	}
 	sort.Strings(order)
-	s := c.name + ":"
+	s := c.Name + ":"
 	for i, f := range order {
 		if i > 0 {
 			s += ","
@@ -163,10 +165,10 @@ func skyChart(path string, o *ephem.Observer, loc *time.Location, at time.Time, 
 	}
 	site := constraints.NewSite(*o)
 	site.Location = loc
-	spec := chartSpec{site: site, start: start, end: end, step: 2 * time.Minute,
-		curves: []chartCurve{{name: name, target: t}},
-		marks:  []chartSpan{{start: at, label: "--at " + at.In(loc).Format("15:04")}},
-		title: fmt.Sprintf("%s from %.4f°, %.4f°, night of %s (flat horizon)", name, o.LatRad*ephem.Rad2Deg,
+	spec := chart.Spec{Site: site, Start: start, End: end, Step: 2 * time.Minute,
+		Curves: []chart.Curve{{Name: name, Target: t}},
+		Marks:  []chart.Span{{Start: at, Label: "--at " + at.In(loc).Format("15:04")}},
+		Title: fmt.Sprintf("%s from %.4f°, %.4f°, night of %s (flat horizon)", name, o.LatRad*ephem.Rad2Deg,
 			o.LonRad*ephem.Rad2Deg, day.Format("2006-01-02"))}
 	return writeChart(spec, path)
 }
@@ -191,4 +193,16 @@ func chartSky(path, tz string, o *ephem.Observer, at time.Time, star *ephem.Star
 	}
 	t.Name = name
 	return skyChart(path, o, loc, at, name, t)
+}
+
+// writeChart draws the spec to path (chart.WriteFile), naming the --out flag
+// when the file name is neither .png nor .svg.
+func writeChart(spec chart.Spec, path string) error {
+	if err := chart.WriteFile(spec, path); err != nil {
+		if errors.Is(err, chart.ErrFormat) {
+			return flagError("out", "want a .png or .svg file name, got %q", path)
+		}
+		return err
+	}
+	return nil
 }

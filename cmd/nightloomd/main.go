@@ -2,6 +2,7 @@
 // over a SQLite file.
 //
 //	nightloomd [flags]                       serve (SIGINT/SIGTERM stop it gracefully)
+//	nightloomd --http-addr 127.0.0.1:7880    also serve the read-only web pages
 //	nightloomd token create --role ROLE [--label L] [--db PATH]
 //	nightloomd token list [--db PATH]
 //	nightloomd token revoke --id ID [--db PATH]
@@ -28,6 +29,7 @@ import (
 
 	"github.com/nightloom/nightloom/internal/server"
 	"github.com/nightloom/nightloom/internal/store"
+	"github.com/nightloom/nightloom/internal/web"
 )
 
 func main() {
@@ -83,6 +85,7 @@ func parse(fs *flag.FlagSet, args []string) error {
 // serveFlags are the daemon's flags; units are in the names or the types.
 type serveFlags struct {
 	cfg       server.Config
+	web       webFlags
 	logLevel  string
 	logFormat string
 }
@@ -102,6 +105,10 @@ func parseServe(args []string, stderr io.Writer) (*serveFlags, error) {
 	fs.DurationVar(&f.cfg.DefaultTimeBudget, "default-time-budget", server.DefaultTimeBudget, "solver budget of a planning request that sets none (at most 60s)")
 	fs.IntVar(&f.cfg.ReplanPriority, "replan-priority", server.DefaultReplanPriority, "queuing an open block of at least this priority replans the running plan (-1: never)")
 	fs.IntVar(&f.cfg.WatchBuffer, "watch-buffer", server.DefaultWatchBuffer, "plan versions a WatchPlans stream may fall behind before it is cut off")
+	fs.StringVar(&f.web.addr, "http-addr", "", "HTTP address of the read-only web pages, host:port (empty: off); same TLS rules as --listen")
+	fs.StringVar(&f.web.public, "web-public", "", "site id whose night pages need no sign-in (empty: none)")
+	fs.BoolVar(&f.web.metrics, "web-metrics", false, "also serve Prometheus /metrics on --http-addr")
+	fs.DurationVar(&f.web.sessionTTL, "web-session-ttl", web.DefaultSessionTTL, "how long a web sign-in lasts")
 	fs.StringVar(&f.logLevel, "log-level", "info", "log level: debug, info, warn or error")
 	fs.StringVar(&f.logFormat, "log-format", "text", "log format: text or json")
 	if err := parse(fs, args); err != nil {
@@ -115,6 +122,12 @@ func parseServe(args []string, stderr io.Writer) (*serveFlags, error) {
 	}
 	if f.cfg.DefaultTimeBudget <= 0 || f.cfg.DefaultTimeBudget > server.MaxTimeBudget {
 		return nil, &usageError{fmt.Sprintf("flag --default-time-budget: must be within (0, %v]", server.MaxTimeBudget)}
+	}
+	if f.web.addr == "" && (f.web.public != "" || f.web.metrics) {
+		return nil, &usageError{"flags --web-public and --web-metrics need --http-addr"}
+	}
+	if f.web.sessionTTL <= 0 {
+		return nil, &usageError{"flag --web-session-ttl: must be positive"}
 	}
 	if f.cfg.WatchBuffer <= 0 {
 		return nil, &usageError{"flag --watch-buffer: must be positive"}
@@ -139,6 +152,9 @@ func serve(ctx context.Context, args []string, stderr io.Writer) error {
 	f, err := parseServe(args, stderr)
 	if err != nil {
 		return err
+	}
+	if f.web.addr != "" {
+		return serveWeb(ctx, f)
 	}
 	return server.Run(ctx, f.cfg)
 }

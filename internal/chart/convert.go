@@ -1,7 +1,7 @@
-package main
+package chart
 
 // Conversion of API messages to the domain packages, for the curves the
-// client draws itself (plan charts). Only what the curves need is taken: the
+// client and the web pages draw (plan charts). Only what the curves need is taken: the
 // place, the air for refraction, the horizon profile, the time zone and the
 // target's position. The daemon has its own, complete conversion.
 
@@ -15,20 +15,20 @@ import (
 	pb "github.com/nightloom/nightloom/proto/nightloom/v1"
 )
 
-// isaPressureHPa is the International Standard Atmosphere (ISO 2533)
+// ISAPressureHPa is the International Standard Atmosphere (ISO 2533)
 // pressure at a height, the default the API documents for an unset
 // Site.pressure_hpa: 1013.25 (1 - 2.25577e-5 h)^5.25588 hPa.
-func isaPressureHPa(heightM float64) float64 {
+func ISAPressureHPa(heightM float64) float64 {
 	return 1013.25 * math.Pow(1-2.25577e-5*heightM, 5.25588)
 }
 
-// chartSite converts a site for charting.
-func chartSite(s *pb.Site) (*constraints.Site, error) {
+// SiteFromProto converts a site for charting.
+func SiteFromProto(s *pb.Site) (*constraints.Site, error) {
 	o, err := ephem.NewObserver(s.GetLatitudeDeg(), s.GetLongitudeDeg(), s.GetElevationM())
 	if err != nil {
 		return nil, fmt.Errorf("site %s: %w", s.GetId(), err)
 	}
-	p := isaPressureHPa(s.GetElevationM())
+	p := ISAPressureHPa(s.GetElevationM())
 	if s.PressureHpa != nil {
 		p = s.GetPressureHpa()
 	}
@@ -55,8 +55,8 @@ func chartSite(s *pb.Site) (*constraints.Site, error) {
 	return cs, nil
 }
 
-// chartTarget converts a target for charting.
-func chartTarget(t *pb.Target) (*constraints.Target, error) {
+// TargetFromProto converts a target for charting.
+func TargetFromProto(t *pb.Target) (*constraints.Target, error) {
 	switch p := t.GetPosition().(type) {
 	case *pb.Target_Fixed:
 		ra, dec := p.Fixed.GetRaDeg(), p.Fixed.GetDecDeg()

@@ -1,4 +1,6 @@
-package main
+// Package chart draws night charts with gonum.org/v1/plot (moved from
+// cmd/nightloom so that the web pages can draw them too).
+package chart
 
 // Night charts drawn with gonum.org/v1/plot: altitude against the site's
 // local time, twilight bands, the Moon, every charted target's altitude
@@ -8,8 +10,10 @@ package main
 // with the constraints grid (the same sampling the daemon plans on).
 
 import (
+	"errors"
 	"fmt"
 	"image/color"
+	"io"
 	"math"
 	"os"
 	"path/filepath"
@@ -28,55 +32,94 @@ import (
 	"github.com/nightloom/nightloom/ephem"
 )
 
-// chartRun is one assignment to draw over its target's curve.
-type chartRun struct {
-	start, end time.Time
-	label      string // e.g. the filter
+// Run is one assignment to draw over its target's curve.
+type Run struct {
+	Start, End time.Time
+	Label      string // e.g. the filter
 }
 
-// chartCurve is one target on the chart.
-type chartCurve struct {
-	name   string
-	target *constraints.Target
-	runs   []chartRun
+// Curve is one target on the chart.
+type Curve struct {
+	Name   string
+	Target *constraints.Target
+	Runs   []Run
 }
 
-// chartSpan is a shaded interval (a closure).
-type chartSpan struct {
-	start, end time.Time
-	label      string
+// Span is a shaded interval (a closure).
+type Span struct {
+	Start, End time.Time
+	Label      string
 }
 
-// chartSpec says what to draw.
-type chartSpec struct {
-	title      string
-	site       *constraints.Site
-	start, end time.Time     // the time axis
-	step       time.Duration // sampling of the curves
-	curves     []chartCurve
-	closures   []chartSpan
-	marks      []chartSpan // vertical lines at start (end unused), e.g. "replanned from"
+// Spec says what to draw.
+type Spec struct {
+	Title      string
+	Site       *constraints.Site
+	Start, End time.Time     // the time axis
+	Step       time.Duration // sampling of the curves
+	Curves     []Curve
+	Closures   []Span
+	Marks      []Span // vertical lines at Start (End unused), e.g. "replanned from"
+	// Theme is the colours; nil means Light.
+	Theme *Theme
 }
 
-// Colours. Twilight bands grow more saturated toward the Sun; the night is
-// left white so that the curves stand out.
-var (
-	colDay      = color.RGBA{255, 240, 190, 255}
-	colCivil    = color.RGBA{150, 175, 220, 255}
-	colNautical = color.RGBA{190, 206, 235, 255}
-	colAstro    = color.RGBA{226, 233, 246, 255}
-	colClosure  = color.NRGBA{215, 40, 40, 70}
-	colMoon     = color.RGBA{150, 110, 0, 255}
-	colHidden   = color.RGBA{150, 150, 150, 255}
-	colMark     = color.RGBA{200, 30, 30, 255}
-	// palette holds distinct colours for the targets (a qualitative scheme
-	// of our own, dark enough to read on the pale bands).
-	palette = []color.RGBA{
+// Theme is the chart's colours. Light is the printed chart's (the night
+// left white so that the curves stand out); Dark keeps a dark-adapted eye's
+// night vision (no white, dim red-brown text), for the web pages.
+type Theme struct {
+	Background, Text, Grid      color.Color
+	Day, Civil, Nautical, Astro color.Color
+	Closure, Moon, Hidden, Mark color.Color
+	// Palette holds distinct colours for the targets.
+	Palette []color.RGBA
+}
+
+// Light is the default theme. Twilight bands grow more saturated toward
+// the Sun; the night is left white so that the curves stand out.
+var Light = Theme{
+	Background: color.White,
+	Text:       color.Black,
+	Grid:       color.RGBA{0, 0, 0, 30},
+	Day:        color.RGBA{255, 240, 190, 255},
+	Civil:      color.RGBA{150, 175, 220, 255},
+	Nautical:   color.RGBA{190, 206, 235, 255},
+	Astro:      color.RGBA{226, 233, 246, 255},
+	Closure:    color.NRGBA{215, 40, 40, 70},
+	Moon:       color.RGBA{150, 110, 0, 255},
+	Hidden:     color.RGBA{150, 150, 150, 255},
+	Mark:       color.RGBA{200, 30, 30, 255},
+	// A qualitative scheme of our own, dark enough to read on the pale
+	// bands.
+	Palette: []color.RGBA{
 		{31, 100, 180, 255}, {230, 110, 0, 255}, {30, 150, 60, 255}, {200, 30, 40, 255},
 		{130, 80, 190, 255}, {130, 80, 50, 255}, {220, 60, 160, 255}, {90, 90, 90, 255},
 		{160, 160, 20, 255}, {20, 170, 190, 255}, {0, 60, 110, 255}, {120, 0, 60, 255},
-	}
-)
+	},
+}
+
+// Dark is the night theme: a near-black night, twilight bands as dim blues
+// growing lighter toward the Sun, daylight a dim amber, text a dim warm
+// grey (common practice for dark-adapted eyes, no source: keep everything
+// dim and warm).
+var Dark = Theme{
+	Background: color.RGBA{10, 8, 8, 255},
+	Text:       color.RGBA{190, 150, 140, 255},
+	Grid:       color.RGBA{255, 200, 190, 28},
+	Day:        color.RGBA{70, 50, 20, 255},
+	Civil:      color.RGBA{40, 46, 78, 255},
+	Nautical:   color.RGBA{28, 32, 56, 255},
+	Astro:      color.RGBA{18, 20, 36, 255},
+	Closure:    color.NRGBA{200, 40, 40, 80},
+	Moon:       color.RGBA{200, 170, 90, 255},
+	Hidden:     color.RGBA{110, 100, 100, 255},
+	Mark:       color.RGBA{230, 60, 60, 255},
+	Palette: []color.RGBA{
+		{90, 150, 230, 255}, {240, 140, 40, 255}, {80, 190, 100, 255}, {230, 80, 80, 255},
+		{170, 130, 230, 255}, {190, 140, 100, 255}, {230, 110, 190, 255}, {170, 170, 170, 255},
+		{200, 200, 70, 255}, {70, 200, 210, 255}, {110, 160, 220, 255}, {200, 90, 130, 255},
+	},
+}
 
 // unix is the chart's x coordinate of an instant.
 func unix(t time.Time) float64 { return float64(t.UnixNano()) / 1e9 }
@@ -185,27 +228,28 @@ func interpAlt(g *constraints.Grid, alt []float64, t time.Time) float64 {
 	return alt[i]*(1-f) + alt[i+1]*f
 }
 
-// buildChart computes the curves and lays out the plot and its legend.
-func buildChart(spec chartSpec) (*plot.Plot, *plot.Legend, error) {
-	step := spec.step
+// Build computes the curves and lays out the plot and its legend.
+func Build(spec Spec) (*plot.Plot, *plot.Legend, error) {
+	step := spec.Step
 	if step <= 0 {
 		step = 2 * time.Minute
 	}
 	// One step past the end so that the curves reach the axis' end.
-	g, err := constraints.NewGrid(spec.site, spec.start, spec.end.Add(step), step, constraints.Options{NoSkyBrightness: true})
+	g, err := constraints.NewGrid(spec.Site, spec.Start, spec.End.Add(step), step, constraints.Options{NoSkyBrightness: true})
 	if err != nil {
 		return nil, nil, err
 	}
-	loc := spec.site.Location
+	loc := spec.Site.Location
 	if loc == nil {
 		loc = time.UTC
 	}
+	th := spec.theme()
 	sans := font.Font{Typeface: "Liberation", Variant: "Sans"}
 	plot.DefaultFont, plotter.DefaultFont = sans, sans
 	p := plot.New()
-	p.Title.Text = spec.title
+	p.Title.Text = spec.Title
 	p.Title.TextStyle.Font.Size = vg.Points(13)
-	p.X.Label.Text = "local time (" + zoneLabel(loc, spec.start) + ")"
+	p.X.Label.Text = "local time (" + zoneLabel(loc, spec.Start) + ")"
 	p.Y.Label.Text = "altitude"
 	p.X.Tick.Marker = hourTicks{loc}
 	p.Y.Tick.Marker = degTicks{}
@@ -222,10 +266,10 @@ func buildChart(spec chartSpec) (*plot.Plot, *plot.Legend, error) {
 		col   color.Color
 		name  string
 	}{
-		{constraints.Day, colDay, "daylight (Sun above -0.83°)"},
-		{constraints.CivilTwilight, colCivil, "civil twilight (Sun -0.83° to -6°)"},
-		{constraints.NauticalTwilight, colNautical, "nautical twilight (-6° to -12°)"},
-		{constraints.AstronomicalTwilight, colAstro, "astronomical twilight (-12° to -18°)"},
+		{constraints.Day, th.Day, "daylight (Sun above -0.83°)"},
+		{constraints.CivilTwilight, th.Civil, "civil twilight (Sun -0.83° to -6°)"},
+		{constraints.NauticalTwilight, th.Nautical, "nautical twilight (-6° to -12°)"},
+		{constraints.AstronomicalTwilight, th.Astro, "astronomical twilight (-12° to -18°)"},
 	}
 	for _, b := range darknessBands(g) {
 		for _, s := range bandStyle {
@@ -235,12 +279,12 @@ func buildChart(spec chartSpec) (*plot.Plot, *plot.Legend, error) {
 			}
 		}
 	}
-	for _, c := range spec.closures {
-		p.Add(filled(rect(unix(c.start), unix(c.end), 0, 90), colClosure))
+	for _, c := range spec.Closures {
+		p.Add(filled(rect(unix(c.Start), unix(c.End), 0, 90), th.Closure))
 	}
 	gr := plotter.NewGrid()
-	gr.Vertical.Color = color.RGBA{0, 0, 0, 30}
-	gr.Horizontal.Color = color.RGBA{0, 0, 0, 30}
+	gr.Vertical.Color = th.Grid
+	gr.Horizontal.Color = th.Grid
 	p.Add(gr)
 
 	// The Moon.
@@ -248,7 +292,7 @@ func buildChart(spec chartSpec) (*plot.Plot, *plot.Legend, error) {
 	for i := 0; i < g.N; i++ {
 		moon = append(moon, plotter.XY{X: unix(g.Time(i)), Y: g.MoonAlt[i] * ephem.Rad2Deg})
 	}
-	moonLine := newLine(moon, colMoon, vg.Points(1.4), vg.Points(7), vg.Points(3))
+	moonLine := newLine(moon, th.Moon, vg.Points(1.4), vg.Points(7), vg.Points(3))
 	p.Add(moonLine)
 	// Geocentric illuminated fraction at the middle of the chart, the
 	// quantity SkyService.Night reports.
@@ -263,17 +307,17 @@ func buildChart(spec chartSpec) (*plot.Plot, *plot.Legend, error) {
 	}
 	var entries []entry
 	var labels plotter.XYLabels
-	for k, c := range spec.curves {
-		col := palette[k%len(palette)]
-		tr, err := g.Track(c.target)
+	for k, c := range spec.Curves {
+		col := th.Palette[k%len(th.Palette)]
+		tr, err := g.Track(c.Target)
 		if err != nil {
-			return nil, nil, fmt.Errorf("%s: %w", c.name, err)
+			return nil, nil, fmt.Errorf("%s: %w", c.Name, err)
 		}
 		alt := make([]float64, g.N)
 		hidden := make([]bool, g.N)
 		for i := 0; i < g.N; i++ {
 			alt[i] = float64(tr.Alt[i]) * ephem.Rad2Deg
-			hidden[i] = float64(tr.Alt[i]) < spec.site.Horizon.AltitudeAt(float64(tr.Az[i]))
+			hidden[i] = float64(tr.Alt[i]) < spec.Site.Horizon.AltitudeAt(float64(tr.Az[i]))
 		}
 		var first *plotter.Line
 		for i := 0; i < g.N; {
@@ -290,7 +334,7 @@ func buildChart(spec chartSpec) (*plot.Plot, *plot.Legend, error) {
 			}
 			if len(xys) >= 2 {
 				if hidden[i] {
-					l := newLine(xys, colHidden, vg.Points(0.9), vg.Points(3), vg.Points(2.5))
+					l := newLine(xys, th.Hidden, vg.Points(0.9), vg.Points(3), vg.Points(2.5))
 					p.Add(l)
 					if hiddenSample == nil && slicesMaxY(xys[:j-i]) > 0 {
 						hiddenSample = l
@@ -305,26 +349,26 @@ func buildChart(spec chartSpec) (*plot.Plot, *plot.Legend, error) {
 			}
 			i = j
 		}
-		for _, r := range c.runs {
-			xys := plotter.XYs{{X: unix(r.start), Y: interpAlt(g, alt, r.start)}}
+		for _, r := range c.Runs {
+			xys := plotter.XYs{{X: unix(r.Start), Y: interpAlt(g, alt, r.Start)}}
 			for i := 0; i < g.N; i++ {
-				if t := g.Time(i); t.After(r.start) && t.Before(r.end) {
+				if t := g.Time(i); t.After(r.Start) && t.Before(r.End) {
 					xys = append(xys, plotter.XY{X: unix(t), Y: alt[i]})
 				}
 			}
-			xys = append(xys, plotter.XY{X: unix(r.end), Y: interpAlt(g, alt, r.end)})
+			xys = append(xys, plotter.XY{X: unix(r.End), Y: interpAlt(g, alt, r.End)})
 			p.Add(newLine(xys, col, vg.Points(4.5)))
-			if r.label != "" {
-				m := r.start.Add(r.end.Sub(r.start) / 2)
+			if r.Label != "" {
+				m := r.Start.Add(r.End.Sub(r.Start) / 2)
 				labels.XYs = append(labels.XYs, plotter.XY{X: unix(m), Y: math.Min(interpAlt(g, alt, m)+2.2, 88)})
-				labels.Labels = append(labels.Labels, r.label)
+				labels.Labels = append(labels.Labels, r.Label)
 			}
 		}
 		thumb := newLine(nil, col, vg.Points(4))
 		if first == nil {
 			first = thumb
 		}
-		entries = append(entries, entry{c.name, thumb})
+		entries = append(entries, entry{c.Name, thumb})
 	}
 	if len(labels.XYs) > 0 {
 		lb, err := plotter.NewLabels(labels)
@@ -337,10 +381,10 @@ func buildChart(spec chartSpec) (*plot.Plot, *plot.Legend, error) {
 		}
 		p.Add(lb)
 	}
-	for _, m := range spec.marks {
-		l := newLine(plotter.XYs{{X: unix(m.start), Y: 0}, {X: unix(m.start), Y: 90}}, colMark, vg.Points(1.2), vg.Points(2), vg.Points(2))
+	for _, m := range spec.Marks {
+		l := newLine(plotter.XYs{{X: unix(m.Start), Y: 0}, {X: unix(m.Start), Y: 90}}, th.Mark, vg.Points(1.2), vg.Points(2), vg.Points(2))
 		p.Add(l)
-		leg.Add(m.label, l)
+		leg.Add(m.Label, l)
 	}
 
 	for _, e := range entries {
@@ -348,18 +392,27 @@ func buildChart(spec chartSpec) (*plot.Plot, *plot.Legend, error) {
 	}
 	leg.Add(moonName, moonLine)
 	if hiddenSample != nil {
-		leg.Add("behind the local horizon", newLine(nil, colHidden, vg.Points(1.2), vg.Points(3), vg.Points(2.5)))
+		leg.Add("behind the local horizon", newLine(nil, th.Hidden, vg.Points(1.2), vg.Points(3), vg.Points(2.5)))
 	}
-	if len(spec.closures) > 0 {
-		leg.Add("closure ("+spec.closures[0].label+")", filled(rect(0, 1, 0, 1), colClosure))
+	if len(spec.Closures) > 0 {
+		leg.Add("closure ("+spec.Closures[0].Label+")", filled(rect(0, 1, 0, 1), th.Closure))
 	}
 	for _, s := range bandStyle {
 		if seen[s.level] {
 			leg.Add(s.name, filled(rect(0, 1, 0, 1), s.col))
 		}
 	}
+	p.BackgroundColor = th.Background
+	p.Title.TextStyle.Color = th.Text
+	leg.TextStyle.Color = th.Text
+	for _, ax := range []*plot.Axis{&p.X, &p.Y} {
+		ax.Label.TextStyle.Color = th.Text
+		ax.Tick.Label.Color = th.Text
+		ax.LineStyle.Color = th.Text
+		ax.Tick.LineStyle.Color = th.Text
+	}
 	// Last: Add widens the axes to the data it is given.
-	p.X.Min, p.X.Max = unix(spec.start), unix(spec.end)
+	p.X.Min, p.X.Max = unix(spec.Start), unix(spec.End)
 	p.Y.Min, p.Y.Max = 0, 90
 	return p, &leg, nil
 }
@@ -381,41 +434,53 @@ const (
 	chartDPI    = 130
 )
 
-// writeChart draws the spec to path, as PNG or SVG by its extension.
-func writeChart(spec chartSpec, path string) error {
+// ErrFormat refuses a file name that is neither .png nor .svg.
+var ErrFormat = errors.New("chart: want a .png or .svg file name")
+
+// WriteFile draws the spec to path, as PNG or SVG by its extension.
+func WriteFile(spec Spec, path string) error {
 	ext := strings.ToLower(filepath.Ext(path))
 	if ext != ".png" && ext != ".svg" {
-		return flagError("out", "want a .png or .svg file name, got %q", path)
+		return fmt.Errorf("%w, got %q", ErrFormat, path)
 	}
-	p, leg, err := buildChart(spec)
+	f, err := os.Create(path)
+	if err != nil {
+		return err
+	}
+	if err := write(f, spec, ext); err != nil {
+		f.Close()
+		return err
+	}
+	return f.Close()
+}
+
+// WriteSVG draws the spec as an SVG document to w. Text (target names,
+// closure reasons) is escaped by the SVG canvas (vgsvg's FillString).
+func WriteSVG(w io.Writer, spec Spec) error { return write(w, spec, ".svg") }
+
+func write(w io.Writer, spec Spec, ext string) error {
+	p, leg, err := Build(spec)
 	if err != nil {
 		return err
 	}
 	var canvas vg.CanvasWriterTo
 	switch ext {
 	case ".png":
-		c := vgimg.NewWith(vgimg.UseWH(chartWidth, chartHeight), vgimg.UseDPI(chartDPI), vgimg.UseBackgroundColor(color.White))
+		c := vgimg.NewWith(vgimg.UseWH(chartWidth, chartHeight), vgimg.UseDPI(chartDPI), vgimg.UseBackgroundColor(spec.theme().Background))
 		canvas = vgimg.PngCanvas{Canvas: c}
 	case ".svg":
 		canvas = vgsvg.New(chartWidth, chartHeight)
 	}
 	dc := draw.New(canvas)
 	if ext == ".svg" {
-		dc.SetColor(color.White)
+		dc.SetColor(spec.theme().Background)
 		dc.Fill(dc.Rectangle.Path())
 	}
 	p.Draw(draw.Crop(dc, 0, -legendWidth, 0, 0))
 	legArea := draw.Crop(dc, chartWidth-legendWidth+vg.Points(8), -vg.Points(6), vg.Points(6), -vg.Points(30))
 	leg.Draw(legArea)
-	f, err := os.Create(path)
-	if err != nil {
-		return err
-	}
-	if _, err := canvas.WriteTo(f); err != nil {
-		f.Close()
-		return err
-	}
-	return f.Close()
+	_, err = canvas.WriteTo(w)
+	return err
 }
 
 // slicesMaxY is the largest Y of the points.
@@ -425,4 +490,11 @@ func slicesMaxY(xys plotter.XYs) float64 {
 		m = math.Max(m, p.Y)
 	}
 	return m
+}
+
+func (s Spec) theme() *Theme {
+	if s.Theme == nil {
+		return &Light
+	}
+	return s.Theme
 }
