@@ -184,3 +184,22 @@ func BenchmarkHorizon2000x30(b *testing.B) {
 	b.ReportMetric(total, "objective")
 	b.ReportMetric(float64(runs), "runs")
 }
+
+// BenchmarkPrepare200 prepares the 200-block night: tracks, visibility
+// and the continuous intervals with their refined edges (what every
+// MakePlan pays before the search).
+func BenchmarkPrepare200(b *testing.B) {
+	in := loadInstance(b, "plan200")
+	b.ReportAllocs()
+	b.ResetTimer()
+	var p *Problem
+	for b.Loop() {
+		var err error
+		if p, err = in.Problem(Options{Seed: 1, LookaheadNights: 1}); err != nil {
+			b.Fatal(err)
+		}
+	}
+	sinkProblem = p
+}
+
+var sinkProblem *Problem

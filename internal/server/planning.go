@@ -13,7 +13,6 @@ import (
 	"math"
 	"runtime"
 	"sort"
-	"strings"
 	"time"
 
 	"google.golang.org/protobuf/proto"
@@ -329,54 +328,19 @@ func unplacedOf(job *planJob, prob *scheduler.Problem, u *scheduler.Unplaced) *n
 	switch u.Why {
 	case scheduler.NeverObservable:
 		out.Reason = reasonProto(u.Constraint)
-		out.Detail = whyNot(prob, u.Block, clock)
+		out.Detail = prob.WhyNot(u.Block, clock)
 	case scheduler.WindowTooShort:
 		out.Reason = nightloomv1.Reason_REASON_WINDOW_TOO_SHORT
 		out.Detail = fmt.Sprintf("longest window %s is shorter than the shortest useful run (%s with overheads)",
 			roundMin(u.LongestWindow), roundMin(shortestRun(job.site, b.pb)))
 	default:
 		out.Reason = nightloomv1.Reason_REASON_LOST_TO_HIGHER_VALUE
-		out.Detail = "observable " + windowsText(prob, u.Block, clock) + ", but the time went to blocks of higher value"
+		out.Detail = "observable " + prob.ObservableText(u.Block, clock) + ", but the time went to blocks of higher value"
 	}
 	return out
 }
 
 func roundMin(d time.Duration) string { return d.Round(time.Minute).String() }
-
-// whyNot lists the failing constraints span by span in local time, e.g.
-// "Moon too close 23:10-01:40; below the horizon profile 01:40-05:02".
-func whyNot(prob *scheduler.Problem, b int, clock func(time.Time) string) string {
-	var parts []string
-	spans := prob.Vis[b].Spans(prob.Grid)
-	for _, sp := range spans {
-		if sp.Reason == constraints.OK {
-			continue
-		}
-		if len(parts) == 6 {
-			parts = append(parts, "...")
-			break
-		}
-		parts = append(parts, fmt.Sprintf("%s %s-%s", sp.Reason, clock(sp.From), clock(sp.To)))
-	}
-	return strings.Join(parts, "; ")
-}
-
-// windowsText lists the observable windows in local time.
-func windowsText(prob *scheduler.Problem, b int, clock func(time.Time) string) string {
-	var parts []string
-	g := prob.Grid
-	for _, w := range prob.Vis[b].Windows {
-		if len(parts) == 4 {
-			parts = append(parts, "...")
-			break
-		}
-		parts = append(parts, clock(g.Time(w.Start))+"-"+clock(g.Time(w.End)))
-	}
-	if len(parts) == 0 {
-		return "at no grid step"
-	}
-	return strings.Join(parts, ", ")
-}
 
 // objectiveOf sums the objective's parts (plan.proto ObjectiveParts).
 func objectiveOf(job *planJob, body *nightloomv1.Plan, o *scheduler.Objective) *nightloomv1.ObjectiveParts {
