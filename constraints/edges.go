@@ -128,7 +128,12 @@ const (
 	numTau
 )
 
-type taus [numTau]float64
+// taus is the slack of every constraint at one instant: t in seconds
+// (margin over its rate bound, Lipschitz), and for the constraints with a
+// bound on their second derivative the margin m and that bound k (0: none).
+type taus struct {
+	t, m, k [numTau]float64
+}
 
 // certifier holds one block's limits and rate bounds for Intervals.
 type certifier struct {
@@ -157,6 +162,7 @@ const (
 	sunMotionBound   = 2.5e-7       // rad/s
 	moonMotionBound  = 5e-6         // rad/s
 	illumRateBound   = 2e-6         // illuminated fraction per second
+	sepCurvature     = 1e-11        // rad/s^2: the Sun's separation from a fixed target and a fixed target's hour angle
 	sepSlack         = 5e-7         // rad: float32 tracks and the hourly apparent place
 	altSlack         = 5e-7         // rad
 )
@@ -284,14 +290,35 @@ func (c *certifier) bisect(ok float64, tok taus, bad float64) (float64, taus) {
 	return ok, tok
 }
 
-// certified reports whether the slack at a and b proves [a, b] observable.
+// certified reports whether the slack at a and b proves [a, b] observable:
+// for every constraint, the Lipschitz certificate or the curvature one.
 func certified(ta, tb *taus, d float64) bool {
-	for k := range ta {
-		if !(ta[k]+tb[k] >= d) { // NaN fails too
-			return false
+	for c := range ta.t {
+		if ta.t[c]+tb.t[c] >= d { // NaN fails
+			continue
 		}
+		if k := math.Max(ta.k[c], tb.k[c]); k > 0 && curvatureOK(ta.m[c], tb.m[c], k, d) {
+			continue
+		}
+		return false
 	}
 	return true
+}
+
+// curvatureOK reports whether a function with values ma >= 0 and mb >= 0 at
+// the ends of an interval of length h, and |second derivative| <= k, stays
+// non-negative on it: it lies above the chord less (k/2)(t-a)(b-t), a
+// parabola whose minimum is checked exactly.
+func curvatureOK(ma, mb, k, h float64) bool {
+	if !(ma >= 0 && mb >= 0) {
+		return false
+	}
+	c := k * h * h / 2
+	u := (c + ma - mb) / (2 * c)
+	if u <= 0 || u >= 1 {
+		return true
+	}
+	return ma-(c+ma-mb)*(c+ma-mb)/(4*c) >= 0
 }
 
 // segment appends the observable intervals of [a, b] (both observable) to
@@ -326,10 +353,13 @@ func appendSpan(xs []float64, a, b float64) []float64 {
 // block's grid or a one-step grid), instant t. Unused constraints have
 // +Inf; a value that cannot be bounded (NaN) fails the certificate.
 func (c *certifier) taus(g *Grid, tr *Track, i int, t time.Time) taus {
-	var s taus
+	var sl taus
+	s := &sl.t
 	for k := range s {
 		s[k] = math.Inf(1)
 	}
+	// curv sets a constraint's margin and curvature bound.
+	curv := func(c int, m, k float64) { sl.m[c], sl.k[c] = m, k }
 	l := &c.lim
 	set := l.set
 	alt := float64(tr.Alt[i])
@@ -347,28 +377,41 @@ func (c *certifier) taus(g *Grid, tr *Track, i int, t time.Time) taus {
 		s[tauClock] = math.Min(d1, d2)
 	}
 	s[tauDark] = (c.darkThr - g.SunAlt[i]) / c.sunAltRate
+	curv(tauDark, c.darkThr-g.SunAlt[i], c.curvature(math.Abs(g.SunAlt[i]), 0, false))
 	// Horizon: altitude minus the profile at the azimuth; the azimuth's
 	// rate grows with the altitude (bounded over one grid step).
 	hmax := math.Min(math.Abs(alt)+c.altRate*c.h+ephem.Deg2Rad, 89*ephem.Deg2Rad)
 	azRate := omegaSidereal*(c.sinLat+c.cosLat*math.Tan(hmax)) + c.own/math.Cos(hmax)
 	s[tauHorizon] = (alt - g.Site.Horizon.AltitudeAt(float64(tr.Az[i])) - altSlack) / (c.altRate + c.slope*azRate)
+	kAlt := c.curvature(math.Abs(alt), c.own, true)
+	if c.slope == 0 { // a flat profile: the altitude's curvature
+		curv(tauHorizon, alt-g.Site.Horizon.AltitudeAt(float64(tr.Az[i]))-altSlack, kAlt)
+	}
 	if l.minAlt > -math.Pi/2 {
 		s[tauMinAlt] = (alt - l.minAlt - altSlack) / c.altRate
+		curv(tauMinAlt, alt-l.minAlt-altSlack, kAlt)
 	}
 	if !math.IsInf(l.maxAlt, 1) {
 		s[tauMaxAlt] = (l.maxAlt - alt - altSlack) / c.altRate
+		curv(tauMaxAlt, l.maxAlt-alt-altSlack, kAlt)
 	}
 	if !math.IsInf(c.altX, -1) {
 		s[tauAirmass] = (alt - c.altX - altSlack) / c.altRate
+		curv(tauAirmass, alt-c.altX-altSlack, kAlt)
 	}
 	ha := float64(tr.HA[i])
 	if !math.IsInf(l.maxHA, 1) {
 		s[tauHA] = (l.maxHA - math.Abs(ha) - altSlack) / c.haRate
+		if math.Abs(ha) > 1e-3 { // |HA| is linear in time away from the meridian
+			curv(tauHA, l.maxHA-math.Abs(ha)-altSlack, sepCurvature+2*omegaSidereal*c.own)
+		}
 	}
 	sun := float64(tr.SunSep[i])
 	s[tauFloor] = (sun - l.floor - sepSlack) / c.sunSepRate
+	curv(tauFloor, sun-l.floor-sepSlack, sepCurvature+2*omegaSidereal*c.own)
 	if l.minElong > 0 {
 		s[tauElong] = (sun - l.minElong - sepSlack) / c.sunSepRate
+		curv(tauElong, sun-l.minElong-sepSlack, sepCurvature+2*omegaSidereal*c.own)
 	}
 	if l.minMoon > 0 {
 		sep := (float64(tr.MoonSep[i]) - l.minMoon - sepSlack) / c.moonSep
@@ -395,7 +438,23 @@ func (c *certifier) taus(g *Grid, tr *Track, i int, t time.Time) taus {
 	if l.checkFlip {
 		s[tauFlip] = math.Max(l.flip0-ha, ha-l.flip1) / c.haRate
 	}
-	return s
+	return sl
+}
+
+// curvature bounds the second derivative (rad/s^2) of an altitude at
+// |altitude| h: d2h/dt2 = omega cos(lat) cos(A) dA/dt with dA/dt bounded
+// as in Intervals, times the refraction factor, plus refraction's own
+// curvature near the horizon (d2R/dh2 < 6 per radian, Saemundsson's
+// formula) times the squared rate; own is a moving target's rate bound.
+func (c *certifier) curvature(h, own float64, refracted bool) float64 {
+	hmax := math.Min(h+c.altRate*c.h+ephem.Deg2Rad, 89*ephem.Deg2Rad)
+	azRate := omegaSidereal*(c.sinLat+c.cosLat*math.Tan(hmax)) + own/math.Cos(hmax)
+	k := omegaSidereal*c.cosLat*azRate + 3*omegaSidereal*own
+	if refracted {
+		rate := omegaSidereal*c.cosLat + own
+		k = refractionFactor*k + 6*rate*rate
+	}
+	return k + 1e-12
 }
 
 // estRate estimates a bound on the rate of change (per second) of a

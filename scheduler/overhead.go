@@ -105,7 +105,13 @@ func (p *Problem) axes(b int, x float64, side int8, prev bool) (a1, a2 float64) 
 	if f == 0 {
 		return u1, u2
 	}
-	return u1 + f*math.Remainder(v1-u1, 360), u2 + f*(v2-u2)
+	d := v1 - u1 // across the wrap of axis 1: neighbouring samples are close
+	if d > 180 {
+		d -= 360
+	} else if d < -180 {
+		d += 360
+	}
+	return u1 + f*d, u2 + f*(v2-u2)
 }
 
 // axesOf computes axes for block b at step i (b = -1: park).
@@ -173,11 +179,10 @@ func (p *Problem) precomputeAxes() {
 	}
 }
 
-// slewTime is the time (s) to move from the previous pointing, where it is
-// at from, to block b on the given side where it is at x.
-func (p *Problem) slewTime(prev prevState, from float64, b int, side int8, x float64) float64 {
+// slewTo is the time (s) to move from the previous pointing, where it is
+// at from, to the axis positions c1, c2.
+func (p *Problem) slewTo(prev prevState, from, c1, c2 float64) float64 {
 	a1, a2 := p.axes(prev.block, from, prev.side, true)
-	c1, c2 := p.axes(b, x, side, false)
 	return p.Site.Overheads.slewSeconds(p.Site.Mount, a1, a2, c1, c2)
 }
 
@@ -249,7 +254,8 @@ func (p *Problem) focusPeriod(x float64) int {
 func (p *Problem) setup(prev prevState, b int, x float64) setupParts {
 	d := &p.bd[b]
 	side := p.startSide(b, x)
-	s := setupParts{slew: p.slewTime(prev, x, b, side, x), settle: p.oh.settle, acq: p.oh.acq}
+	c1, c2 := p.axes(b, x, side, false)
+	s := setupParts{slew: p.slewTo(prev, x, c1, c2), settle: p.oh.settle, acq: p.oh.acq}
 	changed := prev.filter != d.filter
 	if changed {
 		s.filter = p.oh.filter
@@ -262,7 +268,7 @@ func (p *Problem) setup(prev prevState, b int, x float64) setupParts {
 	if prev.block >= 0 {
 		// The mount leaves the previous target when the setup begins, not
 		// at x: the slew from there, if longer, counts.
-		if s1 := p.slewTime(prev, x-s.total(), b, side, x); s1 > s.slew {
+		if s1 := p.slewTo(prev, x-s.total(), c1, c2); s1 > s.slew {
 			s.slew = s1
 		}
 	}
