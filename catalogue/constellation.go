@@ -21,7 +21,7 @@ var icrsToB1875 = ephem.BiasPrecessionNutation(B1875TT, 0, 0)
 // B1875.0. Rows are in the published search order.
 type bound struct {
 	con               string
-	raLo, raHi, decLo int
+	raLo, raHi, decLo float64
 }
 
 // Constellation is one of the 88 IAU constellations.
@@ -60,7 +60,7 @@ func (c *Catalogue) lookupB1875(raDeg, decDeg float64) Constellation {
 	}
 	decUnits := decDeg * 24 // 2.5 arcmin
 	for _, b := range c.bounds {
-		if float64(b.decLo) <= decUnits && float64(b.raLo) <= raUnits && raUnits < float64(b.raHi) {
+		if b.decLo <= decUnits && b.raLo <= raUnits && raUnits < b.raHi {
 			return Constellation{Abbr: b.con, Name: c.names[b.con]}
 		}
 	}

@@ -6,7 +6,7 @@
 // ranks what is well placed from a site on a night, and tells in which
 // constellation any position lies.
 //
-// The data is embedded (data/catalogue.tsv.gz, about 290 KiB) and parsed
+// The data is embedded (data/catalogue.tsv.gz, 288 KiB) and parsed
 // once, on first use. Its sources, licences and the script that builds it
 // are in data/README.md. The package is pure computation on that data; it
 // imports only ephem (precession to B1875, altitudes, twilight).

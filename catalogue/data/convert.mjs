@@ -32,7 +32,7 @@ const src = fs.readFileSync(path.join(ae, 'astronomy.js'), 'utf8');
 const names = [...src.slice(src.indexOf('const ConstelNames = ['), src.indexOf('const ConstelBounds = ['))
   .matchAll(/\['(\w{3})', '[^']*'\]/g)].map((m) => m[1]);
 const bsrc = src.slice(src.indexOf('const ConstelBounds = ['), src.indexOf('];', src.indexOf('const ConstelBounds = [')));
-for (const m of bsrc.matchAll(/\[(\d+), (-?\d+), (-?\d+), (-?\d+)\]/g)) {
+for (const m of bsrc.matchAll(/\[(\d+), (-?[\d.]+), (-?[\d.]+), (-?[\d.]+)\]/g)) {
   lines.push(['B', names[Number(m[1])], m[2], m[3], m[4]].join('\t'));
 }
 
@@ -58,27 +58,55 @@ for (const file of ['stars.8.json', 'stars.14.json']) {
 // objects without an NGC/IC number keep their Messier position from messier.json.
 const dsonames = data('dsonames.json');
 const messier = data('messier.json').features;
-const mOf = new Map();
-for (const m of messier) if (/^(NGC|IC) /.test(m.properties.desig)) mOf.set(m.properties.desig, m.id.replace(/^M/, ''));
+const sedsOf = new Map(); // "NGC 5194" -> SEDS Messier record ("NGC 5194/5" counts as NGC 5194)
+for (const m of messier) {
+  const id = m.properties.desig.split('/')[0];
+  if (/^(NGC|IC) /.test(id)) sedsOf.set(id, m);
+}
 // Sizes in arcmin, major x minor, rounded to 0.1 arcmin.
 const dim = (x) => clean(x).split('x').filter((v) => v !== '').map((v) => String(Math.round(Number(v) * 10) / 10)).join('x');
 const mag = (x) => (x === '' || x === undefined || Number(x) >= 99 ? '' : Number(x).toFixed(1));
+const sepDeg = ([l1, b1], [l2, b2]) => {
+  const r = Math.PI / 180;
+  const c = Math.sin(b1 * r) * Math.sin(b2 * r) + Math.cos(b1 * r) * Math.cos(b2 * r) * Math.cos((l1 - l2) * r);
+  return Math.acos(Math.min(1, c)) / r;
+};
+const corrected = [];
+const messierDone = new Set();
 for (const d of data('dsos.20.json').features) {
   if (!/^(NGC|IC) \d+[A-Z]?$/.test(d.id)) continue;
-  const p = d.properties;
-  const [lon, lat] = d.geometry.coordinates;
-  const m = mOf.get(d.id) || '';
+  let p = d.properties;
+  let pos = d.geometry.coordinates;
+  const seds = sedsOf.get(d.id);
+  const m = /^M \d+$/.test(p.desig) ? p.desig.slice(2) : seds ? seds.id.replace(/^M/, '') : '';
+  // The Messier objects are checked against SEDS: an entry whose position
+  // is off by more than 10' and 0.6 of its size, or whose magnitude is off
+  // by more than 2 mag, is a different object in the source (M 87, M 98 and
+  // M 102 in d3-celestial 0.7.35); SEDS's position, magnitude and size
+  // replace it, and README.md lists them.
+  if (seds) {
+    const major = Number(clean(p.dim).split('x')[0]) || 0;
+    const off = sepDeg(pos, seds.geometry.coordinates) * 60;
+    if ((off > 10 && off > 0.6 * major) || (p.mag !== '' && Math.abs(Number(p.mag) - seds.properties.mag) > 2)) {
+      corrected.push(`M ${m} = ${d.id}: ${off.toFixed(1)}' and ${p.mag} mag from SEDS`);
+      pos = seds.geometry.coordinates;
+      p = { ...p, mag: seds.properties.mag, dim: seds.properties.dim };
+    }
+  }
+  const [lon, lat] = pos;
+  if (m) messierDone.add(m);
   const name = clean((dsonames[d.id] || (m && dsonames['M ' + m]) || {}).name);
   lines.push(['D', d.id, f4(ra(lon)), f4(lat), mag(p.mag), p.type, dim(p.dim), m, name].join('\t'));
 }
+console.log('replaced by SEDS values: ' + corrected.join('; '));
 const ref = ['# Messier objects as listed by SEDS (H. Frommert), from d3-celestial 0.7.35 data/messier.json',
   '# messier\tcross_id\tra_deg\tdec_deg (J2000)'];
 for (const m of messier) {
   const p = m.properties;
   const [lon, lat] = m.geometry.coordinates;
   ref.push([m.id.replace(/^M/, ''), p.desig, f4(ra(lon)), f4(lat)].join('\t'));
-  if (!/^(NGC|IC) /.test(p.desig)) {
-    const n = m.id.replace(/^M/, '');
+  const n = m.id.replace(/^M/, '');
+  if (!messierDone.has(n)) {
     lines.push(['D', 'M ' + n, f4(ra(lon)), f4(lat), mag(p.mag), p.type, dim(p.dim), n, clean(p.alt || (dsonames['M ' + n] || {}).name)].join('\t'));
   }
 }
