@@ -64,6 +64,7 @@ var typeGroups = map[string][]string{
 	"cluster": {"oc", "gc"},
 	"nebula":  {"dn", "bn", "sfr", "rn", "en", "pn", "snr"},
 	"star":    {"star"},
+	"deepsky": {"gg", "g", "s", "s0", "sd", "i", "e", "oc", "gc", "dn", "bn", "sfr", "rn", "en", "pn", "snr", "pos"},
 }
 
 // Entry is one catalogue object.

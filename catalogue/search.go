@@ -19,7 +19,7 @@ type Query struct {
 	// ("andromeda", "NGC 70", "M 3").
 	Text string
 	// Type is a type code ("s", "pn"), its words ("planetary nebula") or
-	// a group: "galaxy", "cluster", "nebula", "star".
+	// a group: "galaxy", "cluster", "nebula", "star", "deep-sky".
 	Type string
 	// MagLimit keeps entries at least as bright as this visual magnitude
 	// (entries without a magnitude are dropped) when HasMagLimit is set.
@@ -51,7 +51,7 @@ func typeSet(t string) (map[string]bool, error) {
 		}
 	}
 	if len(set) == 0 {
-		return nil, fmt.Errorf("%w: type %q is none of galaxy, cluster, nebula, star or a type code (%s)", ErrQuery, t, strings.Join(TypeCodes(), ", "))
+		return nil, fmt.Errorf("%w: type %q is none of galaxy, cluster, nebula, star, deep-sky or a type code (%s)", ErrQuery, t, strings.Join(TypeCodes(), ", "))
 	}
 	return set, nil
 }

@@ -113,6 +113,7 @@ func ephemerisRow(site *siteModel, target *constraints.Target, t time.Time) *nig
 		Time: timestamppb.New(t), Pointing: o.pointing, AboveHorizonProfile: o.aboveProfile,
 		MoonSeparationDeg: o.moonSepDeg, SolarElongationDeg: o.sunSepDeg, SunAltitudeDeg: o.sunAltDeg,
 		Darkness: darknessLevel(o.sunAltDeg), MoonAltitudeDeg: o.moonAltDeg, MoonIllumination: o.moonIllum,
+		Constellation: pointingConstellation(o.pointing),
 	}
 	if o.altDeg >= 0 {
 		if !math.IsInf(o.airmass, 0) {
