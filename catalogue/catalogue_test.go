@@ -3,6 +3,7 @@ package catalogue
 import (
 	"errors"
 	"fmt"
+	"math"
 	"strings"
 	"testing"
 	"time"
@@ -235,5 +236,60 @@ func BenchmarkParse(b *testing.B) {
 		if _, err := parse(embedded); err != nil {
 			b.Fatal(err)
 		}
+	}
+}
+
+// TestGnomonic checks the TAN projection against its definition
+// (Calabretta & Greisen 2002, eqs. 54-55): a point 1 deg east of the tangent
+// point on the equator lies at x = tan(1 deg) rad; the tangent point at 0.
+func TestGnomonic(t *testing.T) {
+	const tol = 1e-12 // deg
+	x, y, ok := Gnomonic(100, 0, 101, 0)
+	want := math.Tan(math.Pi/180) * 180 / math.Pi
+	if !ok || math.Abs(x-want) > tol || math.Abs(y) > tol {
+		t.Errorf("Gnomonic(100,0 -> 101,0) = %v, %v, %v; want %v, 0", x, y, ok, want)
+	}
+	if x, y, ok := Gnomonic(250, -40, 250, -40); !ok || x != 0 || y != 0 {
+		t.Errorf("tangent point projects to %v, %v", x, y)
+	}
+	if _, _, ok := Gnomonic(0, 0, 180, 0); ok {
+		t.Errorf("the antipode projects")
+	}
+}
+
+// TestCrossings: a straight track from Vega (Lyra) to Deneb (Cygnus) starts
+// in Lyr and ends in Cyg, with the crossings in time order.
+func TestCrossings(t *testing.T) {
+	c := Default()
+	v, _ := c.Resolve("Vega")
+	d, _ := c.Resolve("Deneb")
+	a := ephem.SphericalToVec(v.Entry.RADeg*ephem.Deg2Rad, v.Entry.DecDeg*ephem.Deg2Rad)
+	b := ephem.SphericalToVec(d.Entry.RADeg*ephem.Deg2Rad, d.Entry.DecDeg*ephem.Deg2Rad)
+	t0 := time.Date(2027, 1, 1, 0, 0, 0, 0, time.UTC)
+	var track []TrackPoint
+	for i := 0; i <= 100; i++ {
+		f := float64(i) / 100
+		ra, dec, _ := ephem.VecToSpherical(a.Scale(1 - f).Add(b.Scale(f)))
+		track = append(track, TrackPoint{Time: t0.Add(time.Duration(i) * time.Hour), RADeg: ra * ephem.Rad2Deg, DecDeg: dec * ephem.Rad2Deg})
+	}
+	cr := c.Crossings(track)
+	if len(cr) == 0 || cr[0].From.Abbr != "Lyr" || cr[len(cr)-1].To.Abbr != "Cyg" {
+		t.Fatalf("crossings %+v, want Lyr first and Cyg last", cr)
+	}
+	for i, x := range cr {
+		if !x.By.After(x.After) || (i > 0 && x.After.Before(cr[i-1].By)) {
+			t.Errorf("crossing %d out of order: %+v", i, x)
+		}
+	}
+	f, err := c.Finder(track, 1, 3, 6.5, 10)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(f.Stars) < 10 || f.RadiusDeg < 12 {
+		t.Errorf("finder around Vega-Deneb: %d stars, radius %.1f deg", len(f.Stars), f.RadiusDeg)
+	}
+	xs, _, labels := c.Boundaries(f, 60)
+	if len(xs) == 0 || labels["Lyr"] == [2]float64{} || labels["Cyg"] == [2]float64{} {
+		t.Errorf("boundaries: %d points, labels %v", len(xs), labels)
 	}
 }

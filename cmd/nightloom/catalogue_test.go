@@ -111,3 +111,29 @@ func TestTargetCreateByName(t *testing.T) {
 		t.Errorf("unknown name: exit %d, stderr %q", r.code, r.stderr)
 	}
 }
+
+// TestFinderChart draws the invented comet's track over eight mornings as
+// PNG and SVG and tells where it crosses into the next constellation.
+func TestFinderChart(t *testing.T) {
+	dir := t.TempDir()
+	for _, ext := range []string{".png", ".svg"} {
+		out := dir + "/finder" + ext
+		stdout, errs, code := runCLI(t, "catalogue", "finder", "--orbit", demoFile("comet-orbit.json"),
+			"--from", "2027-01-10T06:00:00Z", "--nights", "8", "--out", out, "--title", "Comet NL-1 (invented)")
+		if code != 0 {
+			t.Fatalf("finder %s: exit %d: %s", ext, code, errs)
+		}
+		if !strings.Contains(stdout, "moves from Serpens into Sagittarius") || strings.Count(stdout, "2027-01-") != 9 {
+			t.Errorf("finder output:\n%s", stdout)
+		}
+		if ext == ".png" {
+			checkPNG(t, out)
+		} else if b := mustRead(t, out); !strings.Contains(b, "<svg") || !strings.Contains(b, "01-14") {
+			t.Errorf("SVG lacks the dates along the track")
+		}
+	}
+	_, errs, code := runCLI(t, "catalogue", "finder", "--orbit", demoFile("comet-orbit.json"), "--from", "2027-01-10T06:00:00Z", "--nights", "1")
+	if code != 2 || !strings.Contains(errs, "--nights") {
+		t.Errorf("one night: exit %d, %q", code, errs)
+	}
+}

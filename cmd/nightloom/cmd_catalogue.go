@@ -6,7 +6,6 @@ package main
 
 import (
 	"encoding/json"
-	"errors"
 	"fmt"
 	"io"
 	"math"
@@ -332,6 +331,11 @@ func lookupForCreate(a *api, name string, stderr io.Writer) (*pb.CreateTargetReq
 		RaDeg: e.GetRaDeg(), DecDeg: e.GetDecDeg(), CatalogueId: e.GetId()}}}}, nil
 }
 
-func runCatalogueFinder(args []string, stdout, stderr io.Writer) error {
-	return errors.New("not yet")
+// pointingConstellation is the IAU constellation (abbreviation) of a
+// pointing's astrometric ICRS place, for the plan's notes; "" without one.
+func pointingConstellation(p *pb.Pointing) string {
+	if p == nil {
+		return ""
+	}
+	return catalogue.Default().ConstellationOf(p.GetRaIcrsDeg(), p.GetDecIcrsDeg()).Abbr
 }
