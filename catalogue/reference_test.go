@@ -187,3 +187,28 @@ func TestStarsAgainstPyEphem(t *testing.T) {
 	t.Logf("%d stars, %d matched by name, %d by place (%v): median %.2f\", worst %.2f\"", len(seps), len(seps)-len(byPlace),
 		len(byPlace), byPlace, seps[len(seps)/2]/arcsec, seps[len(seps)-1]/arcsec)
 }
+
+// TestConstellationAgainstPyEphem checks the same 1501 positions against
+// PyEphem 4.1.4 (Debian python3-ephem), whose libastro carries its own copy
+// of Roman's table and its own precession: a reference independent of the
+// astronomy-engine table we embed. PyEphem names the two parts of Serpens
+// Se1 (Caput) and Se2 (Cauda); the IAU abbreviation of both is Ser.
+// Table testdata/catalogue/constellations_pyephem.tsv from
+// gen_constellations_pyephem.py.
+func TestConstellationAgainstPyEphem(t *testing.T) {
+	c := Default()
+	n := 0
+	for _, r := range readTSV(t, "constellations_pyephem.tsv") {
+		want := r[3]
+		if want == "Se1" || want == "Se2" {
+			want = "Ser"
+		}
+		if got := c.ConstellationOf(num(t, r[1]), num(t, r[2])); got.Abbr != want {
+			t.Errorf("%s position %s %s: got %s, PyEphem %s", r[0], r[1], r[2], got.Abbr, r[3])
+		}
+		n++
+	}
+	if n < 1500 {
+		t.Errorf("%d positions, want 1501", n)
+	}
+}

@@ -10,3 +10,4 @@ tmp="$(mktemp -d)"; trap 'rm -rf "$tmp"' EXIT
 node "$here/gen_constellations.mjs" "$tmp/package/astronomy.js" "$here/constellations_astronomy_engine.tsv"
 /usr/bin/python3 -c "import ephem" 2>/dev/null || apt-get install -y python3-ephem  # Debian's package, not a pip one
 /usr/bin/python3 "$here/gen_stars_pyephem.py" > "$here/stars_pyephem.tsv"
+/usr/bin/python3 "$here/gen_constellations_pyephem.py" < "$here/constellations_astronomy_engine.tsv" > "$here/constellations_pyephem.tsv"
