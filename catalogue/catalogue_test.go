@@ -293,3 +293,54 @@ func TestCrossings(t *testing.T) {
 		t.Errorf("boundaries: %d points, labels %v", len(xs), labels)
 	}
 }
+
+// FuzzResolve: any input either resolves to an entry whose own designation
+// resolves back to it, or is refused with a *NameError; never a panic.
+func FuzzResolve(f *testing.F) {
+	for _, s := range []string{"M 31", "ngc0224", "Vega", "α Lyr", "Rosette Nebula", "", "\xff\xfe", "M 0", "NGC 00000000000000000000001", "hip", "  "} {
+		f.Add(s)
+	}
+	c := Default()
+	f.Fuzz(func(t *testing.T, name string) {
+		if len(name) > 200 {
+			return
+		}
+		r, err := c.Resolve(name)
+		if err != nil {
+			var ne *NameError
+			if !errors.As(err, &ne) {
+				t.Fatalf("Resolve(%q): %v is not a *NameError", name, err)
+			}
+			return
+		}
+		back, err := c.Resolve(r.Entry.ID)
+		if err != nil || back.Entry != r.Entry {
+			t.Fatalf("Resolve(%q) = %s, which does not resolve back: %v", name, r.Entry.ID, err)
+		}
+	})
+}
+
+// BenchmarkResolveUnknown measures a refused name: the nearest names are
+// searched over every known name.
+func BenchmarkResolveUnknown(b *testing.B) {
+	c := Default()
+	b.ReportAllocs()
+	for b.Loop() {
+		if _, err := c.Resolve("Betelguese"); err == nil {
+			b.Fatal("resolved")
+		}
+	}
+}
+
+// BenchmarkTonight ranks a night's deep-sky objects to magnitude 10 on a
+// 10-minute grid.
+func BenchmarkTonight(b *testing.B) {
+	c := Default()
+	o, _ := ephem.NewObserver(44.12, 5.24, 650)
+	b.ReportAllocs()
+	for b.Loop() {
+		if _, err := c.Tonight(TonightQuery{Observer: &o, Year: 2027, Month: time.January, Day: 14, MagLimit: 10, Type: "deep-sky"}); err != nil {
+			b.Fatal(err)
+		}
+	}
+}

@@ -3,6 +3,7 @@ package catalogue
 import (
 	"errors"
 	"fmt"
+	"math"
 	"regexp"
 	"slices"
 	"sort"
@@ -194,9 +195,14 @@ func (c *Catalogue) Nearest(name string, n int) []Candidate {
 		key nameKey
 	}
 	best := make([]scored, 0, n+1)
+	var lv lev
 	for _, nk := range c.keys {
 		// A cheap lower bound: the length difference.
-		d, dp := levenshtein(k, nk.norm)
+		bound := math.MaxInt
+		if len(best) == n {
+			bound = best[n-1].d
+		}
+		d, dp := lv.distance(k, nk.norm, bound)
 		d = min(d, dp+1)
 		if len(best) == n && d > best[n-1].d {
 			continue
@@ -227,8 +233,21 @@ func (c *Catalogue) Nearest(name string, n int) []Candidate {
 // and the least distance from a to a prefix of b (the minimum of the last
 // row, as in approximate prefix matching).
 func levenshtein(a, b string) (full, prefix int) {
-	prev := make([]int, len(b)+1)
-	cur := make([]int, len(b)+1)
+	var lv lev
+	return lv.distance(a, b, math.MaxInt)
+}
+
+// lev holds the two rows of the dynamic program, reused between calls.
+type lev struct{ prev, cur []int }
+
+// distance is levenshtein with the rows of l. It gives up early, returning
+// bound+1 for both, once every entry of a row exceeds bound: row minima
+// never decrease, so neither result could then be bound or less.
+func (l *lev) distance(a, b string, bound int) (full, prefix int) {
+	if cap(l.prev) < len(b)+1 {
+		l.prev, l.cur = make([]int, len(b)+1, 2*len(b)+2), make([]int, len(b)+1, 2*len(b)+2)
+	}
+	prev, cur := l.prev[:len(b)+1], l.cur[:len(b)+1]
 	for j := range prev {
 		prev[j] = j
 	}
@@ -240,6 +259,9 @@ func levenshtein(a, b string) (full, prefix int) {
 				cost = 0
 			}
 			cur[j] = min(prev[j]+1, cur[j-1]+1, prev[j-1]+cost)
+		}
+		if bound < math.MaxInt && slices.Min(cur) > bound {
+			return bound + 1, bound + 1
 		}
 		prev, cur = cur, prev
 	}
