@@ -37,7 +37,7 @@ const (
 func CatalogueEntryProto(c *catalogue.Catalogue, e *catalogue.Entry) *nightloomv1.CatalogueEntry {
 	out := &nightloomv1.CatalogueEntry{
 		Id: e.ID, Label: e.Label(), Name: e.Name, Messier: int32(e.Messier), Type: e.Type, TypeWords: e.TypeWords(),
-		RaDeg: e.RADeg, DecDeg: e.DecDeg, MajorAxisArcmin: e.MajorArcmin, MinorAxisArcmin: e.MinorArcmin,
+		RaDeg: e.RADeg, DecDeg: e.DecDeg, MajorAxisDeg: e.MajorArcmin / 60, MinorAxisDeg: e.MinorArcmin / 60,
 		Constellation: e.Constellation,
 	}
 	if k, ok := c.LookupConstellation(e.Constellation); ok {
@@ -87,15 +87,15 @@ func (x *catalogueService) SearchCatalogue(ctx context.Context, req *nightloomv1
 	text(&v, "type", req.GetType(), 0, maxCatalogueName)
 	text(&v, "constellation", req.GetConstellation(), 0, maxCatalogueName)
 	intRange(&v, "page_size", int64(req.GetPageSize()), 0, maxCataloguePage)
-	if req.MagnitudeLimit != nil {
-		rangeCheck(&v, "magnitude_limit", req.GetMagnitudeLimit(), -30, 30)
+	if req.FaintestMagnitude != nil {
+		rangeCheck(&v, "faintest_magnitude", req.GetFaintestMagnitude(), -30, 30)
 	}
 	if err := v.err(); err != nil {
 		return nil, err
 	}
 	c := catalogue.Default()
 	q := catalogue.Query{Text: req.GetText(), Type: req.GetType(), Constellation: req.GetConstellation(),
-		MagLimit: req.GetMagnitudeLimit(), HasMagLimit: req.MagnitudeLimit != nil}
+		MagLimit: req.GetFaintestMagnitude(), HasMagLimit: req.FaintestMagnitude != nil}
 	found, err := c.Search(q)
 	if err != nil {
 		field := "type"

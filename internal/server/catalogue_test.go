@@ -37,7 +37,7 @@ func TestCatalogueService(t *testing.T) {
 	_, err = cat.LookupName(ctx, &nightloomv1.LookupNameRequest{Name: " "})
 	wantCode(t, err, codes.InvalidArgument, "blank name")
 
-	s, err := cat.SearchCatalogue(ctx, &nightloomv1.SearchCatalogueRequest{Type: "globular cluster", Constellation: "Her", MagnitudeLimit: proto.Float64(8), PageSize: 5})
+	s, err := cat.SearchCatalogue(ctx, &nightloomv1.SearchCatalogueRequest{Type: "globular cluster", Constellation: "Her", FaintestMagnitude: proto.Float64(8), PageSize: 5})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -48,10 +48,11 @@ type CatalogueEntry struct {
 	DecDeg float64 `protobuf:"fixed64,8,opt,name=dec_deg,json=decDeg,proto3" json:"dec_deg,omitempty"`
 	// Visual magnitude (total for extended objects); unset when unknown.
 	Magnitude *float64 `protobuf:"fixed64,9,opt,name=magnitude,proto3,oneof" json:"magnitude,omitempty"`
-	// Apparent major axis in arcmin; 0 when unknown.
-	MajorAxisArcmin float64 `protobuf:"fixed64,10,opt,name=major_axis_arcmin,json=majorAxisArcmin,proto3" json:"major_axis_arcmin,omitempty"`
-	// Apparent minor axis in arcmin; 0 when unknown.
-	MinorAxisArcmin float64 `protobuf:"fixed64,11,opt,name=minor_axis_arcmin,json=minorAxisArcmin,proto3" json:"minor_axis_arcmin,omitempty"`
+	// Apparent major axis in deg (the source gives arcmin to 0.1); 0 when
+	// unknown.
+	MajorAxisDeg float64 `protobuf:"fixed64,10,opt,name=major_axis_deg,json=majorAxisDeg,proto3" json:"major_axis_deg,omitempty"`
+	// Apparent minor axis in deg; 0 when unknown.
+	MinorAxisDeg float64 `protobuf:"fixed64,11,opt,name=minor_axis_deg,json=minorAxisDeg,proto3" json:"minor_axis_deg,omitempty"`
 	// IAU abbreviation of the constellation holding the position ("And").
 	Constellation string `protobuf:"bytes,12,opt,name=constellation,proto3" json:"constellation,omitempty"`
 	// IAU name of that constellation ("Andromeda").
@@ -153,16 +154,16 @@ func (x *CatalogueEntry) GetMagnitude() float64 {
 	return 0
 }
 
-func (x *CatalogueEntry) GetMajorAxisArcmin() float64 {
+func (x *CatalogueEntry) GetMajorAxisDeg() float64 {
 	if x != nil {
-		return x.MajorAxisArcmin
+		return x.MajorAxisDeg
 	}
 	return 0
 }
 
-func (x *CatalogueEntry) GetMinorAxisArcmin() float64 {
+func (x *CatalogueEntry) GetMinorAxisDeg() float64 {
 	if x != nil {
-		return x.MinorAxisArcmin
+		return x.MinorAxisDeg
 	}
 	return 0
 }
@@ -291,9 +292,9 @@ type SearchCatalogueRequest struct {
 	// A type code ("pn"), its words ("planetary nebula") or a group:
 	// "galaxy", "cluster", "nebula", "star".
 	Type string `protobuf:"bytes,2,opt,name=type,proto3" json:"type,omitempty"`
-	// Keep entries at least this bright (entries without a magnitude are
-	// dropped), -30..30; unset for no limit.
-	MagnitudeLimit *float64 `protobuf:"fixed64,3,opt,name=magnitude_limit,json=magnitudeLimit,proto3,oneof" json:"magnitude_limit,omitempty"`
+	// Keep entries at least this bright, a visual magnitude (entries without
+	// a magnitude are dropped), -30..30; unset for no limit.
+	FaintestMagnitude *float64 `protobuf:"fixed64,3,opt,name=faintest_magnitude,json=faintestMagnitude,proto3,oneof" json:"faintest_magnitude,omitempty"`
 	// IAU constellation abbreviation or name ("Ori", "Orion").
 	Constellation string `protobuf:"bytes,4,opt,name=constellation,proto3" json:"constellation,omitempty"`
 	// Largest number of entries to return, 0..500; 0 means 50.
@@ -346,9 +347,9 @@ func (x *SearchCatalogueRequest) GetType() string {
 	return ""
 }
 
-func (x *SearchCatalogueRequest) GetMagnitudeLimit() float64 {
-	if x != nil && x.MagnitudeLimit != nil {
-		return *x.MagnitudeLimit
+func (x *SearchCatalogueRequest) GetFaintestMagnitude() float64 {
+	if x != nil && x.FaintestMagnitude != nil {
+		return *x.FaintestMagnitude
 	}
 	return 0
 }
@@ -426,7 +427,7 @@ var File_nightloom_v1_catalogue_proto protoreflect.FileDescriptor
 
 const file_nightloom_v1_catalogue_proto_rawDesc = "" +
 	"\n" +
-	"\x1cnightloom/v1/catalogue.proto\x12\fnightloom.v1\"\xa5\x03\n" +
+	"\x1cnightloom/v1/catalogue.proto\x12\fnightloom.v1\"\x99\x03\n" +
 	"\x0eCatalogueEntry\x12\x0e\n" +
 	"\x02id\x18\x01 \x01(\tR\x02id\x12\x14\n" +
 	"\x05label\x18\x02 \x01(\tR\x05label\x12\x12\n" +
@@ -437,10 +438,10 @@ const file_nightloom_v1_catalogue_proto_rawDesc = "" +
 	"type_words\x18\x06 \x01(\tR\ttypeWords\x12\x15\n" +
 	"\x06ra_deg\x18\a \x01(\x01R\x05raDeg\x12\x17\n" +
 	"\adec_deg\x18\b \x01(\x01R\x06decDeg\x12!\n" +
-	"\tmagnitude\x18\t \x01(\x01H\x00R\tmagnitude\x88\x01\x01\x12*\n" +
-	"\x11major_axis_arcmin\x18\n" +
-	" \x01(\x01R\x0fmajorAxisArcmin\x12*\n" +
-	"\x11minor_axis_arcmin\x18\v \x01(\x01R\x0fminorAxisArcmin\x12$\n" +
+	"\tmagnitude\x18\t \x01(\x01H\x00R\tmagnitude\x88\x01\x01\x12$\n" +
+	"\x0emajor_axis_deg\x18\n" +
+	" \x01(\x01R\fmajorAxisDeg\x12$\n" +
+	"\x0eminor_axis_deg\x18\v \x01(\x01R\fminorAxisDeg\x12$\n" +
 	"\rconstellation\x18\f \x01(\tR\rconstellation\x12-\n" +
 	"\x12constellation_name\x18\r \x01(\tR\x11constellationNameB\f\n" +
 	"\n" +
@@ -449,14 +450,14 @@ const file_nightloom_v1_catalogue_proto_rawDesc = "" +
 	"\x04name\x18\x01 \x01(\tR\x04name\"k\n" +
 	"\x12LookupNameResponse\x122\n" +
 	"\x05entry\x18\x01 \x01(\v2\x1c.nightloom.v1.CatalogueEntryR\x05entry\x12!\n" +
-	"\fmatched_name\x18\x02 \x01(\tR\vmatchedName\"\xc5\x01\n" +
+	"\fmatched_name\x18\x02 \x01(\tR\vmatchedName\"\xce\x01\n" +
 	"\x16SearchCatalogueRequest\x12\x12\n" +
 	"\x04text\x18\x01 \x01(\tR\x04text\x12\x12\n" +
-	"\x04type\x18\x02 \x01(\tR\x04type\x12,\n" +
-	"\x0fmagnitude_limit\x18\x03 \x01(\x01H\x00R\x0emagnitudeLimit\x88\x01\x01\x12$\n" +
+	"\x04type\x18\x02 \x01(\tR\x04type\x122\n" +
+	"\x12faintest_magnitude\x18\x03 \x01(\x01H\x00R\x11faintestMagnitude\x88\x01\x01\x12$\n" +
 	"\rconstellation\x18\x04 \x01(\tR\rconstellation\x12\x1b\n" +
-	"\tpage_size\x18\x05 \x01(\x05R\bpageSizeB\x12\n" +
-	"\x10_magnitude_limit\"v\n" +
+	"\tpage_size\x18\x05 \x01(\x05R\bpageSizeB\x15\n" +
+	"\x13_faintest_magnitude\"v\n" +
 	"\x17SearchCatalogueResponse\x126\n" +
 	"\aentries\x18\x01 \x03(\v2\x1c.nightloom.v1.CatalogueEntryR\aentries\x12#\n" +
 	"\rtotal_matches\x18\x02 \x01(\x05R\ftotalMatches2\xc3\x01\n" +
