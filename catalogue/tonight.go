@@ -125,11 +125,9 @@ func (c *Catalogue) Tonight(q TonightQuery) (TonightResult, error) {
 		res.DarkEnd = t
 		darkSteps++
 		for i, u := range dirs {
-			h := l.GCRSToHorizon.MulVec(u) // aberration (< 21") is below the sampling's need here
+			// Aberration (< 21") is far below what a 10-minute ranking needs.
+			h := l.GCRSToHorizon.MulVec(u)
 			if h[2] < sinMin {
-				if h[2] > math.Sin(accs[i].max) {
-					accs[i].max, accs[i].best = math.Asin(h[2]), t
-				}
 				continue
 			}
 			accs[i].steps++

@@ -54,8 +54,8 @@ func (m *magFlag) Set(s string) error {
 	return nil
 }
 
-// entryJSON is one entry in `catalogue ... --json`: the CatalogueEntry
-// message of the API in its protobuf JSON mapping.
+// printEntryJSON prints entries as the API's SearchCatalogueResponse in its
+// protobuf JSON mapping.
 func printEntryJSON(w io.Writer, c *catalogue.Catalogue, es []*catalogue.Entry) error {
 	out := &pb.SearchCatalogueResponse{TotalMatches: int32(len(es))}
 	for _, e := range es {
