@@ -634,6 +634,9 @@ func printPlan(w io.Writer, p *pb.Plan, pc *planContext, after *time.Time) error
 		if cs.Magnitude != nil {
 			notes = append(notes, fmt.Sprintf("mag %.1f", cs.GetMagnitude()))
 		}
+		if con := pointingConstellation(x.GetPointing()); con != "" {
+			notes = append(notes, "in "+con)
+		}
 		side := "-"
 		switch x.GetPointing().GetMeridianSide() {
 		case pb.MeridianSide_MERIDIAN_SIDE_EAST:

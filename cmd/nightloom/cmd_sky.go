@@ -86,7 +86,7 @@ func runEphemeris(args []string, stdout, stderr io.Writer) error {
 	}
 	c := newClock(sr.GetSite().GetTimeZone())
 	tw := newTable(stdout)
-	fmt.Fprintf(tw, "local (%s)\tUTC\tRA (ICRS)\tDec (ICRS)\talt\taz\tairmass\tHA\tmoon sep\tsun elong\tsky\tsun alt\tsky state\tr AU\tdelta AU\tmag\trate \"/min\n", c.loc)
+	fmt.Fprintf(tw, "local (%s)\tUTC\tRA (ICRS)\tDec (ICRS)\tcon\talt\taz\tairmass\tHA\tmoon sep\tsun elong\tsky\tsun alt\tsky state\tr AU\tdelta AU\tmag\trate \"/min\n", c.loc)
 	for _, row := range resp.GetRows() {
 		p := row.GetPointing()
 		am, sky := "-", "-"
@@ -109,15 +109,15 @@ func runEphemeris(args []string, stdout, stderr io.Writer) error {
 			rate = fmt.Sprintf("%+.2f %+.2f", o.GetRate().GetRaCosDecArcsecPerMin(), o.GetRate().GetDecArcsecPerMin())
 		}
 		t := row.GetTime().AsTime()
-		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%.2f\t%s\t%+.2f\t%.1f\t%.1f\t%s\t%+.1f\t%s\t%s\t%s\t%s\t%s\n",
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%s\t%.2f\t%s\t%+.2f\t%.1f\t%.1f\t%s\t%+.1f\t%s\t%s\t%s\t%s\t%s\n",
 			t.In(c.loc).Format("2006-01-02 15:04"), t.UTC().Format("15:04"), hms(p.GetRaIcrsDeg()), dms(p.GetDecIcrsDeg()),
-			alt, p.GetAzimuthDeg(), am, p.GetHourAngleDeg(), row.GetMoonSeparationDeg(), row.GetSolarElongationDeg(), sky,
+			row.GetConstellation(), alt, p.GetAzimuthDeg(), am, p.GetHourAngleDeg(), row.GetMoonSeparationDeg(), row.GetSolarElongationDeg(), sky,
 			row.GetSunAltitudeDeg(), enumName(row.GetDarkness().String(), "DARKNESS_LEVEL_"), r, d, m, rate)
 	}
 	if err := tw.Flush(); err != nil {
 		return err
 	}
-	fmt.Fprintln(stdout, "angles in deg; * marks rows behind the local horizon profile; sky in V mag/arcsec2")
+	fmt.Fprintln(stdout, "angles in deg; * marks rows behind the local horizon profile; sky in V mag/arcsec2; con: IAU constellation")
 	return nil
 }
 

@@ -31,7 +31,7 @@ func runTargetCreate(args []string, stdout, stderr io.Writer) error {
 	r := newRemote("target create", stderr)
 	var files multiFlag
 	r.fs.Var(&files, "file", "CreateTargetRequest as protobuf JSON (repeatable; more files may follow the flags); with --json one CreateTargetResponse is printed per file")
-	name := r.fs.String("name", "", "name of a fixed target given by flags")
+	name := r.fs.String("name", "", "name of a fixed target: alone, a catalogue name (M 31, NGC 224, Vega) resolved by the daemon; with --ra/--dec, any name")
 	ra := r.fs.String("ra", "", "ICRS right ascension of a fixed target, deg [0, 360)")
 	dec := r.fs.String("dec", "", "ICRS declination of a fixed target, deg [-90, 90]")
 	if err := parseFlagsFiles(r.fs, args, &files); err != nil {
@@ -39,7 +39,8 @@ func runTargetCreate(args []string, stdout, stderr io.Writer) error {
 	}
 	var reqs []*pb.CreateTargetRequest
 	var from []string
-	if *name != "" || *ra != "" || *dec != "" {
+	byName := *name != "" && *ra == "" && *dec == "" // resolved in the catalogue below
+	if (*name != "" || *ra != "" || *dec != "") && !byName {
 		if len(files) > 0 {
 			return flagError("file", "give either files or --name/--ra/--dec, not both")
 		}
@@ -66,14 +67,24 @@ func runTargetCreate(args []string, stdout, stderr io.Writer) error {
 		reqs = append(reqs, req)
 		from = append(from, f)
 	}
-	if len(reqs) == 0 {
-		return flagError("file", "required: CreateTargetRequest JSON files (see testdata/demo/targets/), or --name/--ra/--dec")
+	if byName && len(files) > 0 {
+		return flagError("file", "give either files or --name, not both")
+	}
+	if len(reqs) == 0 && !byName {
+		return flagError("file", "required: CreateTargetRequest JSON files (see testdata/demo/targets/), --name (a catalogue name) or --name/--ra/--dec")
 	}
 	a, err := r.conn.dial(stderr)
 	if err != nil {
 		return err
 	}
 	defer a.Close()
+	if byName {
+		req, err := lookupForCreate(a, *name, stderr)
+		if err != nil {
+			return err
+		}
+		reqs, from = append(reqs, req), append(from, "--name")
+	}
 	var created []*pb.Target
 	p := startProgress(stderr, "creating targets")
 	for i, req := range reqs {
@@ -277,6 +288,9 @@ func describePosition(t *pb.Target) (kind, where string) {
 		where = fmt.Sprintf("RA %s  Dec %s  (%.4f, %+.4f deg ICRS)", hms(f.GetRaDeg()), dms(f.GetDecDeg()), f.GetRaDeg(), f.GetDecDeg())
 		if pm := f.GetProperMotion(); pm != nil {
 			where += fmt.Sprintf(", pm %.1f/%.1f mas/yr at %.1f", pm.GetRaCosDecMasPerYr(), pm.GetDecMasPerYr(), pm.GetEpochJulianYear())
+		}
+		if id := f.GetCatalogueId(); id != "" {
+			where += ", catalogue " + id
 		}
 		return "fixed", where
 	case *pb.Target_Orbit:

@@ -95,6 +95,10 @@ func demo(stdout, stderr io.Writer, outDir string, verbose bool, budget time.Dur
 	if err := printScenario(stdout, sc); err != nil {
 		return err
 	}
+	fmt.Fprintf(stdout, "   targets created by catalogue name (testdata/demo/targets-by-name.txt, as `target create --name`):\n")
+	for _, s := range sc.byName {
+		fmt.Fprintf(stdout, "     %s\n", s)
+	}
 
 	// 2. The plan for one night.
 	req := &pb.MakePlanRequest{}
@@ -209,6 +213,7 @@ type demoScenario struct {
 	site    *pb.Site
 	targets []*pb.Target
 	blocks  []*pb.Block
+	byName  []string // what the catalogue lookups said
 }
 
 // readDemoRequest parses one embedded scenario file.
@@ -253,6 +258,30 @@ func loadDemoScenario(a *api, stderr io.Writer) (*demoScenario, error) {
 			return nil, fmt.Errorf("testdata/demo/targets/%s: %w", path.Base(f), a.callErr("CreateTarget", err))
 		}
 		sc.targets = append(sc.targets, tr.GetTarget())
+	}
+	// Real objects beside the invented ones, by catalogue name.
+	names, err := demoData.ReadFile("demodata/targets-by-name.txt")
+	if err != nil {
+		return nil, err
+	}
+	for _, line := range strings.Split(string(names), "\n") {
+		name := strings.TrimSpace(line)
+		if name == "" || strings.HasPrefix(name, "#") {
+			continue
+		}
+		var said strings.Builder
+		treq, err := lookupForCreate(a, name, &said)
+		if err != nil {
+			return nil, fmt.Errorf("testdata/demo/targets-by-name.txt: %w", err)
+		}
+		ctx, cancel := a.ctx()
+		tr, err := a.targets.CreateTarget(ctx, treq)
+		cancel()
+		if err != nil {
+			return nil, fmt.Errorf("testdata/demo/targets-by-name.txt: %w", a.callErr("CreateTarget", err))
+		}
+		sc.targets = append(sc.targets, tr.GetTarget())
+		sc.byName = append(sc.byName, strings.TrimSpace(said.String()))
 	}
 	breq := &pb.QueueBlocksRequest{}
 	if err := readDemoRequest("blocks.json", breq); err != nil {

@@ -189,6 +189,14 @@ func loadScenario(t *testing.T, d *testDaemon) (*pb.Site, []*pb.Target, []*pb.Bl
 	for _, r := range trs {
 		ts = append(ts, r.GetTarget())
 	}
+	// The real objects of the scenario, by catalogue name (issue 19).
+	for _, line := range strings.Split(mustRead(t, demoFile("targets-by-name.txt")), "\n") {
+		if name := strings.TrimSpace(line); name != "" && !strings.HasPrefix(name, "#") {
+			var cr pb.CreateTargetResponse
+			parse(t, d.cli(t, "target", "create", "--name", name, "--json").ok(t, "target create --name "+name).stdout, &cr)
+			ts = append(ts, cr.GetTarget())
+		}
+	}
 	var qr pb.QueueBlocksResponse
 	parse(t, d.cli(t, "block", "queue", "--file", demoFile("blocks.json"), "--site", sr.GetSite().GetId(), "--json").ok(t, "block queue").stdout, &qr)
 	return sr.GetSite(), ts, qr.GetBlocks()
@@ -209,8 +217,8 @@ func TestClientAgainstDaemon(t *testing.T) {
 	if p := site.GetPressureHpa(); p < 930 || p > 943 {
 		t.Errorf("pressure %v hPa, want the ISA value at 650 m, about 937", p)
 	}
-	if len(targets) != 12 || len(blocks) != 19 {
-		t.Fatalf("%d targets and %d blocks stored, want 12 and 19", len(targets), len(blocks))
+	if len(targets) != 14 || len(blocks) != 21 {
+		t.Fatalf("%d targets and %d blocks stored, want 14 and 21", len(targets), len(blocks))
 	}
 	ids := map[string]string{}
 	for _, tg := range targets {
@@ -237,8 +245,8 @@ func TestClientAgainstDaemon(t *testing.T) {
 		t.Errorf("target list:\n%s", out)
 	}
 	out = d.cli(t, "block", "list", "--site", site.GetId(), "--state", "open").ok(t, "block list").stdout
-	if n := strings.Count(out, "\n"); n != 20 || !strings.Contains(out, "every 2h00m ±15m") {
-		t.Errorf("block list: %d lines, want a header and 19 blocks\n%s", n, out)
+	if n := strings.Count(out, "\n"); n != 22 || !strings.Contains(out, "every 2h00m ±15m") {
+		t.Errorf("block list: %d lines, want a header and 21 blocks\n%s", n, out)
 	}
 
 	// A plan, as JSON and as a table.
@@ -529,7 +537,7 @@ func TestDemo(t *testing.T) {
 	began := time.Now()
 	r := runBinary(t, nil, "demo", "--out", out).ok(t, "demo")
 	elapsed := time.Since(began)
-	for _, want := range []string{"1. Scenario", "12 targets and 19 blocks queued", "2. Plan for the night of 2027-01-14",
+	for _, want := range []string{"1. Scenario", "14 targets and 21 blocks queued", "\"M 42\" is M 42 = NGC 1976 (Orion Nebula)", "2. Plan for the night of 2027-01-14",
 		"unplaced blocks", "below horizon profile", "Comet NL-1 (invented)", "3. Chart of the plan",
 		"4. Interruption: clouds close the roof", "progress reports:", "5. Replanned from", "changed", "closure "} {
 		if !strings.Contains(r.stdout, want) {

@@ -7,6 +7,7 @@
 //	nightloom sky   --site LAT,LON[,ELEV_M] --at RFC3339 [--ra DEG --dec DEG | --orbit FILE.json] [--chart FILE.png] [--json]
 //	nightloom night --site LAT,LON[,ELEV_M] --date YYYY-MM-DD [--tz ZONE] [--json]
 //	nightloom demo  [--out DIR]
+//	nightloom catalogue lookup|search|tonight|finder|constellation
 //
 // Against a daemon (--server host:port, --token, --tls-ca, or the
 // environment variables NIGHTLOOM_SERVER and NIGHTLOOM_TOKEN):
@@ -63,6 +64,7 @@ func commands() []command {
 	return []command{
 		{name: "sky", summary: "positions of the Sun, the Moon and a target from a site at an instant (offline)", run: runSky},
 		{name: "night", summary: "sunset, twilights, sunrise, moonrise and moonset for a site and date (offline)", run: runNight},
+		{name: "catalogue", summary: "the bundled catalogue: lookup, search, tonight, finder, constellation (offline)", sub: catalogueCommands()},
 		{name: "demo", summary: "run a daemon in-process, plan an invented night, chart it, interrupt it and replan", run: runDemo},
 		{name: "site", summary: "telescopes at places: create, get, list, update, delete", sub: siteCommands()},
 		{name: "target", summary: "fixed and orbit targets: create, get, list, update, delete", sub: targetCommands()},

@@ -14,6 +14,7 @@ import (
 	"text/tabwriter"
 	"time"
 
+	"github.com/nightloom/nightloom/catalogue"
 	"github.com/nightloom/nightloom/ephem"
 )
 
@@ -142,6 +143,12 @@ type skyTarget struct {
 	DeltaAU           *float64 `json:"delta_au,omitempty"`
 	RAU               *float64 `json:"r_au,omitempty"`
 	Magnitude         *float64 `json:"magnitude,omitempty"`
+	// Constellation is the IAU abbreviation of the constellation holding
+	// the target's astrometric (ICRS) place, by the 1930 boundaries
+	// referred to B1875 (package catalogue). Added by issue 19.
+	Constellation string `json:"constellation"`
+	// CatalogueID is the catalogue entry given by --name, else omitted.
+	CatalogueID string `json:"catalogue_id,omitempty"`
 }
 
 // skyResult is the `nightloom sky --json` contract (field names fixed by
@@ -171,10 +178,13 @@ func computeSky(o *ephem.Observer, at time.Time, star *ephem.Star, orbit *ephem.
 	var t skyTarget
 	switch {
 	case star != nil:
-		p = l.StarPlace(star.Direction(snap.TT))
+		u := star.Direction(snap.TT)
+		p = l.StarPlace(u)
+		t.Constellation = catalogue.Default().ConstellationOfVec(u).Abbr
 	case orbit != nil:
 		var geo ephem.View
 		p, _, geo = l.OrbitPlace(orbit)
+		t.Constellation = catalogue.Default().ConstellationOfVec(geo.Astrometric).Abbr
 		ra, dec, _ := ephem.VecToSpherical(geo.Astrometric)
 		t.AstrometricRADeg, t.AstrometricDecDeg = ptr(deg(ra)), ptr(deg(dec))
 		t.DeltaAU, t.RAU = ptr(geo.DeltaAU), ptr(geo.RAU)
@@ -201,6 +211,7 @@ func runSky(args []string, stdout, stderr io.Writer) error {
 	ra := fs.String("ra", "", "fixed target right ascension, ICRS degrees")
 	dec := fs.String("dec", "", "fixed target declination, ICRS degrees")
 	orbitPath := fs.String("orbit", "", "orbit target: JSON file with q_au, e, i_deg, node_deg, peri_deg, perihelion_tt, m1, k1")
+	name := fs.String("name", "", "fixed target from the bundled catalogue (M 31, NGC 224, Vega), instead of --ra/--dec")
 	pressure := fs.Float64("pressure-hpa", 1010, "air pressure for refraction, hPa (0 = geometric altitudes)")
 	temp := fs.Float64("temperature-c", 10, "air temperature for refraction, C")
 	asJSON := fs.Bool("json", false, "print one JSON object")
@@ -236,6 +247,19 @@ func runSky(args []string, stdout, stderr io.Writer) error {
 	}
 	var star *ephem.Star
 	var orbit *ephem.Conic
+	var catID string
+	if *name != "" {
+		if *ra != "" || *dec != "" || *orbitPath != "" {
+			return flagError("name", "give one of --name, --ra/--dec or --orbit")
+		}
+		res, err := resolveFlag(catalogue.Default(), "name", *name)
+		if err != nil {
+			return err
+		}
+		catID = res.Entry.ID
+		fmt.Fprintf(stderr, "%q is %s\n", *name, res.Entry.Label())
+		*ra, *dec = strconv.FormatFloat(res.Entry.RADeg, 'f', -1, 64), strconv.FormatFloat(res.Entry.DecDeg, 'f', -1, 64)
+	}
 	switch {
 	case (*ra == "") != (*dec == ""):
 		if *ra == "" {
@@ -264,6 +288,9 @@ func runSky(args []string, stdout, stderr io.Writer) error {
 		}
 	}
 	r := computeSky(&o, when, star, orbit)
+	if r.Target != nil {
+		r.Target.CatalogueID = catID
+	}
 	if *chart != "" {
 		if err := chartSky(*chart, *tz, &o, when, star, orbit, *ra, *dec, *orbitPath); err != nil {
 			return err
@@ -296,6 +323,9 @@ func printSky(w io.Writer, r skyResult) error {
 		}
 		if t.Magnitude != nil {
 			notes += fmt.Sprintf(", mag %.2f", *t.Magnitude)
+		}
+		if t.Constellation != "" {
+			notes += ", in " + t.Constellation
 		}
 		fmt.Fprintf(tw, "target\t%.5f\t%+.5f\t%+.4f\t%.4f\t%s\n", t.RADeg, t.DecDeg, t.AltDeg, t.AzDeg, notes)
 	}

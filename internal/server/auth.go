@@ -87,6 +87,9 @@ var methodRoles = map[string][]Role{
 	nightloomv1.SkyService_Ephemeris_FullMethodName:  readers,
 	nightloomv1.SkyService_Night_FullMethodName:      readers,
 	nightloomv1.SkyService_Visibility_FullMethodName: readers,
+
+	nightloomv1.CatalogueService_LookupName_FullMethodName:      readers,
+	nightloomv1.CatalogueService_SearchCatalogue_FullMethodName: readers,
 }
 
 // MethodRoles returns the roles allowed to call a full method name, and

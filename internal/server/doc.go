@@ -34,6 +34,7 @@
 // token nor its hash is logged (logs name the token's id). The roles:
 //
 //   - viewer: Get/List of sites, targets, blocks and plans; SkyService;
+//     CatalogueService;
 //     NextAssignment and WatchPlans (both read-only);
 //   - operator: what viewer may, plus QueueBlocks, WithdrawBlock,
 //     ReportProgress, MakePlan and Replan;

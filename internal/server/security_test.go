@@ -271,6 +271,14 @@ func validCalls(e *env, f fixture, plan *nightloomv1.Plan) map[string]validCall 
 			_, err := e.sky.Night(ctx, &nightloomv1.NightRequest{SiteId: site, Date: testNight})
 			return err
 		}),
+		nightloomv1.CatalogueService_LookupName_FullMethodName: now(func(ctx context.Context) error {
+			_, err := nightloomv1.NewCatalogueServiceClient(e.conn).LookupName(ctx, &nightloomv1.LookupNameRequest{Name: "M 31"})
+			return err
+		}),
+		nightloomv1.CatalogueService_SearchCatalogue_FullMethodName: now(func(ctx context.Context) error {
+			_, err := nightloomv1.NewCatalogueServiceClient(e.conn).SearchCatalogue(ctx, &nightloomv1.SearchCatalogueRequest{Type: "galaxy", PageSize: 3})
+			return err
+		}),
 		nightloomv1.SkyService_Visibility_FullMethodName: now(func(ctx context.Context) error {
 			_, err := e.sky.Visibility(ctx, &nightloomv1.VisibilityRequest{SiteId: site, Subject: &nightloomv1.VisibilityRequest_TargetId{TargetId: tgt},
 				Span: &nightloomv1.VisibilityRequest_Night{Night: testNight}})
@@ -289,30 +297,32 @@ var specRoles = func() map[string][]Role {
 	v, o, tel, a := RoleViewer, RoleOperator, RoleTelescope, RoleAdmin
 	read, queueRead, plan, report, admin := []Role{v, o, a}, []Role{v, o, tel, a}, []Role{o, a}, []Role{tel, o, a}, []Role{a}
 	return map[string][]Role{
-		nightloomv1.SiteService_CreateSite_FullMethodName:      admin,
-		nightloomv1.SiteService_GetSite_FullMethodName:         read,
-		nightloomv1.SiteService_ListSites_FullMethodName:       read,
-		nightloomv1.SiteService_UpdateSite_FullMethodName:      admin,
-		nightloomv1.SiteService_DeleteSite_FullMethodName:      admin,
-		nightloomv1.TargetService_CreateTarget_FullMethodName:  admin,
-		nightloomv1.TargetService_GetTarget_FullMethodName:     read,
-		nightloomv1.TargetService_ListTargets_FullMethodName:   read,
-		nightloomv1.TargetService_UpdateTarget_FullMethodName:  admin,
-		nightloomv1.TargetService_DeleteTarget_FullMethodName:  admin,
-		nightloomv1.QueueService_QueueBlocks_FullMethodName:    plan,
-		nightloomv1.QueueService_GetBlock_FullMethodName:       queueRead,
-		nightloomv1.QueueService_ListBlocks_FullMethodName:     queueRead,
-		nightloomv1.QueueService_WithdrawBlock_FullMethodName:  plan,
-		nightloomv1.QueueService_ReportProgress_FullMethodName: report,
-		nightloomv1.PlanService_MakePlan_FullMethodName:        plan,
-		nightloomv1.PlanService_GetPlan_FullMethodName:         queueRead,
-		nightloomv1.PlanService_ListPlans_FullMethodName:       queueRead,
-		nightloomv1.PlanService_Replan_FullMethodName:          plan,
-		nightloomv1.PlanService_NextAssignment_FullMethodName:  queueRead,
-		nightloomv1.PlanService_WatchPlans_FullMethodName:      queueRead,
-		nightloomv1.SkyService_Ephemeris_FullMethodName:        read,
-		nightloomv1.SkyService_Night_FullMethodName:            read,
-		nightloomv1.SkyService_Visibility_FullMethodName:       read,
+		nightloomv1.SiteService_CreateSite_FullMethodName:           admin,
+		nightloomv1.SiteService_GetSite_FullMethodName:              read,
+		nightloomv1.SiteService_ListSites_FullMethodName:            read,
+		nightloomv1.SiteService_UpdateSite_FullMethodName:           admin,
+		nightloomv1.SiteService_DeleteSite_FullMethodName:           admin,
+		nightloomv1.TargetService_CreateTarget_FullMethodName:       admin,
+		nightloomv1.TargetService_GetTarget_FullMethodName:          read,
+		nightloomv1.TargetService_ListTargets_FullMethodName:        read,
+		nightloomv1.TargetService_UpdateTarget_FullMethodName:       admin,
+		nightloomv1.TargetService_DeleteTarget_FullMethodName:       admin,
+		nightloomv1.QueueService_QueueBlocks_FullMethodName:         plan,
+		nightloomv1.QueueService_GetBlock_FullMethodName:            queueRead,
+		nightloomv1.QueueService_ListBlocks_FullMethodName:          queueRead,
+		nightloomv1.QueueService_WithdrawBlock_FullMethodName:       plan,
+		nightloomv1.QueueService_ReportProgress_FullMethodName:      report,
+		nightloomv1.PlanService_MakePlan_FullMethodName:             plan,
+		nightloomv1.PlanService_GetPlan_FullMethodName:              queueRead,
+		nightloomv1.PlanService_ListPlans_FullMethodName:            queueRead,
+		nightloomv1.PlanService_Replan_FullMethodName:               plan,
+		nightloomv1.PlanService_NextAssignment_FullMethodName:       queueRead,
+		nightloomv1.PlanService_WatchPlans_FullMethodName:           queueRead,
+		nightloomv1.SkyService_Ephemeris_FullMethodName:             read,
+		nightloomv1.SkyService_Night_FullMethodName:                 read,
+		nightloomv1.SkyService_Visibility_FullMethodName:            read,
+		nightloomv1.CatalogueService_LookupName_FullMethodName:      read,
+		nightloomv1.CatalogueService_SearchCatalogue_FullMethodName: read,
 	}
 }()
 

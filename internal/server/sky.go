@@ -92,6 +92,7 @@ func ephemerisRow(site *siteModel, target *constraints.Target, t time.Time) *nig
 		MoonSeparationDeg: o.MoonSepDeg, SolarElongationDeg: o.SunSepDeg, SunAltitudeDeg: o.SunAltDeg,
 		Darkness: darknessLevel(o.SunAltDeg), MoonAltitudeDeg: o.MoonAltDeg, MoonIllumination: o.MoonIllum,
 	}
+	row.Constellation = pointingConstellation(row.Pointing)
 	if o.AltDeg >= 0 {
 		if !math.IsInf(o.Airmass, 0) {
 			row.Airmass = proto.Float64(o.Airmass)

@@ -35,6 +35,7 @@ func checkTarget(v *violations, path string, t *nightloomv1.Target) *constraints
 			v.add(path+".fixed", "is required")
 			break
 		}
+		checkCatalogueID(v, path+".fixed", f)
 		halfOpen(v, path+".fixed.ra_deg", f.GetRaDeg(), 0, 360)
 		rangeCheck(v, path+".fixed.dec_deg", f.GetDecDeg(), -90, 90)
 		if pm := f.GetProperMotion(); pm != nil {

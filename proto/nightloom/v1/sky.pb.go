@@ -150,7 +150,11 @@ type EphemerisRow struct {
 	// Illuminated fraction of the Moon's disc, geocentric, 0..1.
 	MoonIllumination float64 `protobuf:"fixed64,11,opt,name=moon_illumination,json=moonIllumination,proto3" json:"moon_illumination,omitempty"`
 	// Set for orbit targets only.
-	Orbit         *OrbitState `protobuf:"bytes,12,opt,name=orbit,proto3" json:"orbit,omitempty"`
+	Orbit *OrbitState `protobuf:"bytes,12,opt,name=orbit,proto3" json:"orbit,omitempty"`
+	// IAU abbreviation of the constellation holding the target's astrometric
+	// place (pointing.ra_icrs_deg, dec_icrs_deg), by the 1930 boundaries
+	// referred to B1875 ("Ori").
+	Constellation string `protobuf:"bytes,13,opt,name=constellation,proto3" json:"constellation,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -267,6 +271,13 @@ func (x *EphemerisRow) GetOrbit() *OrbitState {
 		return x.Orbit
 	}
 	return nil
+}
+
+func (x *EphemerisRow) GetConstellation() string {
+	if x != nil {
+		return x.Constellation
+	}
+	return ""
 }
 
 // Request of Ephemeris.
@@ -1115,7 +1126,7 @@ const file_nightloom_v1_sky_proto_rawDesc = "" +
 	"\x04rate\x18\x06 \x01(\v2\x1d.nightloom.v1.NonSiderealRateR\x04rateB\f\n" +
 	"\n" +
 	"_magnitudeB\x15\n" +
-	"\x13_observed_magnitude\"\x85\x05\n" +
+	"\x13_observed_magnitude\"\xab\x05\n" +
 	"\fEphemerisRow\x12.\n" +
 	"\x04time\x18\x01 \x01(\v2\x1a.google.protobuf.TimestampR\x04time\x122\n" +
 	"\bpointing\x18\x02 \x01(\v2\x16.nightloom.v1.PointingR\bpointing\x12\x1d\n" +
@@ -1129,7 +1140,8 @@ const file_nightloom_v1_sky_proto_rawDesc = "" +
 	"\x11moon_altitude_deg\x18\n" +
 	" \x01(\x01R\x0fmoonAltitudeDeg\x12+\n" +
 	"\x11moon_illumination\x18\v \x01(\x01R\x10moonIllumination\x12.\n" +
-	"\x05orbit\x18\f \x01(\v2\x18.nightloom.v1.OrbitStateR\x05orbitB\n" +
+	"\x05orbit\x18\f \x01(\v2\x18.nightloom.v1.OrbitStateR\x05orbit\x12$\n" +
+	"\rconstellation\x18\r \x01(\tR\rconstellationB\n" +
 	"\n" +
 	"\b_airmassB\x1f\n" +
 	"\x1d_sky_brightness_v_mag_arcsec2\"\xec\x01\n" +

@@ -103,7 +103,15 @@ type FixedPosition struct {
 	DecDeg float64 `protobuf:"fixed64,2,opt,name=dec_deg,json=decDeg,proto3" json:"dec_deg,omitempty"`
 	// Proper motion; unset for none (the place is then taken as valid at
 	// every date).
-	ProperMotion  *ProperMotion `protobuf:"bytes,3,opt,name=proper_motion,json=properMotion,proto3" json:"proper_motion,omitempty"`
+	ProperMotion *ProperMotion `protobuf:"bytes,3,opt,name=proper_motion,json=properMotion,proto3" json:"proper_motion,omitempty"`
+	// The bundled catalogue's entry this place comes from (see
+	// CatalogueService.LookupName), or empty. When set on create or update it
+	// must name exactly one entry (any spelling LookupName accepts); the server
+	// stores the entry's primary designation ("NGC 224" for "M 31") and, when
+	// ra_deg and dec_deg are both 0, fills them from the entry; otherwise they
+	// must lie within 1 deg of it. Errors: INVALID_ARGUMENT naming
+	// "target.fixed.catalogue_id".
+	CatalogueId   string `protobuf:"bytes,4,opt,name=catalogue_id,json=catalogueId,proto3" json:"catalogue_id,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -157,6 +165,13 @@ func (x *FixedPosition) GetProperMotion() *ProperMotion {
 		return x.ProperMotion
 	}
 	return nil
+}
+
+func (x *FixedPosition) GetCatalogueId() string {
+	if x != nil {
+		return x.CatalogueId
+	}
+	return ""
 }
 
 // Total-magnitude law of a comet: m = M1 + 5 log10(delta) + K1 log10(r), with
@@ -1035,11 +1050,12 @@ const file_nightloom_v1_target_proto_rawDesc = "" +
 	"\fProperMotion\x12/\n" +
 	"\x15ra_cos_dec_mas_per_yr\x18\x01 \x01(\x01R\x10raCosDecMasPerYr\x12#\n" +
 	"\x0edec_mas_per_yr\x18\x02 \x01(\x01R\vdecMasPerYr\x12*\n" +
-	"\x11epoch_julian_year\x18\x03 \x01(\x01R\x0fepochJulianYear\"\x80\x01\n" +
+	"\x11epoch_julian_year\x18\x03 \x01(\x01R\x0fepochJulianYear\"\xa3\x01\n" +
 	"\rFixedPosition\x12\x15\n" +
 	"\x06ra_deg\x18\x01 \x01(\x01R\x05raDeg\x12\x17\n" +
 	"\adec_deg\x18\x02 \x01(\x01R\x06decDeg\x12?\n" +
-	"\rproper_motion\x18\x03 \x01(\v2\x1a.nightloom.v1.ProperMotionR\fproperMotion\"0\n" +
+	"\rproper_motion\x18\x03 \x01(\v2\x1a.nightloom.v1.ProperMotionR\fproperMotion\x12!\n" +
+	"\fcatalogue_id\x18\x04 \x01(\tR\vcatalogueId\"0\n" +
 	"\x0eCometMagnitude\x12\x0e\n" +
 	"\x02m1\x18\x01 \x01(\x01R\x02m1\x12\x0e\n" +
 	"\x02k1\x18\x02 \x01(\x01R\x02k1\"/\n" +
