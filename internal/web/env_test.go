@@ -188,6 +188,24 @@ func (e *env) loadDemo(targetNames map[string]string) {
 		}
 		ids["@"+name] = tr.GetTarget().GetId()
 	}
+	// The demo's real objects, created by catalogue name (the server
+	// resolves catalogue_id and fills the place).
+	names, err := os.ReadFile(filepath.Join("..", "..", "testdata", "demo", "targets-by-name.txt"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, line := range strings.Split(string(names), "\n") {
+		name := strings.TrimSpace(line)
+		if name == "" || strings.HasPrefix(name, "#") {
+			continue
+		}
+		tr, err := pb.NewTargetServiceClient(e.conn).CreateTarget(ctx, &pb.CreateTargetRequest{Target: &pb.Target{Name: name,
+			Position: &pb.Target_Fixed{Fixed: &pb.FixedPosition{CatalogueId: name}}}})
+		if err != nil {
+			t.Fatal(err)
+		}
+		ids["@"+name] = tr.GetTarget().GetId()
+	}
 	breq := &pb.QueueBlocksRequest{}
 	readDemo(t, "blocks.json", breq)
 	for _, b := range breq.GetBlocks() {
