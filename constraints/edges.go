@@ -62,17 +62,20 @@ func (g *Grid) Intervals(tr *Track, req Request, v *Visibility) []Interval {
 		// The window's first and last samples are observable.
 		a, ta := float64(w.Start)*h, c.sample(w.Start)
 		if w.Start > 0 {
-			a, ta = c.bisect(a, ta, a-h)
+			tb := c.sample(w.Start - 1)
+			a, ta = c.bisect(a, ta, a-h, &tb)
 		}
 		var b float64
 		var tb taus
 		if w.End < g.N {
-			b, tb = c.bisect(float64(w.End-1)*h, c.sample(w.End-1), float64(w.End)*h)
+			bs := c.sample(w.End)
+			b, tb = c.bisect(float64(w.End-1)*h, c.sample(w.End-1), float64(w.End)*h, &bs)
 		} else {
 			b = float64(g.N) * h
-			var r Reason
-			if r, tb = c.point(b); r != OK {
-				b, tb = c.bisect(float64(w.End-1)*h, c.sample(w.End-1), b)
+			r, tend := c.point(b)
+			tb = tend
+			if r != OK {
+				b, tb = c.bisect(float64(w.End-1)*h, c.sample(w.End-1), b, &tend)
 			}
 		}
 		// Checkpoints: a, the samples strictly inside (a, b), b.
@@ -245,14 +248,14 @@ func (h *Horizon) maxSlope() float64 {
 func (c *certifier) sample(i int) taus { return c.taus(c.g, c.tr, i, c.g.Time(i)) }
 
 // point evaluates the request directly at x seconds from the grid's start
-// (CheckAt): the reason and, when observable, the slack.
+// (CheckAt): the reason and the slack (negative where a constraint fails).
 func (c *certifier) point(x float64) (Reason, taus) {
 	t := c.g.at(x)
 	r, pg, ptr := c.g.checkAt(c.tr.Target, c.req, t)
-	if r != OK {
+	if pg == nil {
 		return r, taus{}
 	}
-	return OK, c.taus(pg, ptr, 0, t)
+	return r, c.taus(pg, ptr, 0, t)
 }
 
 // CheckAt evaluates a request at one instant directly, on a one-step grid
@@ -276,9 +279,40 @@ func (g *Grid) checkAt(target *Target, req Request, t time.Time) (Reason, *Grid,
 }
 
 // bisect narrows [ok, bad] (either order) to EdgeResolution around a
-// crossing and returns the observable end with its slack.
-func (c *certifier) bisect(ok float64, tok taus, bad float64) (float64, taus) {
+// crossing and returns the observable end with its slack. With the slack
+// at bad (tbad, nil if unknown) it first tries where the failing
+// constraint's slack, interpolated linearly, crosses zero, and brackets
+// that guess by EdgeResolution (regula falsi, one step); bisection
+// finishes when the guess misses.
+func (c *certifier) bisect(ok float64, tok taus, bad float64, tbad *taus) (float64, taus) {
 	res := EdgeResolution.Seconds()
+	if tbad != nil && math.Abs(bad-ok) > 2*res {
+		f := math.Inf(1)
+		for k := tauDark; k < numTau; k++ { // date and clock slacks are distances, not signed
+			a, b := tok.t[k], tbad.t[k]
+			if b < 0 && a >= 0 && !math.IsInf(a, 0) && !math.IsInf(b, 0) {
+				f = math.Min(f, a/(a-b))
+			}
+		}
+		if f < 1 {
+			dir := math.Copysign(1, bad-ok)
+			est := ok + f*(bad-ok)
+			p1 := est - dir*res/2
+			if (p1-ok)*dir > 0 && (bad-p1)*dir > res {
+				if r, t := c.point(p1); r == OK {
+					ok, tok = p1, t
+					p2 := p1 + dir*res
+					if r2, t2 := c.point(p2); r2 != OK {
+						bad = p2
+					} else {
+						ok, tok = p2, t2
+					}
+				} else {
+					bad = p1
+				}
+			}
+		}
+	}
 	for math.Abs(bad-ok) > res {
 		m := (ok + bad) / 2
 		if r, t := c.point(m); r == OK {
@@ -333,8 +367,8 @@ func (c *certifier) segment(xs []float64, a float64, ta taus, b float64, tb taus
 		xs = c.segment(xs, a, ta, m, tm)
 		return c.segment(xs, m, tm, b, tb)
 	}
-	e1, t1 := c.bisect(a, ta, m)
-	s2, t2 := c.bisect(b, tb, m)
+	e1, t1 := c.bisect(a, ta, m, &tm)
+	s2, t2 := c.bisect(b, tb, m, &tm)
 	xs = c.segment(xs, a, ta, e1, t1)
 	return c.segment(xs, s2, t2, b, tb)
 }

@@ -255,7 +255,8 @@ func (p *Problem) setup(prev prevState, b int, x float64) setupParts {
 	d := &p.bd[b]
 	side := p.startSide(b, x)
 	c1, c2 := p.axes(b, x, side, false)
-	s := setupParts{slew: p.slewTo(prev, x, c1, c2), settle: p.oh.settle, acq: p.oh.acq}
+	a1, a2 := p.axes(prev.block, x, prev.side, true)
+	s := setupParts{slew: p.Site.Overheads.slewSeconds(p.Site.Mount, a1, a2, c1, c2), settle: p.oh.settle, acq: p.oh.acq}
 	changed := prev.filter != d.filter
 	if changed {
 		s.filter = p.oh.filter
@@ -267,13 +268,27 @@ func (p *Problem) setup(prev prevState, b int, x float64) setupParts {
 	}
 	if prev.block >= 0 {
 		// The mount leaves the previous target when the setup begins, not
-		// at x: the slew from there, if longer, counts.
-		if s1 := p.slewTo(prev, x-s.total(), c1, c2); s1 > s.slew {
+		// at x: the slew from there, if longer, counts. On an equatorial
+		// mount a fixed target was only turning in hour angle at the
+		// sidereal rate, so its axis 1 was T seconds of it behind; taking
+		// the larger of the two slews is then at least the true one (the
+		// flip-limit stop of a german mount only shortens the drift).
+		t := s.total()
+		var s1 float64
+		if p.Site.Mount != constraints.AltAzimuth && !p.bd[prev.block].moving {
+			s1 = p.Site.Overheads.slewSeconds(p.Site.Mount, a1-siderealDegS*t, a2, c1, c2)
+		} else {
+			s1 = p.slewTo(prev, x-t, c1, c2)
+		}
+		if s1 > s.slew {
 			s.slew = s1
 		}
 	}
 	return s
 }
+
+// siderealDegS is the hour-angle rate of a fixed target, deg/s.
+const siderealDegS = siderealRate * 180 / math.Pi
 
 // after returns the state after a run of block b that started at s and
 // ended on side.

@@ -99,6 +99,7 @@ type bdat struct {
 	good       []int32
 	every, tol float64 // cadence, seconds (every = 0: none)
 	avoidFlip  bool    // the block avoids the flip zone: no flip inside a run
+	moving     bool    // the target moves against the stars
 	minSetup   float64
 	peak       int // step of the best quality
 }
@@ -327,6 +328,7 @@ func (p *Problem) prepare(closures []Closure, executed []Assignment, from time.T
 		d.rem = max(0, b.FramesWanted-b.FramesDone-done[i])
 		d.filter = fid(b.Filter)
 		d.avoidFlip = b.Set != nil && b.Set.AvoidFlipZone
+		d.moving = b.Target.Moving()
 		if b.Cadence != nil {
 			d.every, d.tol = b.Cadence.Every.Seconds(), b.Cadence.Tolerance.Seconds()
 		}
