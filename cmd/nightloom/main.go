@@ -4,7 +4,7 @@
 //
 // Offline (no daemon):
 //
-//	nightloom sky   --site LAT,LON[,ELEV_M] --at RFC3339 [--ra DEG --dec DEG | --orbit FILE.json] [--chart FILE.png] [--json]
+//	nightloom sky   --site LAT,LON[,ELEV_M] --at RFC3339 [--ra DEG --dec DEG | --orbit FILE.json | --body NAME | --elements FILE [--designation D]] [--chart FILE.png] [--json]
 //	nightloom night --site LAT,LON[,ELEV_M] --date YYYY-MM-DD [--tz ZONE] [--json]
 //	nightloom demo  [--out DIR]
 //
