@@ -65,7 +65,7 @@ func commands() []command {
 		{name: "night", summary: "sunset, twilights, sunrise, moonrise and moonset for a site and date (offline)", run: runNight},
 		{name: "demo", summary: "run a daemon in-process, plan an invented night, chart it, interrupt it and replan", run: runDemo},
 		{name: "site", summary: "telescopes at places: create, get, list, update, delete", sub: siteCommands()},
-		{name: "target", summary: "fixed and orbit targets: create, get, list, update, delete", sub: targetCommands()},
+		{name: "target", summary: "fixed, orbit and body targets: create, get, list, update, delete, import", sub: targetCommands()},
 		{name: "block", summary: "the queue of imaging blocks: queue, get, list, withdraw", sub: blockCommands()},
 		{name: "plan", summary: "plans: make, show, list, replan, next, watch, chart", sub: planCommands()},
 		{name: "progress", summary: "progress reports from the telescope control software: report", sub: progressCommands()},

@@ -10,6 +10,7 @@ import (
 	"time"
 
 	"github.com/nightloom/nightloom/ephem"
+	pb "github.com/nightloom/nightloom/proto/nightloom/v1"
 )
 
 // An invented comet in the one-line comet format (columns as in package
@@ -120,5 +121,35 @@ func TestSkySolarBadInput(t *testing.T) {
 		if code != 2 || !strings.Contains(errs, c.want) {
 			t.Errorf("%v: exit %d, stderr %q; want exit 2 with %q", c.args, code, errs, c.want)
 		}
+	}
+}
+
+// target import against a real daemon: the file's lines become orbit
+// targets, a second run of the same file stores nothing new, and a bad line
+// is refused with its line and columns.
+func TestTargetImport(t *testing.T) {
+	d := startTestDaemon(t)
+	dir := t.TempDir()
+	good := filepath.Join(dir, "good.txt")
+	os.WriteFile(good, []byte(cliCometLine+"\n"+cliMinorLine+"\n"), 0o644)
+	var r1, r2 pb.ImportElementsResponse
+	parse(t, d.cli(t, "target", "import", "--elements", good, "--json").ok(t, "import").stdout, &r1)
+	parse(t, d.cli(t, "target", "import", "--elements", good, "--json").ok(t, "import again").stdout, &r2)
+	if len(r1.GetTargets()) != 2 || r2.GetTargets()[0].GetId() != r1.GetTargets()[0].GetId() {
+		t.Fatalf("imports: %v then %v", r1.GetTargets(), r2.GetTargets())
+	}
+	list := d.cli(t, "target", "list").ok(t, "list").stdout
+	if strings.Count(list, "orbit") != 2 || !strings.Contains(list, "C/2031 X1 (Invented)") {
+		t.Errorf("target list after two imports of one file:\n%s", list)
+	}
+	bad := filepath.Join(dir, "bad.txt")
+	os.WriteFile(bad, []byte(cliMinorLine+"\n"+strings.Replace(cliCometLine, "2032 01", "2032 13", 1)+"\n"), 0o644)
+	res := d.cli(t, "target", "import", "--elements", bad)
+	if res.code == 0 || !strings.Contains(res.stderr, "line 2, columns 20-21") {
+		t.Errorf("bad file: exit %d, stderr %q", res.code, res.stderr)
+	}
+	res = d.cli(t, "target", "import")
+	if res.code != 2 || !strings.Contains(res.stderr, "--elements") {
+		t.Errorf("no --elements: exit %d, stderr %q", res.code, res.stderr)
 	}
 }

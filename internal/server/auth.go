@@ -65,11 +65,12 @@ var methodRoles = map[string][]Role{
 	nightloomv1.SiteService_UpdateSite_FullMethodName: administrator,
 	nightloomv1.SiteService_DeleteSite_FullMethodName: administrator,
 
-	nightloomv1.TargetService_CreateTarget_FullMethodName: administrator,
-	nightloomv1.TargetService_GetTarget_FullMethodName:    readers,
-	nightloomv1.TargetService_ListTargets_FullMethodName:  readers,
-	nightloomv1.TargetService_UpdateTarget_FullMethodName: administrator,
-	nightloomv1.TargetService_DeleteTarget_FullMethodName: administrator,
+	nightloomv1.TargetService_CreateTarget_FullMethodName:   administrator,
+	nightloomv1.TargetService_GetTarget_FullMethodName:      readers,
+	nightloomv1.TargetService_ListTargets_FullMethodName:    readers,
+	nightloomv1.TargetService_UpdateTarget_FullMethodName:   administrator,
+	nightloomv1.TargetService_DeleteTarget_FullMethodName:   administrator,
+	nightloomv1.TargetService_ImportElements_FullMethodName: administrator,
 
 	nightloomv1.QueueService_QueueBlocks_FullMethodName:    planners,
 	nightloomv1.QueueService_GetBlock_FullMethodName:       queueReaders,

@@ -198,6 +198,12 @@ func validCalls(e *env, f fixture, plan *nightloomv1.Plan) map[string]validCall 
 				return err
 			}
 		},
+		nightloomv1.TargetService_ImportElements_FullMethodName: func(t *testing.T) func(ctx context.Context) error {
+			return func(ctx context.Context) error {
+				_, err := e.targets.ImportElements(ctx, &nightloomv1.ImportElementsRequest{RequestId: newID("imp-"), Text: importComet})
+				return err
+			}
+		},
 		nightloomv1.QueueService_QueueBlocks_FullMethodName: now(func(ctx context.Context) error {
 			_, err := e.queue.QueueBlocks(ctx, &nightloomv1.QueueBlocksRequest{Blocks: []*nightloomv1.Block{testBlock(site, tgt, "B", 8, 2)}})
 			return err
@@ -288,30 +294,31 @@ var specRoles = func() map[string][]Role {
 	v, o, tel, a := RoleViewer, RoleOperator, RoleTelescope, RoleAdmin
 	read, queueRead, plan, report, admin := []Role{v, o, a}, []Role{v, o, tel, a}, []Role{o, a}, []Role{tel, o, a}, []Role{a}
 	return map[string][]Role{
-		nightloomv1.SiteService_CreateSite_FullMethodName:      admin,
-		nightloomv1.SiteService_GetSite_FullMethodName:         read,
-		nightloomv1.SiteService_ListSites_FullMethodName:       read,
-		nightloomv1.SiteService_UpdateSite_FullMethodName:      admin,
-		nightloomv1.SiteService_DeleteSite_FullMethodName:      admin,
-		nightloomv1.TargetService_CreateTarget_FullMethodName:  admin,
-		nightloomv1.TargetService_GetTarget_FullMethodName:     read,
-		nightloomv1.TargetService_ListTargets_FullMethodName:   read,
-		nightloomv1.TargetService_UpdateTarget_FullMethodName:  admin,
-		nightloomv1.TargetService_DeleteTarget_FullMethodName:  admin,
-		nightloomv1.QueueService_QueueBlocks_FullMethodName:    plan,
-		nightloomv1.QueueService_GetBlock_FullMethodName:       queueRead,
-		nightloomv1.QueueService_ListBlocks_FullMethodName:     queueRead,
-		nightloomv1.QueueService_WithdrawBlock_FullMethodName:  plan,
-		nightloomv1.QueueService_ReportProgress_FullMethodName: report,
-		nightloomv1.PlanService_MakePlan_FullMethodName:        plan,
-		nightloomv1.PlanService_GetPlan_FullMethodName:         queueRead,
-		nightloomv1.PlanService_ListPlans_FullMethodName:       queueRead,
-		nightloomv1.PlanService_Replan_FullMethodName:          plan,
-		nightloomv1.PlanService_NextAssignment_FullMethodName:  queueRead,
-		nightloomv1.PlanService_WatchPlans_FullMethodName:      queueRead,
-		nightloomv1.SkyService_Ephemeris_FullMethodName:        read,
-		nightloomv1.SkyService_Night_FullMethodName:            read,
-		nightloomv1.SkyService_Visibility_FullMethodName:       read,
+		nightloomv1.SiteService_CreateSite_FullMethodName:       admin,
+		nightloomv1.SiteService_GetSite_FullMethodName:          read,
+		nightloomv1.SiteService_ListSites_FullMethodName:        read,
+		nightloomv1.SiteService_UpdateSite_FullMethodName:       admin,
+		nightloomv1.SiteService_DeleteSite_FullMethodName:       admin,
+		nightloomv1.TargetService_CreateTarget_FullMethodName:   admin,
+		nightloomv1.TargetService_GetTarget_FullMethodName:      read,
+		nightloomv1.TargetService_ListTargets_FullMethodName:    read,
+		nightloomv1.TargetService_UpdateTarget_FullMethodName:   admin,
+		nightloomv1.TargetService_DeleteTarget_FullMethodName:   admin,
+		nightloomv1.TargetService_ImportElements_FullMethodName: admin,
+		nightloomv1.QueueService_QueueBlocks_FullMethodName:     plan,
+		nightloomv1.QueueService_GetBlock_FullMethodName:        queueRead,
+		nightloomv1.QueueService_ListBlocks_FullMethodName:      queueRead,
+		nightloomv1.QueueService_WithdrawBlock_FullMethodName:   plan,
+		nightloomv1.QueueService_ReportProgress_FullMethodName:  report,
+		nightloomv1.PlanService_MakePlan_FullMethodName:         plan,
+		nightloomv1.PlanService_GetPlan_FullMethodName:          queueRead,
+		nightloomv1.PlanService_ListPlans_FullMethodName:        queueRead,
+		nightloomv1.PlanService_Replan_FullMethodName:           plan,
+		nightloomv1.PlanService_NextAssignment_FullMethodName:   queueRead,
+		nightloomv1.PlanService_WatchPlans_FullMethodName:       queueRead,
+		nightloomv1.SkyService_Ephemeris_FullMethodName:         read,
+		nightloomv1.SkyService_Night_FullMethodName:             read,
+		nightloomv1.SkyService_Visibility_FullMethodName:        read,
 	}
 }()
 

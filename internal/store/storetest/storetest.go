@@ -46,6 +46,7 @@ func Run(t *testing.T, open func(t *testing.T) *store.DB) {
 		{"Plans", testPlans},
 		{"PlansConcurrentVersions", testPlansConcurrentVersions},
 		{"Tokens", testTokens},
+		{"ImportTargets", testImportTargets},
 		{"Paging", testPaging},
 		{"PagingTokens", testPagingTokens},
 		{"PagingWhileInserting", testPagingWhileInserting},

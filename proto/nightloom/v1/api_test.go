@@ -192,7 +192,7 @@ func TestListCallsPage(t *testing.T) {
 func TestServicesAndRPCs(t *testing.T) {
 	want := map[string][]string{
 		"SiteService":   {"CreateSite", "DeleteSite", "GetSite", "ListSites", "UpdateSite"},
-		"TargetService": {"CreateTarget", "DeleteTarget", "GetTarget", "ListTargets", "UpdateTarget"},
+		"TargetService": {"CreateTarget", "DeleteTarget", "GetTarget", "ImportElements", "ListTargets", "UpdateTarget"},
 		"QueueService":  {"GetBlock", "ListBlocks", "QueueBlocks", "ReportProgress", "WithdrawBlock"},
 		"PlanService":   {"GetPlan", "ListPlans", "MakePlan", "NextAssignment", "Replan", "WatchPlans"},
 		"SkyService":    {"Ephemeris", "Night", "Visibility"},
