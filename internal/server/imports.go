@@ -120,13 +120,14 @@ func lineErrors(err error) []*nightloomv1.ElementLineError {
 }
 
 // importedTarget is the API form of one parsed line: an orbit target named
-// by the line's readable name (or designation), perihelion time as a TT
-// reading (target.proto).
+// by the line's readable name field (which the formats fill with the
+// designation and name), or by its designation when that field is blank;
+// perihelion time as a TT reading (target.proto).
 func importedTarget(el elements.Elements) *nightloomv1.Target {
 	o := el.Orbit
 	name := el.Name
-	if name == "" || !strings.Contains(name, strings.Trim(el.Designation, "()")) {
-		name = strings.TrimSpace(el.Designation + " " + el.Name)
+	if name == "" {
+		name = el.Designation
 	}
 	if len(name) > MaxNameBytes {
 		name = name[:MaxNameBytes]
