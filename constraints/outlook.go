@@ -58,8 +58,8 @@ type OutlookMoment struct {
 	AltDeg, AzDeg    float64 // apparent altitude, azimuth
 	Airmass          float64 // +Inf below the horizon
 	SolarElongDeg    float64
-	Magnitude        float64 // predicted, with extinction; NaN without a law
-	SkyMagArcsec2    float64 // V sky brightness at the target; NaN if not modelled
+	Magnitude        float64 // predicted, with extinction; NaN without a law or below the horizon
+	SkyMagArcsec2    float64 // V sky brightness at the target; NaN below the horizon
 	MoonAltDeg       float64
 	MoonIllumination float64 // topocentric illuminated fraction
 	MoonSepDeg       float64
@@ -166,6 +166,10 @@ func (g *Grid) moment(tr *Track, i int) OutlookMoment {
 		MoonSepDeg: float64(tr.MoonSep[i]) * ephem.Rad2Deg}
 	if tr.Mag != nil {
 		mo.Magnitude = float64(tr.Mag[i])
+	}
+	if mo.AltDeg < 0 {
+		// Below the horizon: no extinction, no sky model; say nothing.
+		mo.Magnitude, mo.SkyMagArcsec2 = math.NaN(), math.NaN()
 	}
 	return mo
 }

@@ -72,6 +72,7 @@ func commands() []command {
 		{name: "ephemeris", summary: "tabulate a target seen from a site (daemon)", run: runEphemeris},
 		{name: "visibility", summary: "when a block or target can be observed in a night, and why not (daemon)", run: runVisibility},
 		{name: "events", summary: "the Sun's and Moon's events of a site's night (daemon)", run: runEvents},
+		{name: "outlook", summary: "a target night by night over an apparition: windows, best altitude, magnitude (daemon)", run: runOutlook},
 	}
 }
 

@@ -153,3 +153,33 @@ func TestTargetImport(t *testing.T) {
 		t.Errorf("no --elements: exit %d, stderr %q", res.code, res.stderr)
 	}
 }
+
+// outlook against a real daemon: the demo's comet imported from its
+// one-line file, a table with the first and last nights, JSON, a chart.
+func TestOutlookCommand(t *testing.T) {
+	d := startTestDaemon(t)
+	var sr pb.CreateSiteResponse
+	parse(t, d.cli(t, "site", "create", "--file", demoFile("site.json"), "--json").ok(t, "site create").stdout, &sr)
+	var ir pb.ImportElementsResponse
+	parse(t, d.cli(t, "target", "import", "--elements", demoFile("comet-elements.txt"), "--json").ok(t, "import").stdout, &ir)
+	args := []string{"outlook", "--site", sr.GetSite().GetId(), "--target", ir.GetTargets()[0].GetId(), "--from", "2027-01-10",
+		"--nights", "16", "--darkness", "civil", "--min-alt-deg", "5", "--min-elongation-deg", "18"}
+	out := d.cli(t, args...).ok(t, "outlook").stdout
+	if !strings.Contains(out, "first night 2027-01-10") || !strings.Contains(out, "below horizon profile") {
+		t.Errorf("outlook table:\n%s", out)
+	}
+	var resp pb.OutlookResponse
+	parse(t, d.cli(t, append(args, "--json")...).ok(t, "outlook --json").stdout, &resp)
+	if len(resp.GetNights()) != 16 || resp.GetLastObservableNight() == nil {
+		t.Fatalf("outlook --json: %d nights, last %v", len(resp.GetNights()), resp.GetLastObservableNight())
+	}
+	png := filepath.Join(t.TempDir(), "outlook.png")
+	if p := os.Getenv("NIGHTLOOM_KEEP_OUTLOOK_PNG"); p != "" {
+		png = p
+	}
+	d.cli(t, append(args, "--chart", png)...).ok(t, "outlook --chart")
+	checkPNG(t, png)
+	if r := d.cli(t, "outlook", "--site", "x", "--target", "y"); r.code != 2 || !strings.Contains(r.stderr, "--from") {
+		t.Errorf("no --from: exit %d, %q", r.code, r.stderr)
+	}
+}

@@ -88,6 +88,8 @@ var methodRoles = map[string][]Role{
 	nightloomv1.SkyService_Ephemeris_FullMethodName:  readers,
 	nightloomv1.SkyService_Night_FullMethodName:      readers,
 	nightloomv1.SkyService_Visibility_FullMethodName: readers,
+
+	nightloomv1.ApparitionService_Outlook_FullMethodName: readers,
 }
 
 // MethodRoles returns the roles allowed to call a full method name, and

@@ -281,6 +281,11 @@ func validCalls(e *env, f fixture, plan *nightloomv1.Plan) map[string]validCall 
 				Span: &nightloomv1.VisibilityRequest_Night{Night: testNight}})
 			return err
 		}),
+		nightloomv1.ApparitionService_Outlook_FullMethodName: now(func(ctx context.Context) error {
+			_, err := nightloomv1.NewApparitionServiceClient(e.conn).Outlook(ctx, &nightloomv1.OutlookRequest{SiteId: site,
+				Subject: &nightloomv1.OutlookRequest_TargetId{TargetId: tgt}, FirstNight: testNight, Nights: 2, Step: dur(30 * time.Minute)})
+			return err
+		}),
 	}
 }
 
@@ -319,6 +324,7 @@ var specRoles = func() map[string][]Role {
 		nightloomv1.SkyService_Ephemeris_FullMethodName:         read,
 		nightloomv1.SkyService_Night_FullMethodName:             read,
 		nightloomv1.SkyService_Visibility_FullMethodName:        read,
+		nightloomv1.ApparitionService_Outlook_FullMethodName:    read,
 	}
 }()
 
@@ -780,6 +786,9 @@ func fuzzSeeds(plan *nightloomv1.Plan) []fuzzSeed {
 			Subject:     &nightloomv1.VisibilityRequest_Target{Target: testComet()},
 			Constraints: comet.GetConstraints(), Exposure: dur(time.Minute), NonSiderealTracking: true,
 			Span: &nightloomv1.VisibilityRequest_Interval{Interval: iv(0, 6*time.Hour)}, Step: dur(5 * time.Minute)}},
+		{nightloomv1.ApparitionService_Outlook_FullMethodName, &nightloomv1.OutlookRequest{SiteId: "SITE",
+			Subject: &nightloomv1.OutlookRequest_Target{Target: testComet()}, FirstNight: testNight, Nights: 2, Step: dur(30 * time.Minute)}},
+		{nightloomv1.TargetService_ImportElements_FullMethodName, &nightloomv1.ImportElementsRequest{RequestId: "imp-seed", Text: importComet}},
 	}
 }
 

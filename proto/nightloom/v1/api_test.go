@@ -191,11 +191,12 @@ func TestListCallsPage(t *testing.T) {
 // tables, the client, tests that iterate over the descriptors) rely on them.
 func TestServicesAndRPCs(t *testing.T) {
 	want := map[string][]string{
-		"SiteService":   {"CreateSite", "DeleteSite", "GetSite", "ListSites", "UpdateSite"},
-		"TargetService": {"CreateTarget", "DeleteTarget", "GetTarget", "ImportElements", "ListTargets", "UpdateTarget"},
-		"QueueService":  {"GetBlock", "ListBlocks", "QueueBlocks", "ReportProgress", "WithdrawBlock"},
-		"PlanService":   {"GetPlan", "ListPlans", "MakePlan", "NextAssignment", "Replan", "WatchPlans"},
-		"SkyService":    {"Ephemeris", "Night", "Visibility"},
+		"SiteService":       {"CreateSite", "DeleteSite", "GetSite", "ListSites", "UpdateSite"},
+		"TargetService":     {"CreateTarget", "DeleteTarget", "GetTarget", "ImportElements", "ListTargets", "UpdateTarget"},
+		"QueueService":      {"GetBlock", "ListBlocks", "QueueBlocks", "ReportProgress", "WithdrawBlock"},
+		"PlanService":       {"GetPlan", "ListPlans", "MakePlan", "NextAssignment", "Replan", "WatchPlans"},
+		"SkyService":        {"Ephemeris", "Night", "Visibility"},
+		"ApparitionService": {"Outlook"},
 	}
 	got := map[string][]string{}
 	for _, fd := range apiFiles(t) {
