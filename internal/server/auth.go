@@ -89,7 +89,10 @@ var methodRoles = map[string][]Role{
 	nightloomv1.SkyService_Night_FullMethodName:      readers,
 	nightloomv1.SkyService_Visibility_FullMethodName: readers,
 
-	nightloomv1.ApparitionService_Outlook_FullMethodName: readers,
+	nightloomv1.ApparitionService_Outlook_FullMethodName:           readers,
+	nightloomv1.ApparitionService_ReportMagnitudes_FullMethodName:  reporters,
+	nightloomv1.ApparitionService_RefitMagnitudeLaw_FullMethodName: planners,
+	nightloomv1.ApparitionService_MagnitudeHistory_FullMethodName:  readers,
 }
 
 // MethodRoles returns the roles allowed to call a full method name, and

@@ -47,6 +47,7 @@ func Run(t *testing.T, open func(t *testing.T) *store.DB) {
 		{"PlansConcurrentVersions", testPlansConcurrentVersions},
 		{"Tokens", testTokens},
 		{"ImportTargets", testImportTargets},
+		{"Magnitudes", testMagnitudes},
 		{"Paging", testPaging},
 		{"PagingTokens", testPagingTokens},
 		{"PagingWhileInserting", testPagingWhileInserting},

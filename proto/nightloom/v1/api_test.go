@@ -72,6 +72,8 @@ var dimensionless = []string{
 	"m1", "k1", "h", "g",
 	"extinction_v",
 	"total", "weighted_exposure", "completion_bonus",
+	// magnitudes of a comet's light curve and the statistics of their fit
+	"fitted_magnitude", "prior_magnitude", "sigma_mag", "sigma_m1", "sigma_k1", "covariance_m1_k1", "chi2",
 }
 
 // forbiddenSuffixes are units the API does not use: angles are degrees,
@@ -196,7 +198,7 @@ func TestServicesAndRPCs(t *testing.T) {
 		"QueueService":      {"GetBlock", "ListBlocks", "QueueBlocks", "ReportProgress", "WithdrawBlock"},
 		"PlanService":       {"GetPlan", "ListPlans", "MakePlan", "NextAssignment", "Replan", "WatchPlans"},
 		"SkyService":        {"Ephemeris", "Night", "Visibility"},
-		"ApparitionService": {"Outlook"},
+		"ApparitionService": {"MagnitudeHistory", "Outlook", "RefitMagnitudeLaw", "ReportMagnitudes"},
 	}
 	got := map[string][]string{}
 	for _, fd := range apiFiles(t) {

@@ -486,6 +486,664 @@ func (x *OutlookResponse) GetStep() *durationpb.Duration {
 	return nil
 }
 
+// One measured total magnitude.
+type MagnitudeObservation struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Client-chosen id, 1..64 bytes. Required.
+	Id string `protobuf:"bytes,1,opt,name=id,proto3" json:"id,omitempty"`
+	// When it was measured. Required.
+	Time *timestamppb.Timestamp `protobuf:"bytes,2,opt,name=time,proto3" json:"time,omitempty"`
+	// Total visual (or V) magnitude, -30..40.
+	Magnitude float64 `protobuf:"fixed64,3,opt,name=magnitude,proto3" json:"magnitude,omitempty"`
+	// Its 1-sigma uncertainty in mag, 0.01..5.
+	SigmaMag float64 `protobuf:"fixed64,4,opt,name=sigma_mag,json=sigmaMag,proto3" json:"sigma_mag,omitempty"`
+	// Free text (observer, method), at most 200 bytes.
+	Note          string `protobuf:"bytes,5,opt,name=note,proto3" json:"note,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *MagnitudeObservation) Reset() {
+	*x = MagnitudeObservation{}
+	mi := &file_nightloom_v1_apparition_proto_msgTypes[4]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *MagnitudeObservation) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*MagnitudeObservation) ProtoMessage() {}
+
+func (x *MagnitudeObservation) ProtoReflect() protoreflect.Message {
+	mi := &file_nightloom_v1_apparition_proto_msgTypes[4]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use MagnitudeObservation.ProtoReflect.Descriptor instead.
+func (*MagnitudeObservation) Descriptor() ([]byte, []int) {
+	return file_nightloom_v1_apparition_proto_rawDescGZIP(), []int{4}
+}
+
+func (x *MagnitudeObservation) GetId() string {
+	if x != nil {
+		return x.Id
+	}
+	return ""
+}
+
+func (x *MagnitudeObservation) GetTime() *timestamppb.Timestamp {
+	if x != nil {
+		return x.Time
+	}
+	return nil
+}
+
+func (x *MagnitudeObservation) GetMagnitude() float64 {
+	if x != nil {
+		return x.Magnitude
+	}
+	return 0
+}
+
+func (x *MagnitudeObservation) GetSigmaMag() float64 {
+	if x != nil {
+		return x.SigmaMag
+	}
+	return 0
+}
+
+func (x *MagnitudeObservation) GetNote() string {
+	if x != nil {
+		return x.Note
+	}
+	return ""
+}
+
+// Request of ReportMagnitudes.
+type ReportMagnitudesRequest struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Id of the target. Required.
+	TargetId string `protobuf:"bytes,1,opt,name=target_id,json=targetId,proto3" json:"target_id,omitempty"`
+	// The observations, 1..1000.
+	Observations  []*MagnitudeObservation `protobuf:"bytes,2,rep,name=observations,proto3" json:"observations,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *ReportMagnitudesRequest) Reset() {
+	*x = ReportMagnitudesRequest{}
+	mi := &file_nightloom_v1_apparition_proto_msgTypes[5]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *ReportMagnitudesRequest) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*ReportMagnitudesRequest) ProtoMessage() {}
+
+func (x *ReportMagnitudesRequest) ProtoReflect() protoreflect.Message {
+	mi := &file_nightloom_v1_apparition_proto_msgTypes[5]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use ReportMagnitudesRequest.ProtoReflect.Descriptor instead.
+func (*ReportMagnitudesRequest) Descriptor() ([]byte, []int) {
+	return file_nightloom_v1_apparition_proto_rawDescGZIP(), []int{5}
+}
+
+func (x *ReportMagnitudesRequest) GetTargetId() string {
+	if x != nil {
+		return x.TargetId
+	}
+	return ""
+}
+
+func (x *ReportMagnitudesRequest) GetObservations() []*MagnitudeObservation {
+	if x != nil {
+		return x.Observations
+	}
+	return nil
+}
+
+// Response of ReportMagnitudes.
+type ReportMagnitudesResponse struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// How many observations were new (retried ones are not counted).
+	Added         int32 `protobuf:"varint,1,opt,name=added,proto3" json:"added,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *ReportMagnitudesResponse) Reset() {
+	*x = ReportMagnitudesResponse{}
+	mi := &file_nightloom_v1_apparition_proto_msgTypes[6]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *ReportMagnitudesResponse) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*ReportMagnitudesResponse) ProtoMessage() {}
+
+func (x *ReportMagnitudesResponse) ProtoReflect() protoreflect.Message {
+	mi := &file_nightloom_v1_apparition_proto_msgTypes[6]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use ReportMagnitudesResponse.ProtoReflect.Descriptor instead.
+func (*ReportMagnitudesResponse) Descriptor() ([]byte, []int) {
+	return file_nightloom_v1_apparition_proto_rawDescGZIP(), []int{6}
+}
+
+func (x *ReportMagnitudesResponse) GetAdded() int32 {
+	if x != nil {
+		return x.Added
+	}
+	return 0
+}
+
+// One observation against a fitted law.
+type MagnitudeResidual struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Id of the observation.
+	ObservationId string `protobuf:"bytes,1,opt,name=observation_id,json=observationId,proto3" json:"observation_id,omitempty"`
+	// When it was measured.
+	Time *timestamppb.Timestamp `protobuf:"bytes,2,opt,name=time,proto3" json:"time,omitempty"`
+	// Measured magnitude.
+	ObservedMagnitude float64 `protobuf:"fixed64,3,opt,name=observed_magnitude,json=observedMagnitude,proto3" json:"observed_magnitude,omitempty"`
+	// The fitted law's magnitude then.
+	FittedMagnitude float64 `protobuf:"fixed64,4,opt,name=fitted_magnitude,json=fittedMagnitude,proto3" json:"fitted_magnitude,omitempty"`
+	// The law the target had before the fit, then; unset without one.
+	PriorMagnitude *float64 `protobuf:"fixed64,5,opt,name=prior_magnitude,json=priorMagnitude,proto3,oneof" json:"prior_magnitude,omitempty"`
+	// Its uncertainty in mag.
+	SigmaMag float64 `protobuf:"fixed64,6,opt,name=sigma_mag,json=sigmaMag,proto3" json:"sigma_mag,omitempty"`
+	// Heliocentric distance then, au.
+	HeliocentricDistanceAu float64 `protobuf:"fixed64,7,opt,name=heliocentric_distance_au,json=heliocentricDistanceAu,proto3" json:"heliocentric_distance_au,omitempty"`
+	// Geocentric distance then, au.
+	GeocentricDistanceAu float64 `protobuf:"fixed64,8,opt,name=geocentric_distance_au,json=geocentricDistanceAu,proto3" json:"geocentric_distance_au,omitempty"`
+	unknownFields        protoimpl.UnknownFields
+	sizeCache            protoimpl.SizeCache
+}
+
+func (x *MagnitudeResidual) Reset() {
+	*x = MagnitudeResidual{}
+	mi := &file_nightloom_v1_apparition_proto_msgTypes[7]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *MagnitudeResidual) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*MagnitudeResidual) ProtoMessage() {}
+
+func (x *MagnitudeResidual) ProtoReflect() protoreflect.Message {
+	mi := &file_nightloom_v1_apparition_proto_msgTypes[7]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use MagnitudeResidual.ProtoReflect.Descriptor instead.
+func (*MagnitudeResidual) Descriptor() ([]byte, []int) {
+	return file_nightloom_v1_apparition_proto_rawDescGZIP(), []int{7}
+}
+
+func (x *MagnitudeResidual) GetObservationId() string {
+	if x != nil {
+		return x.ObservationId
+	}
+	return ""
+}
+
+func (x *MagnitudeResidual) GetTime() *timestamppb.Timestamp {
+	if x != nil {
+		return x.Time
+	}
+	return nil
+}
+
+func (x *MagnitudeResidual) GetObservedMagnitude() float64 {
+	if x != nil {
+		return x.ObservedMagnitude
+	}
+	return 0
+}
+
+func (x *MagnitudeResidual) GetFittedMagnitude() float64 {
+	if x != nil {
+		return x.FittedMagnitude
+	}
+	return 0
+}
+
+func (x *MagnitudeResidual) GetPriorMagnitude() float64 {
+	if x != nil && x.PriorMagnitude != nil {
+		return *x.PriorMagnitude
+	}
+	return 0
+}
+
+func (x *MagnitudeResidual) GetSigmaMag() float64 {
+	if x != nil {
+		return x.SigmaMag
+	}
+	return 0
+}
+
+func (x *MagnitudeResidual) GetHeliocentricDistanceAu() float64 {
+	if x != nil {
+		return x.HeliocentricDistanceAu
+	}
+	return 0
+}
+
+func (x *MagnitudeResidual) GetGeocentricDistanceAu() float64 {
+	if x != nil {
+		return x.GeocentricDistanceAu
+	}
+	return 0
+}
+
+// A fit of a comet's magnitude law.
+type MagnitudeFit struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Server-assigned id.
+	Id string `protobuf:"bytes,1,opt,name=id,proto3" json:"id,omitempty"`
+	// Id of the target.
+	TargetId string `protobuf:"bytes,2,opt,name=target_id,json=targetId,proto3" json:"target_id,omitempty"`
+	// When the fit was made.
+	CreateTime *timestamppb.Timestamp `protobuf:"bytes,3,opt,name=create_time,json=createTime,proto3" json:"create_time,omitempty"`
+	// The target's law before the fit; unset when it had none.
+	Prior *CometMagnitude `protobuf:"bytes,4,opt,name=prior,proto3" json:"prior,omitempty"`
+	// The fitted law.
+	Fitted *CometMagnitude `protobuf:"bytes,5,opt,name=fitted,proto3" json:"fitted,omitempty"`
+	// 1-sigma uncertainty of M1 in mag.
+	SigmaM1 float64 `protobuf:"fixed64,6,opt,name=sigma_m1,json=sigmaM1,proto3" json:"sigma_m1,omitempty"`
+	// 1-sigma uncertainty of K1; 0 when K1 was held fixed.
+	SigmaK1 float64 `protobuf:"fixed64,7,opt,name=sigma_k1,json=sigmaK1,proto3" json:"sigma_k1,omitempty"`
+	// Covariance of M1 and K1.
+	CovarianceM1K1 float64 `protobuf:"fixed64,8,opt,name=covariance_m1_k1,json=covarianceM1K1,proto3" json:"covariance_m1_k1,omitempty"`
+	// K1 was held at the prior value (the observations do not span enough
+	// heliocentric distance to determine it to 2.5).
+	K1Fixed bool `protobuf:"varint,9,opt,name=k1_fixed,json=k1Fixed,proto3" json:"k1_fixed,omitempty"`
+	// Weighted sum of squared residuals.
+	Chi2 float64 `protobuf:"fixed64,10,opt,name=chi2,proto3" json:"chi2,omitempty"`
+	// Degrees of freedom (observations minus fitted parameters).
+	DegreesOfFreedom int32 `protobuf:"varint,11,opt,name=degrees_of_freedom,json=degreesOfFreedom,proto3" json:"degrees_of_freedom,omitempty"`
+	// Every observation used, in time order.
+	Residuals []*MagnitudeResidual `protobuf:"bytes,12,rep,name=residuals,proto3" json:"residuals,omitempty"`
+	// The fit became the target's law.
+	Applied       bool `protobuf:"varint,13,opt,name=applied,proto3" json:"applied,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *MagnitudeFit) Reset() {
+	*x = MagnitudeFit{}
+	mi := &file_nightloom_v1_apparition_proto_msgTypes[8]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *MagnitudeFit) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*MagnitudeFit) ProtoMessage() {}
+
+func (x *MagnitudeFit) ProtoReflect() protoreflect.Message {
+	mi := &file_nightloom_v1_apparition_proto_msgTypes[8]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use MagnitudeFit.ProtoReflect.Descriptor instead.
+func (*MagnitudeFit) Descriptor() ([]byte, []int) {
+	return file_nightloom_v1_apparition_proto_rawDescGZIP(), []int{8}
+}
+
+func (x *MagnitudeFit) GetId() string {
+	if x != nil {
+		return x.Id
+	}
+	return ""
+}
+
+func (x *MagnitudeFit) GetTargetId() string {
+	if x != nil {
+		return x.TargetId
+	}
+	return ""
+}
+
+func (x *MagnitudeFit) GetCreateTime() *timestamppb.Timestamp {
+	if x != nil {
+		return x.CreateTime
+	}
+	return nil
+}
+
+func (x *MagnitudeFit) GetPrior() *CometMagnitude {
+	if x != nil {
+		return x.Prior
+	}
+	return nil
+}
+
+func (x *MagnitudeFit) GetFitted() *CometMagnitude {
+	if x != nil {
+		return x.Fitted
+	}
+	return nil
+}
+
+func (x *MagnitudeFit) GetSigmaM1() float64 {
+	if x != nil {
+		return x.SigmaM1
+	}
+	return 0
+}
+
+func (x *MagnitudeFit) GetSigmaK1() float64 {
+	if x != nil {
+		return x.SigmaK1
+	}
+	return 0
+}
+
+func (x *MagnitudeFit) GetCovarianceM1K1() float64 {
+	if x != nil {
+		return x.CovarianceM1K1
+	}
+	return 0
+}
+
+func (x *MagnitudeFit) GetK1Fixed() bool {
+	if x != nil {
+		return x.K1Fixed
+	}
+	return false
+}
+
+func (x *MagnitudeFit) GetChi2() float64 {
+	if x != nil {
+		return x.Chi2
+	}
+	return 0
+}
+
+func (x *MagnitudeFit) GetDegreesOfFreedom() int32 {
+	if x != nil {
+		return x.DegreesOfFreedom
+	}
+	return 0
+}
+
+func (x *MagnitudeFit) GetResiduals() []*MagnitudeResidual {
+	if x != nil {
+		return x.Residuals
+	}
+	return nil
+}
+
+func (x *MagnitudeFit) GetApplied() bool {
+	if x != nil {
+		return x.Applied
+	}
+	return false
+}
+
+// Request of RefitMagnitudeLaw.
+type RefitMagnitudeLawRequest struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Id of the target. Required.
+	TargetId string `protobuf:"bytes,1,opt,name=target_id,json=targetId,proto3" json:"target_id,omitempty"`
+	// Make the fitted law the target's law.
+	Apply         bool `protobuf:"varint,2,opt,name=apply,proto3" json:"apply,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *RefitMagnitudeLawRequest) Reset() {
+	*x = RefitMagnitudeLawRequest{}
+	mi := &file_nightloom_v1_apparition_proto_msgTypes[9]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *RefitMagnitudeLawRequest) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*RefitMagnitudeLawRequest) ProtoMessage() {}
+
+func (x *RefitMagnitudeLawRequest) ProtoReflect() protoreflect.Message {
+	mi := &file_nightloom_v1_apparition_proto_msgTypes[9]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use RefitMagnitudeLawRequest.ProtoReflect.Descriptor instead.
+func (*RefitMagnitudeLawRequest) Descriptor() ([]byte, []int) {
+	return file_nightloom_v1_apparition_proto_rawDescGZIP(), []int{9}
+}
+
+func (x *RefitMagnitudeLawRequest) GetTargetId() string {
+	if x != nil {
+		return x.TargetId
+	}
+	return ""
+}
+
+func (x *RefitMagnitudeLawRequest) GetApply() bool {
+	if x != nil {
+		return x.Apply
+	}
+	return false
+}
+
+// Response of RefitMagnitudeLaw.
+type RefitMagnitudeLawResponse struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// The fit, as stored.
+	Fit *MagnitudeFit `protobuf:"bytes,1,opt,name=fit,proto3" json:"fit,omitempty"`
+	// The target after the fit (with the new law when applied).
+	Target        *Target `protobuf:"bytes,2,opt,name=target,proto3" json:"target,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *RefitMagnitudeLawResponse) Reset() {
+	*x = RefitMagnitudeLawResponse{}
+	mi := &file_nightloom_v1_apparition_proto_msgTypes[10]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *RefitMagnitudeLawResponse) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*RefitMagnitudeLawResponse) ProtoMessage() {}
+
+func (x *RefitMagnitudeLawResponse) ProtoReflect() protoreflect.Message {
+	mi := &file_nightloom_v1_apparition_proto_msgTypes[10]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use RefitMagnitudeLawResponse.ProtoReflect.Descriptor instead.
+func (*RefitMagnitudeLawResponse) Descriptor() ([]byte, []int) {
+	return file_nightloom_v1_apparition_proto_rawDescGZIP(), []int{10}
+}
+
+func (x *RefitMagnitudeLawResponse) GetFit() *MagnitudeFit {
+	if x != nil {
+		return x.Fit
+	}
+	return nil
+}
+
+func (x *RefitMagnitudeLawResponse) GetTarget() *Target {
+	if x != nil {
+		return x.Target
+	}
+	return nil
+}
+
+// Request of MagnitudeHistory.
+type MagnitudeHistoryRequest struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Id of the target. Required.
+	TargetId      string `protobuf:"bytes,1,opt,name=target_id,json=targetId,proto3" json:"target_id,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *MagnitudeHistoryRequest) Reset() {
+	*x = MagnitudeHistoryRequest{}
+	mi := &file_nightloom_v1_apparition_proto_msgTypes[11]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *MagnitudeHistoryRequest) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*MagnitudeHistoryRequest) ProtoMessage() {}
+
+func (x *MagnitudeHistoryRequest) ProtoReflect() protoreflect.Message {
+	mi := &file_nightloom_v1_apparition_proto_msgTypes[11]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use MagnitudeHistoryRequest.ProtoReflect.Descriptor instead.
+func (*MagnitudeHistoryRequest) Descriptor() ([]byte, []int) {
+	return file_nightloom_v1_apparition_proto_rawDescGZIP(), []int{11}
+}
+
+func (x *MagnitudeHistoryRequest) GetTargetId() string {
+	if x != nil {
+		return x.TargetId
+	}
+	return ""
+}
+
+// Response of MagnitudeHistory.
+type MagnitudeHistoryResponse struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// The fits, oldest first.
+	Fits []*MagnitudeFit `protobuf:"bytes,1,rep,name=fits,proto3" json:"fits,omitempty"`
+	// The target's observations, in time order.
+	Observations  []*MagnitudeObservation `protobuf:"bytes,2,rep,name=observations,proto3" json:"observations,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *MagnitudeHistoryResponse) Reset() {
+	*x = MagnitudeHistoryResponse{}
+	mi := &file_nightloom_v1_apparition_proto_msgTypes[12]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *MagnitudeHistoryResponse) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*MagnitudeHistoryResponse) ProtoMessage() {}
+
+func (x *MagnitudeHistoryResponse) ProtoReflect() protoreflect.Message {
+	mi := &file_nightloom_v1_apparition_proto_msgTypes[12]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use MagnitudeHistoryResponse.ProtoReflect.Descriptor instead.
+func (*MagnitudeHistoryResponse) Descriptor() ([]byte, []int) {
+	return file_nightloom_v1_apparition_proto_rawDescGZIP(), []int{12}
+}
+
+func (x *MagnitudeHistoryResponse) GetFits() []*MagnitudeFit {
+	if x != nil {
+		return x.Fits
+	}
+	return nil
+}
+
+func (x *MagnitudeHistoryResponse) GetObservations() []*MagnitudeObservation {
+	if x != nil {
+		return x.Observations
+	}
+	return nil
+}
+
 var File_nightloom_v1_apparition_proto protoreflect.FileDescriptor
 
 const file_nightloom_v1_apparition_proto_rawDesc = "" +
@@ -537,9 +1195,60 @@ const file_nightloom_v1_apparition_proto_rawDesc = "" +
 	"\x06nights\x18\x01 \x03(\v2\x1a.nightloom.v1.OutlookNightR\x06nights\x12M\n" +
 	"\x16first_observable_night\x18\x02 \x01(\v2\x17.nightloom.v1.LocalDateR\x14firstObservableNight\x12K\n" +
 	"\x15last_observable_night\x18\x03 \x01(\v2\x17.nightloom.v1.LocalDateR\x13lastObservableNight\x12-\n" +
-	"\x04step\x18\x04 \x01(\v2\x19.google.protobuf.DurationR\x04step2[\n" +
+	"\x04step\x18\x04 \x01(\v2\x19.google.protobuf.DurationR\x04step\"\xa5\x01\n" +
+	"\x14MagnitudeObservation\x12\x0e\n" +
+	"\x02id\x18\x01 \x01(\tR\x02id\x12.\n" +
+	"\x04time\x18\x02 \x01(\v2\x1a.google.protobuf.TimestampR\x04time\x12\x1c\n" +
+	"\tmagnitude\x18\x03 \x01(\x01R\tmagnitude\x12\x1b\n" +
+	"\tsigma_mag\x18\x04 \x01(\x01R\bsigmaMag\x12\x12\n" +
+	"\x04note\x18\x05 \x01(\tR\x04note\"~\n" +
+	"\x17ReportMagnitudesRequest\x12\x1b\n" +
+	"\ttarget_id\x18\x01 \x01(\tR\btargetId\x12F\n" +
+	"\fobservations\x18\x02 \x03(\v2\".nightloom.v1.MagnitudeObservationR\fobservations\"0\n" +
+	"\x18ReportMagnitudesResponse\x12\x14\n" +
+	"\x05added\x18\x01 \x01(\x05R\x05added\"\x93\x03\n" +
+	"\x11MagnitudeResidual\x12%\n" +
+	"\x0eobservation_id\x18\x01 \x01(\tR\robservationId\x12.\n" +
+	"\x04time\x18\x02 \x01(\v2\x1a.google.protobuf.TimestampR\x04time\x12-\n" +
+	"\x12observed_magnitude\x18\x03 \x01(\x01R\x11observedMagnitude\x12)\n" +
+	"\x10fitted_magnitude\x18\x04 \x01(\x01R\x0ffittedMagnitude\x12,\n" +
+	"\x0fprior_magnitude\x18\x05 \x01(\x01H\x00R\x0epriorMagnitude\x88\x01\x01\x12\x1b\n" +
+	"\tsigma_mag\x18\x06 \x01(\x01R\bsigmaMag\x128\n" +
+	"\x18heliocentric_distance_au\x18\a \x01(\x01R\x16heliocentricDistanceAu\x124\n" +
+	"\x16geocentric_distance_au\x18\b \x01(\x01R\x14geocentricDistanceAuB\x12\n" +
+	"\x10_prior_magnitude\"\xf8\x03\n" +
+	"\fMagnitudeFit\x12\x0e\n" +
+	"\x02id\x18\x01 \x01(\tR\x02id\x12\x1b\n" +
+	"\ttarget_id\x18\x02 \x01(\tR\btargetId\x12;\n" +
+	"\vcreate_time\x18\x03 \x01(\v2\x1a.google.protobuf.TimestampR\n" +
+	"createTime\x122\n" +
+	"\x05prior\x18\x04 \x01(\v2\x1c.nightloom.v1.CometMagnitudeR\x05prior\x124\n" +
+	"\x06fitted\x18\x05 \x01(\v2\x1c.nightloom.v1.CometMagnitudeR\x06fitted\x12\x19\n" +
+	"\bsigma_m1\x18\x06 \x01(\x01R\asigmaM1\x12\x19\n" +
+	"\bsigma_k1\x18\a \x01(\x01R\asigmaK1\x12(\n" +
+	"\x10covariance_m1_k1\x18\b \x01(\x01R\x0ecovarianceM1K1\x12\x19\n" +
+	"\bk1_fixed\x18\t \x01(\bR\ak1Fixed\x12\x12\n" +
+	"\x04chi2\x18\n" +
+	" \x01(\x01R\x04chi2\x12,\n" +
+	"\x12degrees_of_freedom\x18\v \x01(\x05R\x10degreesOfFreedom\x12=\n" +
+	"\tresiduals\x18\f \x03(\v2\x1f.nightloom.v1.MagnitudeResidualR\tresiduals\x12\x18\n" +
+	"\aapplied\x18\r \x01(\bR\aapplied\"M\n" +
+	"\x18RefitMagnitudeLawRequest\x12\x1b\n" +
+	"\ttarget_id\x18\x01 \x01(\tR\btargetId\x12\x14\n" +
+	"\x05apply\x18\x02 \x01(\bR\x05apply\"w\n" +
+	"\x19RefitMagnitudeLawResponse\x12,\n" +
+	"\x03fit\x18\x01 \x01(\v2\x1a.nightloom.v1.MagnitudeFitR\x03fit\x12,\n" +
+	"\x06target\x18\x02 \x01(\v2\x14.nightloom.v1.TargetR\x06target\"6\n" +
+	"\x17MagnitudeHistoryRequest\x12\x1b\n" +
+	"\ttarget_id\x18\x01 \x01(\tR\btargetId\"\x92\x01\n" +
+	"\x18MagnitudeHistoryResponse\x12.\n" +
+	"\x04fits\x18\x01 \x03(\v2\x1a.nightloom.v1.MagnitudeFitR\x04fits\x12F\n" +
+	"\fobservations\x18\x02 \x03(\v2\".nightloom.v1.MagnitudeObservationR\fobservations2\x87\x03\n" +
 	"\x11ApparitionService\x12F\n" +
-	"\aOutlook\x12\x1c.nightloom.v1.OutlookRequest\x1a\x1d.nightloom.v1.OutlookResponseB?Z=github.com/nightloom/nightloom/proto/nightloom/v1;nightloomv1b\x06proto3"
+	"\aOutlook\x12\x1c.nightloom.v1.OutlookRequest\x1a\x1d.nightloom.v1.OutlookResponse\x12a\n" +
+	"\x10ReportMagnitudes\x12%.nightloom.v1.ReportMagnitudesRequest\x1a&.nightloom.v1.ReportMagnitudesResponse\x12d\n" +
+	"\x11RefitMagnitudeLaw\x12&.nightloom.v1.RefitMagnitudeLawRequest\x1a'.nightloom.v1.RefitMagnitudeLawResponse\x12a\n" +
+	"\x10MagnitudeHistory\x12%.nightloom.v1.MagnitudeHistoryRequest\x1a&.nightloom.v1.MagnitudeHistoryResponseB?Z=github.com/nightloom/nightloom/proto/nightloom/v1;nightloomv1b\x06proto3"
 
 var (
 	file_nightloom_v1_apparition_proto_rawDescOnce sync.Once
@@ -553,43 +1262,70 @@ func file_nightloom_v1_apparition_proto_rawDescGZIP() []byte {
 	return file_nightloom_v1_apparition_proto_rawDescData
 }
 
-var file_nightloom_v1_apparition_proto_msgTypes = make([]protoimpl.MessageInfo, 4)
+var file_nightloom_v1_apparition_proto_msgTypes = make([]protoimpl.MessageInfo, 13)
 var file_nightloom_v1_apparition_proto_goTypes = []any{
-	(*OutlookRequest)(nil),        // 0: nightloom.v1.OutlookRequest
-	(*OutlookMoment)(nil),         // 1: nightloom.v1.OutlookMoment
-	(*OutlookNight)(nil),          // 2: nightloom.v1.OutlookNight
-	(*OutlookResponse)(nil),       // 3: nightloom.v1.OutlookResponse
-	(*Target)(nil),                // 4: nightloom.v1.Target
-	(*ConstraintSet)(nil),         // 5: nightloom.v1.ConstraintSet
-	(*durationpb.Duration)(nil),   // 6: google.protobuf.Duration
-	(*LocalDate)(nil),             // 7: nightloom.v1.LocalDate
-	(*timestamppb.Timestamp)(nil), // 8: google.protobuf.Timestamp
-	(*TimeInterval)(nil),          // 9: nightloom.v1.TimeInterval
-	(Reason)(0),                   // 10: nightloom.v1.Reason
+	(*OutlookRequest)(nil),            // 0: nightloom.v1.OutlookRequest
+	(*OutlookMoment)(nil),             // 1: nightloom.v1.OutlookMoment
+	(*OutlookNight)(nil),              // 2: nightloom.v1.OutlookNight
+	(*OutlookResponse)(nil),           // 3: nightloom.v1.OutlookResponse
+	(*MagnitudeObservation)(nil),      // 4: nightloom.v1.MagnitudeObservation
+	(*ReportMagnitudesRequest)(nil),   // 5: nightloom.v1.ReportMagnitudesRequest
+	(*ReportMagnitudesResponse)(nil),  // 6: nightloom.v1.ReportMagnitudesResponse
+	(*MagnitudeResidual)(nil),         // 7: nightloom.v1.MagnitudeResidual
+	(*MagnitudeFit)(nil),              // 8: nightloom.v1.MagnitudeFit
+	(*RefitMagnitudeLawRequest)(nil),  // 9: nightloom.v1.RefitMagnitudeLawRequest
+	(*RefitMagnitudeLawResponse)(nil), // 10: nightloom.v1.RefitMagnitudeLawResponse
+	(*MagnitudeHistoryRequest)(nil),   // 11: nightloom.v1.MagnitudeHistoryRequest
+	(*MagnitudeHistoryResponse)(nil),  // 12: nightloom.v1.MagnitudeHistoryResponse
+	(*Target)(nil),                    // 13: nightloom.v1.Target
+	(*ConstraintSet)(nil),             // 14: nightloom.v1.ConstraintSet
+	(*durationpb.Duration)(nil),       // 15: google.protobuf.Duration
+	(*LocalDate)(nil),                 // 16: nightloom.v1.LocalDate
+	(*timestamppb.Timestamp)(nil),     // 17: google.protobuf.Timestamp
+	(*TimeInterval)(nil),              // 18: nightloom.v1.TimeInterval
+	(Reason)(0),                       // 19: nightloom.v1.Reason
+	(*CometMagnitude)(nil),            // 20: nightloom.v1.CometMagnitude
 }
 var file_nightloom_v1_apparition_proto_depIdxs = []int32{
-	4,  // 0: nightloom.v1.OutlookRequest.target:type_name -> nightloom.v1.Target
-	5,  // 1: nightloom.v1.OutlookRequest.constraints:type_name -> nightloom.v1.ConstraintSet
-	6,  // 2: nightloom.v1.OutlookRequest.exposure:type_name -> google.protobuf.Duration
-	7,  // 3: nightloom.v1.OutlookRequest.first_night:type_name -> nightloom.v1.LocalDate
-	6,  // 4: nightloom.v1.OutlookRequest.step:type_name -> google.protobuf.Duration
-	8,  // 5: nightloom.v1.OutlookMoment.time:type_name -> google.protobuf.Timestamp
-	7,  // 6: nightloom.v1.OutlookNight.night:type_name -> nightloom.v1.LocalDate
-	9,  // 7: nightloom.v1.OutlookNight.windows:type_name -> nightloom.v1.TimeInterval
-	10, // 8: nightloom.v1.OutlookNight.reason:type_name -> nightloom.v1.Reason
+	13, // 0: nightloom.v1.OutlookRequest.target:type_name -> nightloom.v1.Target
+	14, // 1: nightloom.v1.OutlookRequest.constraints:type_name -> nightloom.v1.ConstraintSet
+	15, // 2: nightloom.v1.OutlookRequest.exposure:type_name -> google.protobuf.Duration
+	16, // 3: nightloom.v1.OutlookRequest.first_night:type_name -> nightloom.v1.LocalDate
+	15, // 4: nightloom.v1.OutlookRequest.step:type_name -> google.protobuf.Duration
+	17, // 5: nightloom.v1.OutlookMoment.time:type_name -> google.protobuf.Timestamp
+	16, // 6: nightloom.v1.OutlookNight.night:type_name -> nightloom.v1.LocalDate
+	18, // 7: nightloom.v1.OutlookNight.windows:type_name -> nightloom.v1.TimeInterval
+	19, // 8: nightloom.v1.OutlookNight.reason:type_name -> nightloom.v1.Reason
 	1,  // 9: nightloom.v1.OutlookNight.best:type_name -> nightloom.v1.OutlookMoment
-	9,  // 10: nightloom.v1.OutlookNight.darkness:type_name -> nightloom.v1.TimeInterval
+	18, // 10: nightloom.v1.OutlookNight.darkness:type_name -> nightloom.v1.TimeInterval
 	2,  // 11: nightloom.v1.OutlookResponse.nights:type_name -> nightloom.v1.OutlookNight
-	7,  // 12: nightloom.v1.OutlookResponse.first_observable_night:type_name -> nightloom.v1.LocalDate
-	7,  // 13: nightloom.v1.OutlookResponse.last_observable_night:type_name -> nightloom.v1.LocalDate
-	6,  // 14: nightloom.v1.OutlookResponse.step:type_name -> google.protobuf.Duration
-	0,  // 15: nightloom.v1.ApparitionService.Outlook:input_type -> nightloom.v1.OutlookRequest
-	3,  // 16: nightloom.v1.ApparitionService.Outlook:output_type -> nightloom.v1.OutlookResponse
-	16, // [16:17] is the sub-list for method output_type
-	15, // [15:16] is the sub-list for method input_type
-	15, // [15:15] is the sub-list for extension type_name
-	15, // [15:15] is the sub-list for extension extendee
-	0,  // [0:15] is the sub-list for field type_name
+	16, // 12: nightloom.v1.OutlookResponse.first_observable_night:type_name -> nightloom.v1.LocalDate
+	16, // 13: nightloom.v1.OutlookResponse.last_observable_night:type_name -> nightloom.v1.LocalDate
+	15, // 14: nightloom.v1.OutlookResponse.step:type_name -> google.protobuf.Duration
+	17, // 15: nightloom.v1.MagnitudeObservation.time:type_name -> google.protobuf.Timestamp
+	4,  // 16: nightloom.v1.ReportMagnitudesRequest.observations:type_name -> nightloom.v1.MagnitudeObservation
+	17, // 17: nightloom.v1.MagnitudeResidual.time:type_name -> google.protobuf.Timestamp
+	17, // 18: nightloom.v1.MagnitudeFit.create_time:type_name -> google.protobuf.Timestamp
+	20, // 19: nightloom.v1.MagnitudeFit.prior:type_name -> nightloom.v1.CometMagnitude
+	20, // 20: nightloom.v1.MagnitudeFit.fitted:type_name -> nightloom.v1.CometMagnitude
+	7,  // 21: nightloom.v1.MagnitudeFit.residuals:type_name -> nightloom.v1.MagnitudeResidual
+	8,  // 22: nightloom.v1.RefitMagnitudeLawResponse.fit:type_name -> nightloom.v1.MagnitudeFit
+	13, // 23: nightloom.v1.RefitMagnitudeLawResponse.target:type_name -> nightloom.v1.Target
+	8,  // 24: nightloom.v1.MagnitudeHistoryResponse.fits:type_name -> nightloom.v1.MagnitudeFit
+	4,  // 25: nightloom.v1.MagnitudeHistoryResponse.observations:type_name -> nightloom.v1.MagnitudeObservation
+	0,  // 26: nightloom.v1.ApparitionService.Outlook:input_type -> nightloom.v1.OutlookRequest
+	5,  // 27: nightloom.v1.ApparitionService.ReportMagnitudes:input_type -> nightloom.v1.ReportMagnitudesRequest
+	9,  // 28: nightloom.v1.ApparitionService.RefitMagnitudeLaw:input_type -> nightloom.v1.RefitMagnitudeLawRequest
+	11, // 29: nightloom.v1.ApparitionService.MagnitudeHistory:input_type -> nightloom.v1.MagnitudeHistoryRequest
+	3,  // 30: nightloom.v1.ApparitionService.Outlook:output_type -> nightloom.v1.OutlookResponse
+	6,  // 31: nightloom.v1.ApparitionService.ReportMagnitudes:output_type -> nightloom.v1.ReportMagnitudesResponse
+	10, // 32: nightloom.v1.ApparitionService.RefitMagnitudeLaw:output_type -> nightloom.v1.RefitMagnitudeLawResponse
+	12, // 33: nightloom.v1.ApparitionService.MagnitudeHistory:output_type -> nightloom.v1.MagnitudeHistoryResponse
+	30, // [30:34] is the sub-list for method output_type
+	26, // [26:30] is the sub-list for method input_type
+	26, // [26:26] is the sub-list for extension type_name
+	26, // [26:26] is the sub-list for extension extendee
+	0,  // [0:26] is the sub-list for field type_name
 }
 
 func init() { file_nightloom_v1_apparition_proto_init() }
@@ -605,13 +1341,14 @@ func file_nightloom_v1_apparition_proto_init() {
 	}
 	file_nightloom_v1_apparition_proto_msgTypes[1].OneofWrappers = []any{}
 	file_nightloom_v1_apparition_proto_msgTypes[2].OneofWrappers = []any{}
+	file_nightloom_v1_apparition_proto_msgTypes[7].OneofWrappers = []any{}
 	type x struct{}
 	out := protoimpl.TypeBuilder{
 		File: protoimpl.DescBuilder{
 			GoPackagePath: reflect.TypeOf(x{}).PkgPath(),
 			RawDescriptor: unsafe.Slice(unsafe.StringData(file_nightloom_v1_apparition_proto_rawDesc), len(file_nightloom_v1_apparition_proto_rawDesc)),
 			NumEnums:      0,
-			NumMessages:   4,
+			NumMessages:   13,
 			NumExtensions: 0,
 			NumServices:   1,
 		},

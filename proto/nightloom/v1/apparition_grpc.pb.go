@@ -22,7 +22,10 @@ import (
 const _ = grpc.SupportPackageIsVersion9
 
 const (
-	ApparitionService_Outlook_FullMethodName = "/nightloom.v1.ApparitionService/Outlook"
+	ApparitionService_Outlook_FullMethodName           = "/nightloom.v1.ApparitionService/Outlook"
+	ApparitionService_ReportMagnitudes_FullMethodName  = "/nightloom.v1.ApparitionService/ReportMagnitudes"
+	ApparitionService_RefitMagnitudeLaw_FullMethodName = "/nightloom.v1.ApparitionService/RefitMagnitudeLaw"
+	ApparitionService_MagnitudeHistory_FullMethodName  = "/nightloom.v1.ApparitionService/MagnitudeHistory"
 )
 
 // ApparitionServiceClient is the client API for ApparitionService service.
@@ -37,6 +40,25 @@ type ApparitionServiceClient interface {
 	// last night it can be taken. Nights run from local noon to local noon.
 	// Errors: INVALID_ARGUMENT, NOT_FOUND for an unknown site or target.
 	Outlook(ctx context.Context, in *OutlookRequest, opts ...grpc.CallOption) (*OutlookResponse, error)
+	// ReportMagnitudes stores measured total magnitudes of a comet (orbit
+	// target with a comet law or none), all or nothing. Each observation has a
+	// client-chosen id: a retried one is counted once.
+	// Errors: INVALID_ARGUMENT, NOT_FOUND, FAILED_PRECONDITION for a target
+	// that is not a comet or an id reused with other values.
+	ReportMagnitudes(ctx context.Context, in *ReportMagnitudesRequest, opts ...grpc.CallOption) (*ReportMagnitudesResponse, error)
+	// RefitMagnitudeLaw fits m = M1 + 5 log10(delta) + K1 log10(r) to the
+	// target's stored magnitudes by weighted least squares (delta and r
+	// geocentric, from the target's orbit), keeps the fit in the target's
+	// history and, with apply, makes it the target's law, so that plans from
+	// then on predict with it. K1 is held at the target's current value (10
+	// when it has none) unless the observations determine it to 2.5 or better.
+	// Errors: INVALID_ARGUMENT, NOT_FOUND, FAILED_PRECONDITION for a target
+	// that is not a comet or fewer than 2 observations.
+	RefitMagnitudeLaw(ctx context.Context, in *RefitMagnitudeLawRequest, opts ...grpc.CallOption) (*RefitMagnitudeLawResponse, error)
+	// MagnitudeHistory returns a target's fits, oldest first, and its
+	// observations.
+	// Errors: INVALID_ARGUMENT, NOT_FOUND.
+	MagnitudeHistory(ctx context.Context, in *MagnitudeHistoryRequest, opts ...grpc.CallOption) (*MagnitudeHistoryResponse, error)
 }
 
 type apparitionServiceClient struct {
@@ -57,6 +79,36 @@ func (c *apparitionServiceClient) Outlook(ctx context.Context, in *OutlookReques
 	return out, nil
 }
 
+func (c *apparitionServiceClient) ReportMagnitudes(ctx context.Context, in *ReportMagnitudesRequest, opts ...grpc.CallOption) (*ReportMagnitudesResponse, error) {
+	cOpts := append([]grpc.CallOption{grpc.StaticMethod()}, opts...)
+	out := new(ReportMagnitudesResponse)
+	err := c.cc.Invoke(ctx, ApparitionService_ReportMagnitudes_FullMethodName, in, out, cOpts...)
+	if err != nil {
+		return nil, err
+	}
+	return out, nil
+}
+
+func (c *apparitionServiceClient) RefitMagnitudeLaw(ctx context.Context, in *RefitMagnitudeLawRequest, opts ...grpc.CallOption) (*RefitMagnitudeLawResponse, error) {
+	cOpts := append([]grpc.CallOption{grpc.StaticMethod()}, opts...)
+	out := new(RefitMagnitudeLawResponse)
+	err := c.cc.Invoke(ctx, ApparitionService_RefitMagnitudeLaw_FullMethodName, in, out, cOpts...)
+	if err != nil {
+		return nil, err
+	}
+	return out, nil
+}
+
+func (c *apparitionServiceClient) MagnitudeHistory(ctx context.Context, in *MagnitudeHistoryRequest, opts ...grpc.CallOption) (*MagnitudeHistoryResponse, error) {
+	cOpts := append([]grpc.CallOption{grpc.StaticMethod()}, opts...)
+	out := new(MagnitudeHistoryResponse)
+	err := c.cc.Invoke(ctx, ApparitionService_MagnitudeHistory_FullMethodName, in, out, cOpts...)
+	if err != nil {
+		return nil, err
+	}
+	return out, nil
+}
+
 // ApparitionServiceServer is the server API for ApparitionService service.
 // All implementations must embed UnimplementedApparitionServiceServer
 // for forward compatibility.
@@ -69,6 +121,25 @@ type ApparitionServiceServer interface {
 	// last night it can be taken. Nights run from local noon to local noon.
 	// Errors: INVALID_ARGUMENT, NOT_FOUND for an unknown site or target.
 	Outlook(context.Context, *OutlookRequest) (*OutlookResponse, error)
+	// ReportMagnitudes stores measured total magnitudes of a comet (orbit
+	// target with a comet law or none), all or nothing. Each observation has a
+	// client-chosen id: a retried one is counted once.
+	// Errors: INVALID_ARGUMENT, NOT_FOUND, FAILED_PRECONDITION for a target
+	// that is not a comet or an id reused with other values.
+	ReportMagnitudes(context.Context, *ReportMagnitudesRequest) (*ReportMagnitudesResponse, error)
+	// RefitMagnitudeLaw fits m = M1 + 5 log10(delta) + K1 log10(r) to the
+	// target's stored magnitudes by weighted least squares (delta and r
+	// geocentric, from the target's orbit), keeps the fit in the target's
+	// history and, with apply, makes it the target's law, so that plans from
+	// then on predict with it. K1 is held at the target's current value (10
+	// when it has none) unless the observations determine it to 2.5 or better.
+	// Errors: INVALID_ARGUMENT, NOT_FOUND, FAILED_PRECONDITION for a target
+	// that is not a comet or fewer than 2 observations.
+	RefitMagnitudeLaw(context.Context, *RefitMagnitudeLawRequest) (*RefitMagnitudeLawResponse, error)
+	// MagnitudeHistory returns a target's fits, oldest first, and its
+	// observations.
+	// Errors: INVALID_ARGUMENT, NOT_FOUND.
+	MagnitudeHistory(context.Context, *MagnitudeHistoryRequest) (*MagnitudeHistoryResponse, error)
 	mustEmbedUnimplementedApparitionServiceServer()
 }
 
@@ -81,6 +152,15 @@ type UnimplementedApparitionServiceServer struct{}
 
 func (UnimplementedApparitionServiceServer) Outlook(context.Context, *OutlookRequest) (*OutlookResponse, error) {
 	return nil, status.Error(codes.Unimplemented, "method Outlook not implemented")
+}
+func (UnimplementedApparitionServiceServer) ReportMagnitudes(context.Context, *ReportMagnitudesRequest) (*ReportMagnitudesResponse, error) {
+	return nil, status.Error(codes.Unimplemented, "method ReportMagnitudes not implemented")
+}
+func (UnimplementedApparitionServiceServer) RefitMagnitudeLaw(context.Context, *RefitMagnitudeLawRequest) (*RefitMagnitudeLawResponse, error) {
+	return nil, status.Error(codes.Unimplemented, "method RefitMagnitudeLaw not implemented")
+}
+func (UnimplementedApparitionServiceServer) MagnitudeHistory(context.Context, *MagnitudeHistoryRequest) (*MagnitudeHistoryResponse, error) {
+	return nil, status.Error(codes.Unimplemented, "method MagnitudeHistory not implemented")
 }
 func (UnimplementedApparitionServiceServer) mustEmbedUnimplementedApparitionServiceServer() {}
 func (UnimplementedApparitionServiceServer) testEmbeddedByValue()                           {}
@@ -121,6 +201,60 @@ func _ApparitionService_Outlook_Handler(srv interface{}, ctx context.Context, de
 	return interceptor(ctx, in, info, handler)
 }
 
+func _ApparitionService_ReportMagnitudes_Handler(srv interface{}, ctx context.Context, dec func(interface{}) error, interceptor grpc.UnaryServerInterceptor) (interface{}, error) {
+	in := new(ReportMagnitudesRequest)
+	if err := dec(in); err != nil {
+		return nil, err
+	}
+	if interceptor == nil {
+		return srv.(ApparitionServiceServer).ReportMagnitudes(ctx, in)
+	}
+	info := &grpc.UnaryServerInfo{
+		Server:     srv,
+		FullMethod: ApparitionService_ReportMagnitudes_FullMethodName,
+	}
+	handler := func(ctx context.Context, req interface{}) (interface{}, error) {
+		return srv.(ApparitionServiceServer).ReportMagnitudes(ctx, req.(*ReportMagnitudesRequest))
+	}
+	return interceptor(ctx, in, info, handler)
+}
+
+func _ApparitionService_RefitMagnitudeLaw_Handler(srv interface{}, ctx context.Context, dec func(interface{}) error, interceptor grpc.UnaryServerInterceptor) (interface{}, error) {
+	in := new(RefitMagnitudeLawRequest)
+	if err := dec(in); err != nil {
+		return nil, err
+	}
+	if interceptor == nil {
+		return srv.(ApparitionServiceServer).RefitMagnitudeLaw(ctx, in)
+	}
+	info := &grpc.UnaryServerInfo{
+		Server:     srv,
+		FullMethod: ApparitionService_RefitMagnitudeLaw_FullMethodName,
+	}
+	handler := func(ctx context.Context, req interface{}) (interface{}, error) {
+		return srv.(ApparitionServiceServer).RefitMagnitudeLaw(ctx, req.(*RefitMagnitudeLawRequest))
+	}
+	return interceptor(ctx, in, info, handler)
+}
+
+func _ApparitionService_MagnitudeHistory_Handler(srv interface{}, ctx context.Context, dec func(interface{}) error, interceptor grpc.UnaryServerInterceptor) (interface{}, error) {
+	in := new(MagnitudeHistoryRequest)
+	if err := dec(in); err != nil {
+		return nil, err
+	}
+	if interceptor == nil {
+		return srv.(ApparitionServiceServer).MagnitudeHistory(ctx, in)
+	}
+	info := &grpc.UnaryServerInfo{
+		Server:     srv,
+		FullMethod: ApparitionService_MagnitudeHistory_FullMethodName,
+	}
+	handler := func(ctx context.Context, req interface{}) (interface{}, error) {
+		return srv.(ApparitionServiceServer).MagnitudeHistory(ctx, req.(*MagnitudeHistoryRequest))
+	}
+	return interceptor(ctx, in, info, handler)
+}
+
 // ApparitionService_ServiceDesc is the grpc.ServiceDesc for ApparitionService service.
 // It's only intended for direct use with grpc.RegisterService,
 // and not to be introspected or modified (even as a copy)
@@ -131,6 +265,18 @@ var ApparitionService_ServiceDesc = grpc.ServiceDesc{
 		{
 			MethodName: "Outlook",
 			Handler:    _ApparitionService_Outlook_Handler,
+		},
+		{
+			MethodName: "ReportMagnitudes",
+			Handler:    _ApparitionService_ReportMagnitudes_Handler,
+		},
+		{
+			MethodName: "RefitMagnitudeLaw",
+			Handler:    _ApparitionService_RefitMagnitudeLaw_Handler,
+		},
+		{
+			MethodName: "MagnitudeHistory",
+			Handler:    _ApparitionService_MagnitudeHistory_Handler,
 		},
 	},
 	Streams:  []grpc.StreamDesc{},
