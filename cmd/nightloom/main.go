@@ -68,6 +68,7 @@ func commands() []command {
 		{name: "target", summary: "fixed, orbit and body targets: create, get, list, update, delete, import", sub: targetCommands()},
 		{name: "block", summary: "the queue of imaging blocks: queue, get, list, withdraw", sub: blockCommands()},
 		{name: "plan", summary: "plans: make, show, list, replan, next, watch, chart", sub: planCommands()},
+		{name: "comet", summary: "a comet's measured magnitudes: report, refit the magnitude law, history", sub: cometCommands()},
 		{name: "progress", summary: "progress reports from the telescope control software: report", sub: progressCommands()},
 		{name: "ephemeris", summary: "tabulate a target seen from a site (daemon)", run: runEphemeris},
 		{name: "visibility", summary: "when a block or target can be observed in a night, and why not (daemon)", run: runVisibility},

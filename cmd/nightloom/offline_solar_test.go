@@ -2,6 +2,7 @@ package main
 
 import (
 	"encoding/json"
+	"fmt"
 	"math"
 	"os"
 	"path/filepath"
@@ -181,5 +182,45 @@ func TestOutlookCommand(t *testing.T) {
 	checkPNG(t, png)
 	if r := d.cli(t, "outlook", "--site", "x", "--target", "y"); r.code != 2 || !strings.Contains(r.stderr, "--from") {
 		t.Errorf("no --from: exit %d, %q", r.code, r.stderr)
+	}
+}
+
+// comet magnitude / refit / history against a real daemon: magnitudes
+// written from a known law (M1 6.0, K1 10 for the demo comet, no noise)
+// are fitted back, applied, drawn and listed.
+func TestCometRefitCommands(t *testing.T) {
+	d := startTestDaemon(t)
+	dir := t.TempDir()
+	var ir pb.ImportElementsResponse
+	parse(t, d.cli(t, "target", "import", "--elements", demoFile("comet-elements.txt"), "--json").ok(t, "import").stdout, &ir)
+	id := ir.GetTargets()[0].GetId()
+	c, err := readElements(demoFile("comet-elements.txt"), "")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var zero ephem.Vec3
+	for i := 0; i < 6; i++ {
+		at := time.Date(2027, 1, 2+3*i, 6, 0, 0, 0, time.UTC)
+		s := ephem.Prepare(ephem.NewInstant(at))
+		w := c.Observe(s.TT, s.EarthPos, s.EarthVel, zero, zero)
+		m := 6.0 + 5*math.Log10(w.DeltaAU) + 10*math.Log10(w.RAU)
+		d.cli(t, "comet", "magnitude", "--target", id, "--at", at.Format(time.RFC3339), "--mag", fmt.Sprintf("%.3f", m),
+			"--sigma-mag", "0.1").ok(t, "comet magnitude")
+	}
+	png := filepath.Join(dir, "light.png")
+	if p := os.Getenv("NIGHTLOOM_KEEP_LIGHT_PNG"); p != "" {
+		png = p
+	}
+	out := d.cli(t, "comet", "refit", "--target", id, "--apply", "--chart", png).ok(t, "comet refit").stdout
+	if !strings.Contains(out, "M1 6.00") || !strings.Contains(out, "applied") {
+		t.Errorf("refit output:\n%s", out)
+	}
+	checkPNG(t, png)
+	hist := d.cli(t, "comet", "history", "--target", id).ok(t, "comet history").stdout
+	if strings.Count(hist, "obs-") != 6 || !strings.Contains(hist, "true") {
+		t.Errorf("history:\n%s", hist)
+	}
+	if r := d.cli(t, "comet", "magnitude", "--target", id, "--at", "2027-01-02T06:00:00Z"); r.code != 2 || !strings.Contains(r.stderr, "--mag") {
+		t.Errorf("no --mag: exit %d, %q", r.code, r.stderr)
 	}
 }
