@@ -9,11 +9,13 @@ import (
 )
 
 // Target is something to point at: a fixed star (ICRS place with optional
-// proper motion) or a small body on a conic orbit.
+// proper motion) or a moving body: a small body on a conic orbit
+// (*ephem.Conic), a planet or the Moon (ephem.NewBody). Everything
+// downstream treats every moving body alike.
 type Target struct {
 	Name  string
 	Star  *ephem.Star
-	Orbit *ephem.Conic
+	Orbit ephem.Mover
 }
 
 // ErrTarget reports a target that is neither fixed nor orbit, or both.

@@ -70,3 +70,33 @@ func BenchmarkNightEvents(b *testing.B) {
 		sinkNight = NightOf(&o, 2026, 12, 1+i%28)
 	}
 }
+
+// BenchmarkPlanet is the per-(target, instant) cost of a planet or the
+// Moon: "helio" the truncated VSOP87B series alone, "observe" the
+// topocentric view with light time, rates and magnitude (what a night grid
+// pays per step), one b.Run per body.
+func BenchmarkPlanet(b *testing.B) {
+	o, _ := NewObserver(46.52, 7.41, 1410)
+	s := Prepare(NewInstant(time.Date(2026, 12, 24, 20, 0, 0, 0, time.UTC)))
+	l := s.Local(&o)
+	for _, name := range BodyNames() {
+		body, _ := ParseBody(name)
+		m, _ := NewBody(body)
+		if p, ok := m.(*Planet); ok {
+			b.Run(name+"/helio", func(b *testing.B) {
+				b.ReportAllocs()
+				for i := 0; b.Loop(); i++ {
+					pos, _ := p.Heliocentric(s.TT.AddDays(float64(i%720) / 1440))
+					sinkFloat += pos[0]
+				}
+			})
+		}
+		b.Run(name+"/observe", func(b *testing.B) {
+			b.ReportAllocs()
+			for b.Loop() {
+				u, v := l.OrbitView(m)
+				sinkFloat += u[0] + v.Magnitude
+			}
+		})
+	}
+}

@@ -42,10 +42,10 @@ func (l *Local) MoonPlace() Place { return l.place(l.MoonOfDate()) }
 // direction (Star.Direction).
 func (l *Local) StarPlace(u Vec3) Place { return l.place(l.StarOfDate(u)) }
 
-// OrbitPlace returns a small body's topocentric apparent place, with the
+// OrbitPlace returns a moving body's (conic, planet or Moon) topocentric apparent place, with the
 // topocentric and the geocentric views (astrometric directions, distances,
 // magnitude, rates) that produced it.
-func (l *Local) OrbitPlace(c *Conic) (p Place, topo, geo View) {
+func (l *Local) OrbitPlace(c Mover) (p Place, topo, geo View) {
 	s := l.Snap
 	var zero Vec3
 	geo = c.Observe(s.TT, s.EarthPos, s.EarthVel, zero, zero)
@@ -64,7 +64,7 @@ func (l *Local) StarHADec(u Vec3) Vec3 {
 // OrbitView is the topocentric half of OrbitPlace: the apparent true-of-date
 // unit direction of a small body and the topocentric view (distance,
 // magnitude, rates) it came from.
-func (l *Local) OrbitView(c *Conic) (ofDate Vec3, v View) {
+func (l *Local) OrbitView(c Mover) (ofDate Vec3, v View) {
 	s := l.Snap
 	v = c.Observe(s.TT, s.EarthPos, s.EarthVel, l.ObsPosAU, l.ObsVelAU)
 	return s.NPB.MulVec(Aberrate(v.Astrometric.Unit(), l.beta)).Unit(), v

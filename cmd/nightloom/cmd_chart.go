@@ -174,9 +174,9 @@ func skyChart(path string, o *ephem.Observer, loc *time.Location, at time.Time, 
 }
 
 // chartSky is `sky --chart`: the target given by --ra/--dec or --orbit.
-func chartSky(path, tz string, o *ephem.Observer, at time.Time, star *ephem.Star, orbit *ephem.Conic, ra, dec, orbitPath string) error {
+func chartSky(path, tz string, o *ephem.Observer, at time.Time, star *ephem.Star, orbit ephem.Mover, ra, dec, orbitPath string) error {
 	if star == nil && orbit == nil {
-		return flagError("chart", "needs a target: --ra/--dec or --orbit")
+		return flagError("chart", "needs a target: --ra/--dec, --orbit, --body or --elements")
 	}
 	loc := time.FixedZone("LMT", int(math.Round(o.LonRad*ephem.Rad2Deg/15*3600)))
 	if tz != "" {
@@ -206,3 +206,6 @@ func writeChart(spec chart.Spec, path string) error {
 	}
 	return nil
 }
+
+// chartDPI is the PNG resolution of every chart the client draws.
+const chartDPI = chart.DPI

@@ -24,6 +24,7 @@ func targetCommands() []command {
 		{name: "list", summary: "list the targets", run: runTargetList},
 		{name: "update", summary: "change a target from an UpdateTargetRequest file", run: runTargetUpdate},
 		{name: "delete", summary: "remove a target", run: runTargetDelete},
+		{name: "import", summary: "store orbit targets from a file of one-line orbital elements, all or nothing", run: runTargetImport},
 	}
 }
 
@@ -316,6 +317,8 @@ func describePosition(t *pb.Target) (kind, where string) {
 			where += fmt.Sprintf("  H %.2f G %.2f", m.Asteroid.GetH(), m.Asteroid.GetG())
 		}
 		return "orbit", where
+	case *pb.Target_Body:
+		return "body", p.Body.GetName()
 	}
 	return "-", "-"
 }

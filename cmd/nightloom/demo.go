@@ -259,6 +259,19 @@ func loadDemoScenario(a *api, stderr io.Writer) (*demoScenario, error) {
 		}
 		sc.targets = append(sc.targets, tr.GetTarget())
 	}
+	// The comet comes from a file of one-line orbital elements, as an
+	// observer would get it, with the same call as `target import`.
+	text, err := demoData.ReadFile("demodata/comet-elements.txt")
+	if err != nil {
+		return nil, err
+	}
+	ctx, cancel = a.ctx()
+	ir, err := a.targets.ImportElements(ctx, &pb.ImportElementsRequest{RequestId: "demo-comet-elements", Text: string(text)})
+	cancel()
+	if err != nil {
+		return nil, fmt.Errorf("testdata/demo/comet-elements.txt: %w", a.callErr("ImportElements", err))
+	}
+	sc.targets = append(sc.targets, ir.GetTargets()...)
 	// Real objects beside the invented ones, by catalogue name.
 	names, err := demoData.ReadFile("demodata/targets-by-name.txt")
 	if err != nil {

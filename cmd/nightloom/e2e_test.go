@@ -197,6 +197,9 @@ func loadScenario(t *testing.T, d *testDaemon) (*pb.Site, []*pb.Target, []*pb.Bl
 			ts = append(ts, cr.GetTarget())
 		}
 	}
+	var ir pb.ImportElementsResponse
+	parse(t, d.cli(t, "target", "import", "--elements", demoFile("comet-elements.txt"), "--json").ok(t, "target import").stdout, &ir)
+	ts = append(ts, ir.GetTargets()...)
 	var qr pb.QueueBlocksResponse
 	parse(t, d.cli(t, "block", "queue", "--file", demoFile("blocks.json"), "--site", sr.GetSite().GetId(), "--json").ok(t, "block queue").stdout, &qr)
 	return sr.GetSite(), ts, qr.GetBlocks()
@@ -217,8 +220,8 @@ func TestClientAgainstDaemon(t *testing.T) {
 	if p := site.GetPressureHpa(); p < 930 || p > 943 {
 		t.Errorf("pressure %v hPa, want the ISA value at 650 m, about 937", p)
 	}
-	if len(targets) != 14 || len(blocks) != 21 {
-		t.Fatalf("%d targets and %d blocks stored, want 14 and 21", len(targets), len(blocks))
+	if len(targets) != 15 || len(blocks) != 22 {
+		t.Fatalf("%d targets and %d blocks stored, want 15 and 22", len(targets), len(blocks))
 	}
 	ids := map[string]string{}
 	for _, tg := range targets {
@@ -229,8 +232,10 @@ func TestClientAgainstDaemon(t *testing.T) {
 			t.Errorf("block %d: site %q target %q: references not resolved", i, b.GetSiteId(), b.GetTargetId())
 		}
 	}
-	if blocks[0].GetTargetId() != ids["NLD 12"] || blocks[18].GetTargetId() != ids["Comet NL-1 (invented)"] {
-		t.Errorf("blocks point at the wrong targets: %v / %v", blocks[0].GetTargetId(), blocks[18].GetTargetId())
+	if blocks[0].GetTargetId() != ids["NLD 12"] || blocks[18].GetTargetId() != ids["Comet NL-1 (invented)"] ||
+		blocks[21].GetTargetId() != ids["Jupiter"] || blocks[19].GetTargetId() != ids["M 42"] {
+		t.Errorf("blocks point at the wrong targets: %v / %v / %v", blocks[0].GetTargetId(), blocks[18].GetTargetId(),
+			blocks[21].GetTargetId())
 	}
 
 	// Tables.
@@ -241,12 +246,12 @@ func TestClientAgainstDaemon(t *testing.T) {
 		}
 	}
 	out = d.cli(t, "target", "list").ok(t, "target list").stdout
-	if !strings.Contains(out, "hyperbola, retrograde") || !strings.Contains(out, "05h31m12.0s") {
+	if !strings.Contains(out, "hyperbola, retrograde") || !strings.Contains(out, "05h31m12.0s") || !strings.Contains(out, "body") {
 		t.Errorf("target list:\n%s", out)
 	}
 	out = d.cli(t, "block", "list", "--site", site.GetId(), "--state", "open").ok(t, "block list").stdout
-	if n := strings.Count(out, "\n"); n != 22 || !strings.Contains(out, "every 2h00m ±15m") {
-		t.Errorf("block list: %d lines, want a header and 21 blocks\n%s", n, out)
+	if n := strings.Count(out, "\n"); n != 23 || !strings.Contains(out, "every 2h00m ±15m") {
+		t.Errorf("block list: %d lines, want a header and 22 blocks\n%s", n, out)
 	}
 
 	// A plan, as JSON and as a table.
@@ -537,7 +542,7 @@ func TestDemo(t *testing.T) {
 	began := time.Now()
 	r := runBinary(t, nil, "demo", "--out", out).ok(t, "demo")
 	elapsed := time.Since(began)
-	for _, want := range []string{"1. Scenario", "14 targets and 21 blocks queued", "\"M 42\" is M 42 = NGC 1976 (Orion Nebula)", "2. Plan for the night of 2027-01-14",
+	for _, want := range []string{"1. Scenario", "15 targets and 22 blocks queued", "\"M 42\" is M 42 = NGC 1976 (Orion Nebula)", "Jupiter", "2. Plan for the night of 2027-01-14",
 		"unplaced blocks", "below horizon profile", "Comet NL-1 (invented)", "3. Chart of the plan",
 		"4. Interruption: clouds close the roof", "progress reports:", "5. Replanned from", "changed", "closure "} {
 		if !strings.Contains(r.stdout, want) {

@@ -4,7 +4,7 @@
 //
 // Offline (no daemon):
 //
-//	nightloom sky   --site LAT,LON[,ELEV_M] --at RFC3339 [--ra DEG --dec DEG | --orbit FILE.json] [--chart FILE.png] [--json]
+//	nightloom sky   --site LAT,LON[,ELEV_M] --at RFC3339 [--ra DEG --dec DEG | --orbit FILE.json | --body NAME | --elements FILE [--designation D]] [--chart FILE.png] [--json]
 //	nightloom night --site LAT,LON[,ELEV_M] --date YYYY-MM-DD [--tz ZONE] [--json]
 //	nightloom demo  [--out DIR]
 //	nightloom catalogue lookup|search|tonight|finder|constellation
@@ -67,13 +67,15 @@ func commands() []command {
 		{name: "catalogue", summary: "the bundled catalogue: lookup, search, tonight, finder, constellation (offline)", sub: catalogueCommands()},
 		{name: "demo", summary: "run a daemon in-process, plan an invented night, chart it, interrupt it and replan", run: runDemo},
 		{name: "site", summary: "telescopes at places: create, get, list, update, delete", sub: siteCommands()},
-		{name: "target", summary: "fixed and orbit targets: create, get, list, update, delete", sub: targetCommands()},
+		{name: "target", summary: "fixed, orbit and body targets: create, get, list, update, delete, import", sub: targetCommands()},
 		{name: "block", summary: "the queue of imaging blocks: queue, get, list, withdraw", sub: blockCommands()},
 		{name: "plan", summary: "plans: make, show, list, replan, next, watch, chart", sub: planCommands()},
+		{name: "comet", summary: "a comet's measured magnitudes: report, refit the magnitude law, history", sub: cometCommands()},
 		{name: "progress", summary: "progress reports from the telescope control software: report", sub: progressCommands()},
 		{name: "ephemeris", summary: "tabulate a target seen from a site (daemon)", run: runEphemeris},
 		{name: "visibility", summary: "when a block or target can be observed in a night, and why not (daemon)", run: runVisibility},
 		{name: "events", summary: "the Sun's and Moon's events of a site's night (daemon)", run: runEvents},
+		{name: "outlook", summary: "a target night by night over an apparition: windows, best altitude, magnitude (daemon)", run: runOutlook},
 	}
 }
 

@@ -16,6 +16,7 @@ import (
 
 	"github.com/nightloom/nightloom/catalogue"
 	"github.com/nightloom/nightloom/ephem"
+	"github.com/nightloom/nightloom/ephem/elements"
 )
 
 // newFlagSet returns a flag set that reports errors to us instead of
@@ -119,6 +120,33 @@ func readOrbit(path string) (*ephem.Conic, error) {
 	return c, nil
 }
 
+// readElements loads a file of one-line orbital elements and returns the
+// line whose designation is d (or the only line). A malformed line is
+// reported with its line number and columns.
+func readElements(path, d string) (*ephem.Conic, error) {
+	data, err := os.ReadFile(path)
+	if err != nil {
+		return nil, flagError("elements", "%v", err)
+	}
+	els, err := elements.Parse(string(data), false)
+	if err != nil {
+		return nil, flagError("elements", "%s: %v", path, strings.ReplaceAll(err.Error(), "elements: ", ""))
+	}
+	el, err := elements.Find(els, d)
+	if err != nil {
+		name := "designation"
+		if d == "" {
+			name = "elements"
+		}
+		return nil, flagError(name, "%s: %v", path, strings.TrimPrefix(err.Error(), "elements: "))
+	}
+	c, err := ephem.NewConic(el.Orbit)
+	if err != nil {
+		return nil, flagError("elements", "%s: line %d: %v", path, el.Line, strings.TrimPrefix(err.Error(), "ephem: "))
+	}
+	return c, nil
+}
+
 // skyBody is the JSON of the Sun or the Moon in `sky --json`.
 type skyBody struct {
 	RADeg        float64  `json:"ra_deg"`
@@ -165,7 +193,8 @@ func ptr(x float64) *float64 { return &x }
 func deg(rad float64) float64 { return rad * ephem.Rad2Deg }
 
 // computeSky evaluates the sky contract for one site and instant.
-func computeSky(o *ephem.Observer, at time.Time, star *ephem.Star, orbit *ephem.Conic) skyResult {
+// orbit is any moving body: a conic, a planet or the Moon.
+func computeSky(o *ephem.Observer, at time.Time, star *ephem.Star, orbit ephem.Mover) skyResult {
 	snap := ephem.Prepare(ephem.NewInstant(at))
 	l := snap.Local(o)
 	sun, moon := l.SunPlace(), l.MoonPlace()
@@ -212,6 +241,9 @@ func runSky(args []string, stdout, stderr io.Writer) error {
 	dec := fs.String("dec", "", "fixed target declination, ICRS degrees")
 	orbitPath := fs.String("orbit", "", "orbit target: JSON file with q_au, e, i_deg, node_deg, peri_deg, perihelion_tt, m1, k1")
 	name := fs.String("name", "", "fixed target from the bundled catalogue (M 31, NGC 224, Vega), instead of --ra/--dec")
+	body := fs.String("body", "", "a planet or the Moon as target: "+strings.Join(ephem.BodyNames(), ", "))
+	elementsPath := fs.String("elements", "", "orbit target from a file of one-line orbital elements (comet or minor-planet format)")
+	designation := fs.String("designation", "", "with --elements: the line whose designation is this (default: the only line)")
 	pressure := fs.Float64("pressure-hpa", 1010, "air pressure for refraction, hPa (0 = geometric altitudes)")
 	temp := fs.Float64("temperature-c", 10, "air temperature for refraction, C")
 	asJSON := fs.Bool("json", false, "print one JSON object")
@@ -246,11 +278,11 @@ func runSky(args []string, stdout, stderr io.Writer) error {
 		return flagError("at", "year %d outside 1800-2200, where the series are valid", when.Year())
 	}
 	var star *ephem.Star
-	var orbit *ephem.Conic
+	var orbit ephem.Mover
 	var catID string
 	if *name != "" {
-		if *ra != "" || *dec != "" || *orbitPath != "" {
-			return flagError("name", "give one of --name, --ra/--dec or --orbit")
+		if *ra != "" || *dec != "" || *orbitPath != "" || *body != "" || *elementsPath != "" {
+			return flagError("name", "give one of --name, --ra/--dec, --orbit, --body or --elements")
 		}
 		res, err := resolveFlag(catalogue.Default(), "name", *name)
 		if err != nil {
@@ -260,7 +292,18 @@ func runSky(args []string, stdout, stderr io.Writer) error {
 		fmt.Fprintf(stderr, "%q is %s\n", *name, res.Entry.Label())
 		*ra, *dec = strconv.FormatFloat(res.Entry.RADeg, 'f', -1, 64), strconv.FormatFloat(res.Entry.DecDeg, 'f', -1, 64)
 	}
+	targets := 0
+	for _, f := range []string{*ra + *dec, *orbitPath, *body, *elementsPath} {
+		if f != "" {
+			targets++
+		}
+	}
+	if *designation != "" && *elementsPath == "" {
+		return flagError("designation", "needs --elements")
+	}
 	switch {
+	case targets > 1:
+		return flagError("body", "give one target: --ra/--dec, --orbit, --body or --elements")
 	case (*ra == "") != (*dec == ""):
 		if *ra == "" {
 			return flagError("ra", "required with --dec")
@@ -283,16 +326,38 @@ func runSky(args []string, stdout, stderr io.Writer) error {
 		}
 		star = &s
 	case *orbitPath != "":
-		if orbit, err = readOrbit(*orbitPath); err != nil {
+		c, err := readOrbit(*orbitPath)
+		if err != nil {
 			return err
 		}
+		orbit = c
+	case *body != "":
+		b, err := ephem.ParseBody(*body)
+		if err != nil {
+			return flagError("body", "unknown body %q; want one of %s", *body, strings.Join(ephem.BodyNames(), ", "))
+		}
+		if orbit, err = ephem.NewBody(b); err != nil {
+			return flagError("body", "%v", err)
+		}
+	case *elementsPath != "":
+		c, err := readElements(*elementsPath, *designation)
+		if err != nil {
+			return err
+		}
+		orbit = c
 	}
 	r := computeSky(&o, when, star, orbit)
 	if r.Target != nil {
 		r.Target.CatalogueID = catID
 	}
 	if *chart != "" {
-		if err := chartSky(*chart, *tz, &o, when, star, orbit, *ra, *dec, *orbitPath); err != nil {
+		label := *orbitPath
+		if *body != "" {
+			label = *body
+		} else if *elementsPath != "" {
+			label = *elementsPath
+		}
+		if err := chartSky(*chart, *tz, &o, when, star, orbit, *ra, *dec, label); err != nil {
 			return err
 		}
 		fmt.Fprintf(stderr, "wrote %s\n", *chart)

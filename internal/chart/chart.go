@@ -498,3 +498,7 @@ func (s Spec) theme() *Theme {
 	}
 	return s.Theme
 }
+
+// DPI is the resolution of the PNG charts, for other charts drawn beside
+// them (light curves, outlooks) to match.
+const DPI = chartDPI

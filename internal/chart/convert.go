@@ -95,6 +95,16 @@ func TargetFromProto(t *pb.Target) (*constraints.Target, error) {
 			return nil, fmt.Errorf("target %s: %w", t.GetId(), err)
 		}
 		return &constraints.Target{Name: t.GetName(), Orbit: c}, nil
+	case *pb.Target_Body:
+		b, err := ephem.ParseBody(p.Body.GetName())
+		if err != nil {
+			return nil, fmt.Errorf("target %s: %w", t.GetId(), err)
+		}
+		m, err := ephem.NewBody(b)
+		if err != nil {
+			return nil, fmt.Errorf("target %s: %w", t.GetId(), err)
+		}
+		return &constraints.Target{Name: t.GetName(), Orbit: m}, nil
 	}
 	return nil, fmt.Errorf("target %s has no position", t.GetId())
 }

@@ -65,11 +65,12 @@ var methodRoles = map[string][]Role{
 	nightloomv1.SiteService_UpdateSite_FullMethodName: administrator,
 	nightloomv1.SiteService_DeleteSite_FullMethodName: administrator,
 
-	nightloomv1.TargetService_CreateTarget_FullMethodName: administrator,
-	nightloomv1.TargetService_GetTarget_FullMethodName:    readers,
-	nightloomv1.TargetService_ListTargets_FullMethodName:  readers,
-	nightloomv1.TargetService_UpdateTarget_FullMethodName: administrator,
-	nightloomv1.TargetService_DeleteTarget_FullMethodName: administrator,
+	nightloomv1.TargetService_CreateTarget_FullMethodName:   administrator,
+	nightloomv1.TargetService_GetTarget_FullMethodName:      readers,
+	nightloomv1.TargetService_ListTargets_FullMethodName:    readers,
+	nightloomv1.TargetService_UpdateTarget_FullMethodName:   administrator,
+	nightloomv1.TargetService_DeleteTarget_FullMethodName:   administrator,
+	nightloomv1.TargetService_ImportElements_FullMethodName: administrator,
 
 	nightloomv1.QueueService_QueueBlocks_FullMethodName:    planners,
 	nightloomv1.QueueService_GetBlock_FullMethodName:       queueReaders,
@@ -88,8 +89,12 @@ var methodRoles = map[string][]Role{
 	nightloomv1.SkyService_Night_FullMethodName:      readers,
 	nightloomv1.SkyService_Visibility_FullMethodName: readers,
 
-	nightloomv1.CatalogueService_LookupName_FullMethodName:      readers,
-	nightloomv1.CatalogueService_SearchCatalogue_FullMethodName: readers,
+	nightloomv1.CatalogueService_LookupName_FullMethodName:         readers,
+	nightloomv1.CatalogueService_SearchCatalogue_FullMethodName:    readers,
+	nightloomv1.ApparitionService_Outlook_FullMethodName:           readers,
+	nightloomv1.ApparitionService_ReportMagnitudes_FullMethodName:  reporters,
+	nightloomv1.ApparitionService_RefitMagnitudeLaw_FullMethodName: planners,
+	nightloomv1.ApparitionService_MagnitudeHistory_FullMethodName:  readers,
 }
 
 // MethodRoles returns the roles allowed to call a full method name, and

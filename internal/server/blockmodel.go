@@ -148,9 +148,10 @@ func constraintSet(c *nightloomv1.ConstraintSet, hasMagLaw bool) *constraints.Se
 	return s
 }
 
-// hasMagLaw reports whether a target has a magnitude law.
+// hasMagLaw reports whether a target has a magnitude law (a body always
+// has one, except that the Moon's is rough).
 func hasMagLaw(t *nightloomv1.Target) bool {
-	return t.GetOrbit() != nil && t.GetOrbit().GetMagnitudeLaw() != nil
+	return t.GetBody() != nil || t.GetOrbit() != nil && t.GetOrbit().GetMagnitudeLaw() != nil
 }
 
 // normalizeBlock returns a copy of b without its output-only fields: the
@@ -209,8 +210,8 @@ func checkBlockRefs(v *violations, path string, b *nightloomv1.Block, site *nigh
 			v.add(path+".filter", "filter %q is not one of site %s's filters %q", b.GetFilter(), site.GetId(), fs)
 		}
 	}
-	if b.GetNonSiderealTracking() && target.GetOrbit() == nil {
-		v.add(path+".non_sidereal_tracking", "is only for orbit targets; target %s is fixed", target.GetId())
+	if b.GetNonSiderealTracking() && target.GetOrbit() == nil && target.GetBody() == nil {
+		v.add(path+".non_sidereal_tracking", "is only for orbit and body targets; target %s is fixed", target.GetId())
 	}
 }
 

@@ -121,6 +121,7 @@ type validCall func(t *testing.T) func(ctx context.Context) error
 // when an RPC of the descriptors has none.
 func validCalls(e *env, f fixture, plan *nightloomv1.Plan) map[string]validCall {
 	site, tgt, blk := f.site.GetId(), f.targets[0].GetId(), f.blocks[0].GetId()
+	comet := f.targets[4].GetId() // testComet (seed order)
 	adm := e.admin()
 	night := &nightloomv1.MakePlanRequest_Night{Night: testNight}
 	p0 := plan.GetInterval().GetStart().AsTime()
@@ -195,6 +196,12 @@ func validCalls(e *env, f fixture, plan *nightloomv1.Plan) map[string]validCall 
 			id := newTarget(t)
 			return func(ctx context.Context) error {
 				_, err := e.targets.DeleteTarget(ctx, &nightloomv1.DeleteTargetRequest{TargetId: id})
+				return err
+			}
+		},
+		nightloomv1.TargetService_ImportElements_FullMethodName: func(t *testing.T) func(ctx context.Context) error {
+			return func(ctx context.Context) error {
+				_, err := e.targets.ImportElements(ctx, &nightloomv1.ImportElementsRequest{RequestId: newID("imp-"), Text: importComet})
 				return err
 			}
 		},
@@ -284,6 +291,35 @@ func validCalls(e *env, f fixture, plan *nightloomv1.Plan) map[string]validCall 
 				Span: &nightloomv1.VisibilityRequest_Night{Night: testNight}})
 			return err
 		}),
+		nightloomv1.ApparitionService_ReportMagnitudes_FullMethodName: func(t *testing.T) func(ctx context.Context) error {
+			return func(ctx context.Context) error {
+				_, err := nightloomv1.NewApparitionServiceClient(e.conn).ReportMagnitudes(ctx, &nightloomv1.ReportMagnitudesRequest{TargetId: comet,
+					Observations: []*nightloomv1.MagnitudeObservation{{Id: newID("obs-"), Time: ts(p0), Magnitude: 9, SigmaMag: 0.2}}})
+				return err
+			}
+		},
+		nightloomv1.ApparitionService_RefitMagnitudeLaw_FullMethodName: func(t *testing.T) func(ctx context.Context) error {
+			cl := nightloomv1.NewApparitionServiceClient(e.conn)
+			_, err := cl.ReportMagnitudes(e.admin(), &nightloomv1.ReportMagnitudesRequest{TargetId: comet,
+				Observations: []*nightloomv1.MagnitudeObservation{{Id: newID("obs-"), Time: ts(p0), Magnitude: 9, SigmaMag: 0.2},
+					{Id: newID("obs-"), Time: ts(p0.Add(48 * time.Hour)), Magnitude: 8.8, SigmaMag: 0.2}}})
+			if err != nil {
+				t.Fatal(err)
+			}
+			return func(ctx context.Context) error {
+				_, err := cl.RefitMagnitudeLaw(ctx, &nightloomv1.RefitMagnitudeLawRequest{TargetId: comet})
+				return err
+			}
+		},
+		nightloomv1.ApparitionService_MagnitudeHistory_FullMethodName: now(func(ctx context.Context) error {
+			_, err := nightloomv1.NewApparitionServiceClient(e.conn).MagnitudeHistory(ctx, &nightloomv1.MagnitudeHistoryRequest{TargetId: comet})
+			return err
+		}),
+		nightloomv1.ApparitionService_Outlook_FullMethodName: now(func(ctx context.Context) error {
+			_, err := nightloomv1.NewApparitionServiceClient(e.conn).Outlook(ctx, &nightloomv1.OutlookRequest{SiteId: site,
+				Subject: &nightloomv1.OutlookRequest_TargetId{TargetId: tgt}, FirstNight: testNight, Nights: 2, Step: dur(30 * time.Minute)})
+			return err
+		}),
 	}
 }
 
@@ -297,32 +333,37 @@ var specRoles = func() map[string][]Role {
 	v, o, tel, a := RoleViewer, RoleOperator, RoleTelescope, RoleAdmin
 	read, queueRead, plan, report, admin := []Role{v, o, a}, []Role{v, o, tel, a}, []Role{o, a}, []Role{tel, o, a}, []Role{a}
 	return map[string][]Role{
-		nightloomv1.SiteService_CreateSite_FullMethodName:           admin,
-		nightloomv1.SiteService_GetSite_FullMethodName:              read,
-		nightloomv1.SiteService_ListSites_FullMethodName:            read,
-		nightloomv1.SiteService_UpdateSite_FullMethodName:           admin,
-		nightloomv1.SiteService_DeleteSite_FullMethodName:           admin,
-		nightloomv1.TargetService_CreateTarget_FullMethodName:       admin,
-		nightloomv1.TargetService_GetTarget_FullMethodName:          read,
-		nightloomv1.TargetService_ListTargets_FullMethodName:        read,
-		nightloomv1.TargetService_UpdateTarget_FullMethodName:       admin,
-		nightloomv1.TargetService_DeleteTarget_FullMethodName:       admin,
-		nightloomv1.QueueService_QueueBlocks_FullMethodName:         plan,
-		nightloomv1.QueueService_GetBlock_FullMethodName:            queueRead,
-		nightloomv1.QueueService_ListBlocks_FullMethodName:          queueRead,
-		nightloomv1.QueueService_WithdrawBlock_FullMethodName:       plan,
-		nightloomv1.QueueService_ReportProgress_FullMethodName:      report,
-		nightloomv1.PlanService_MakePlan_FullMethodName:             plan,
-		nightloomv1.PlanService_GetPlan_FullMethodName:              queueRead,
-		nightloomv1.PlanService_ListPlans_FullMethodName:            queueRead,
-		nightloomv1.PlanService_Replan_FullMethodName:               plan,
-		nightloomv1.PlanService_NextAssignment_FullMethodName:       queueRead,
-		nightloomv1.PlanService_WatchPlans_FullMethodName:           queueRead,
-		nightloomv1.SkyService_Ephemeris_FullMethodName:             read,
-		nightloomv1.SkyService_Night_FullMethodName:                 read,
-		nightloomv1.SkyService_Visibility_FullMethodName:            read,
-		nightloomv1.CatalogueService_LookupName_FullMethodName:      read,
-		nightloomv1.CatalogueService_SearchCatalogue_FullMethodName: read,
+		nightloomv1.SiteService_CreateSite_FullMethodName:              admin,
+		nightloomv1.SiteService_GetSite_FullMethodName:                 read,
+		nightloomv1.SiteService_ListSites_FullMethodName:               read,
+		nightloomv1.SiteService_UpdateSite_FullMethodName:              admin,
+		nightloomv1.SiteService_DeleteSite_FullMethodName:              admin,
+		nightloomv1.TargetService_CreateTarget_FullMethodName:          admin,
+		nightloomv1.TargetService_GetTarget_FullMethodName:             read,
+		nightloomv1.TargetService_ListTargets_FullMethodName:           read,
+		nightloomv1.TargetService_UpdateTarget_FullMethodName:          admin,
+		nightloomv1.TargetService_DeleteTarget_FullMethodName:          admin,
+		nightloomv1.TargetService_ImportElements_FullMethodName:        admin,
+		nightloomv1.QueueService_QueueBlocks_FullMethodName:            plan,
+		nightloomv1.QueueService_GetBlock_FullMethodName:               queueRead,
+		nightloomv1.QueueService_ListBlocks_FullMethodName:             queueRead,
+		nightloomv1.QueueService_WithdrawBlock_FullMethodName:          plan,
+		nightloomv1.QueueService_ReportProgress_FullMethodName:         report,
+		nightloomv1.PlanService_MakePlan_FullMethodName:                plan,
+		nightloomv1.PlanService_GetPlan_FullMethodName:                 queueRead,
+		nightloomv1.PlanService_ListPlans_FullMethodName:               queueRead,
+		nightloomv1.PlanService_Replan_FullMethodName:                  plan,
+		nightloomv1.PlanService_NextAssignment_FullMethodName:          queueRead,
+		nightloomv1.PlanService_WatchPlans_FullMethodName:              queueRead,
+		nightloomv1.SkyService_Ephemeris_FullMethodName:                read,
+		nightloomv1.SkyService_Night_FullMethodName:                    read,
+		nightloomv1.SkyService_Visibility_FullMethodName:               read,
+		nightloomv1.ApparitionService_Outlook_FullMethodName:           read,
+		nightloomv1.ApparitionService_ReportMagnitudes_FullMethodName:  report,
+		nightloomv1.ApparitionService_RefitMagnitudeLaw_FullMethodName: plan,
+		nightloomv1.ApparitionService_MagnitudeHistory_FullMethodName:  read,
+		nightloomv1.CatalogueService_LookupName_FullMethodName:         read,
+		nightloomv1.CatalogueService_SearchCatalogue_FullMethodName:    read,
 	}
 }()
 
@@ -784,6 +825,13 @@ func fuzzSeeds(plan *nightloomv1.Plan) []fuzzSeed {
 			Subject:     &nightloomv1.VisibilityRequest_Target{Target: testComet()},
 			Constraints: comet.GetConstraints(), Exposure: dur(time.Minute), NonSiderealTracking: true,
 			Span: &nightloomv1.VisibilityRequest_Interval{Interval: iv(0, 6*time.Hour)}, Step: dur(5 * time.Minute)}},
+		{nightloomv1.ApparitionService_Outlook_FullMethodName, &nightloomv1.OutlookRequest{SiteId: "SITE",
+			Subject: &nightloomv1.OutlookRequest_Target{Target: testComet()}, FirstNight: testNight, Nights: 2, Step: dur(30 * time.Minute)}},
+		{nightloomv1.TargetService_ImportElements_FullMethodName, &nightloomv1.ImportElementsRequest{RequestId: "imp-seed", Text: importComet}},
+		{nightloomv1.ApparitionService_ReportMagnitudes_FullMethodName, &nightloomv1.ReportMagnitudesRequest{TargetId: "TGT4",
+			Observations: []*nightloomv1.MagnitudeObservation{{Id: "obs-seed", Time: ts(p0), Magnitude: 9, SigmaMag: 0.2}}}},
+		{nightloomv1.ApparitionService_RefitMagnitudeLaw_FullMethodName, &nightloomv1.RefitMagnitudeLawRequest{TargetId: "TGT4"}},
+		{nightloomv1.ApparitionService_MagnitudeHistory_FullMethodName, &nightloomv1.MagnitudeHistoryRequest{TargetId: "TGT4"}},
 	}
 }
 

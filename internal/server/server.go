@@ -244,6 +244,7 @@ func Start(ctx context.Context, cfg Config) (*Server, error) {
 	nightloomv1.RegisterPlanServiceServer(s.grpc, &planService{s: s})
 	nightloomv1.RegisterSkyServiceServer(s.grpc, &skyService{s: s})
 	nightloomv1.RegisterCatalogueServiceServer(s.grpc, &catalogueService{s: s})
+	nightloomv1.RegisterApparitionServiceServer(s.grpc, &apparitionService{s: s})
 	s.health = health.NewServer()
 	healthpb.RegisterHealthServer(s.grpc, s.health)
 	reflection.Register(s.grpc)

@@ -25,6 +25,11 @@ type Storage interface {
 	ListTargets(ctx context.Context, p store.Page) ([]store.Target, string, error)
 	UpdateTarget(ctx context.Context, t store.Target) (store.Target, error)
 	DeleteTarget(ctx context.Context, id string) error
+	ImportTargets(ctx context.Context, requestID string, fingerprint []byte, ts []store.Target) ([]store.Target, bool, error)
+	AddMagnitudeObservations(ctx context.Context, obs []store.MagnitudeObservation) (int, error)
+	MagnitudeObservations(ctx context.Context, targetID string, limit int) ([]store.MagnitudeObservation, error)
+	CreateMagnitudeFit(ctx context.Context, f store.MagnitudeFit, target *store.Target) (store.MagnitudeFit, error)
+	MagnitudeFits(ctx context.Context, targetID string) ([]store.MagnitudeFit, error)
 
 	CreateBlocks(ctx context.Context, blocks []store.Block) ([]store.Block, error)
 	GetBlock(ctx context.Context, id string) (store.Block, error)

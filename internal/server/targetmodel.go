@@ -2,6 +2,7 @@ package server
 
 import (
 	"math"
+	"strings"
 
 	"google.golang.org/protobuf/proto"
 
@@ -64,8 +65,16 @@ func checkTarget(v *violations, path string, t *nightloomv1.Target) *constraints
 			rangeCheck(v, p+".asteroid.h", law.Asteroid.GetH(), -5, 35)
 			rangeCheck(v, p+".asteroid.g", law.Asteroid.GetG(), -0.5, 1.5)
 		}
+	case *nightloomv1.Target_Body:
+		if pos.Body == nil {
+			v.add(path+".body", "is required")
+			break
+		}
+		if _, err := ephem.ParseBody(pos.Body.GetName()); err != nil {
+			v.add(path+".body.name", "unknown body %q; want one of %s", pos.Body.GetName(), strings.Join(ephem.BodyNames(), ", "))
+		}
 	default:
-		v.add(path+".position", "exactly one of fixed or orbit is required")
+		v.add(path+".position", "exactly one of fixed, orbit or body is required")
 	}
 	if len(v.list) > n {
 		return nil
@@ -73,8 +82,11 @@ func checkTarget(v *violations, path string, t *nightloomv1.Target) *constraints
 	ct, err := targetModel(t)
 	if err != nil {
 		field := path + ".fixed"
-		if t.GetOrbit() != nil {
+		switch {
+		case t.GetOrbit() != nil:
 			field = path + ".orbit"
+		case t.GetBody() != nil:
+			field = path + ".body"
 		}
 		v.add(field, "%v", err)
 		return nil
@@ -82,9 +94,11 @@ func checkTarget(v *violations, path string, t *nightloomv1.Target) *constraints
 	return ct
 }
 
-// targetKind is the store's kind of a target.
+// targetKind is the store's kind of a target. The store's "orbit" kind
+// means a moving target: a body (planet or Moon) is stored under it too, so
+// that the schema needs no change for it.
 func targetKind(t *nightloomv1.Target) string {
-	if t.GetOrbit() != nil {
+	if t.GetOrbit() != nil || t.GetBody() != nil {
 		return store.KindOrbit
 	}
 	return store.KindFixed
@@ -119,6 +133,17 @@ func targetModel(t *nightloomv1.Target) (*constraints.Target, error) {
 			return nil, err
 		}
 		return &constraints.Target{Name: t.GetName(), Star: &s}, nil
+	}
+	if b := t.GetBody(); b != nil {
+		body, err := ephem.ParseBody(b.GetName())
+		if err != nil {
+			return nil, err
+		}
+		m, err := ephem.NewBody(body)
+		if err != nil {
+			return nil, err
+		}
+		return &constraints.Target{Name: t.GetName(), Orbit: m}, nil
 	}
 	o := t.GetOrbit()
 	el := ephem.Orbit{

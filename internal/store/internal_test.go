@@ -5,6 +5,7 @@ package store
 // damaged on purpose.
 
 import (
+	"bytes"
 	"context"
 	"database/sql"
 	"errors"
@@ -128,8 +129,11 @@ func TestUpgradeFromEachVersion(t *testing.T) {
 			if _, err := db.CreatePlan(ctx, Plan{ID: "p", SiteID: "s", Start: time.Unix(1e9, 0), End: time.Unix(1e9, 0)}); err != nil {
 				t.Fatalf("plans after upgrade: %v", err)
 			}
-			if _, err := db.CreateToken(ctx, Token{ID: "k", Hash: make([]byte, 32), Role: "admin"}); err != nil {
+			if _, err := db.CreateToken(ctx, Token{ID: "k2", Hash: bytes.Repeat([]byte{1}, 32), Role: "admin"}); err != nil {
 				t.Fatalf("tokens after upgrade: %v", err)
+			}
+			if _, _, err := db.ImportTargets(ctx, "imp", make([]byte, 32), []Target{{ID: "t2", Name: "t2", Kind: KindOrbit}}); err != nil {
+				t.Fatalf("target imports after upgrade: %v", err)
 			}
 			var names []string
 			rows, err := db.r.Query(`SELECT version || '_' || name FROM schema_migrations ORDER BY version`)
@@ -142,7 +146,7 @@ func TestUpgradeFromEachVersion(t *testing.T) {
 				names = append(names, s)
 			}
 			rows.Close()
-			if got, want := strings.Join(names, ","), "1_init,2_plans,3_tokens"; got != want {
+			if got, want := strings.Join(names, ","), "1_init,2_plans,3_tokens,4_target_imports,5_magnitudes"; got != want {
 				t.Fatalf("schema_migrations: %s, want %s", got, want)
 			}
 			if err := db.IntegrityCheck(ctx); err != nil {

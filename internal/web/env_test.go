@@ -188,6 +188,22 @@ func (e *env) loadDemo(targetNames map[string]string) {
 		}
 		ids["@"+name] = tr.GetTarget().GetId()
 	}
+	// The comet, from its one-line orbital elements.
+	text, err := os.ReadFile(filepath.Join("..", "..", "testdata", "demo", "comet-elements.txt"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	ir, err := pb.NewTargetServiceClient(e.conn).ImportElements(ctx, &pb.ImportElementsRequest{RequestId: "web-demo-comet", Text: string(text)})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, tg := range ir.GetTargets() {
+		name := tg.GetName()
+		if n, ok := targetNames[name]; ok {
+			name = n
+		}
+		ids["@"+tg.GetName()] = tg.GetId()
+	}
 	// The demo's real objects, created by catalogue name (the server
 	// resolves catalogue_id and fills the place).
 	names, err := os.ReadFile(filepath.Join("..", "..", "testdata", "demo", "targets-by-name.txt"))

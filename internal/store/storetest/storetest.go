@@ -46,6 +46,8 @@ func Run(t *testing.T, open func(t *testing.T) *store.DB) {
 		{"Plans", testPlans},
 		{"PlansConcurrentVersions", testPlansConcurrentVersions},
 		{"Tokens", testTokens},
+		{"ImportTargets", testImportTargets},
+		{"Magnitudes", testMagnitudes},
 		{"Paging", testPaging},
 		{"PagingTokens", testPagingTokens},
 		{"PagingWhileInserting", testPagingWhileInserting},

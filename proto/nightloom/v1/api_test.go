@@ -72,6 +72,8 @@ var dimensionless = []string{
 	"m1", "k1", "h", "g",
 	"extinction_v",
 	"total", "weighted_exposure", "completion_bonus",
+	// magnitudes of a comet's light curve and the statistics of their fit
+	"fitted_magnitude", "prior_magnitude", "sigma_mag", "sigma_m1", "sigma_k1", "covariance_m1_k1", "chi2",
 }
 
 // forbiddenSuffixes are units the API does not use: angles are degrees,
@@ -191,12 +193,13 @@ func TestListCallsPage(t *testing.T) {
 // tables, the client, tests that iterate over the descriptors) rely on them.
 func TestServicesAndRPCs(t *testing.T) {
 	want := map[string][]string{
-		"SiteService":      {"CreateSite", "DeleteSite", "GetSite", "ListSites", "UpdateSite"},
-		"TargetService":    {"CreateTarget", "DeleteTarget", "GetTarget", "ListTargets", "UpdateTarget"},
-		"QueueService":     {"GetBlock", "ListBlocks", "QueueBlocks", "ReportProgress", "WithdrawBlock"},
-		"PlanService":      {"GetPlan", "ListPlans", "MakePlan", "NextAssignment", "Replan", "WatchPlans"},
-		"SkyService":       {"Ephemeris", "Night", "Visibility"},
-		"CatalogueService": {"LookupName", "SearchCatalogue"},
+		"SiteService":       {"CreateSite", "DeleteSite", "GetSite", "ListSites", "UpdateSite"},
+		"TargetService":     {"CreateTarget", "DeleteTarget", "GetTarget", "ImportElements", "ListTargets", "UpdateTarget"},
+		"QueueService":      {"GetBlock", "ListBlocks", "QueueBlocks", "ReportProgress", "WithdrawBlock"},
+		"PlanService":       {"GetPlan", "ListPlans", "MakePlan", "NextAssignment", "Replan", "WatchPlans"},
+		"SkyService":        {"Ephemeris", "Night", "Visibility"},
+		"ApparitionService": {"MagnitudeHistory", "Outlook", "RefitMagnitudeLaw", "ReportMagnitudes"},
+		"CatalogueService":  {"LookupName", "SearchCatalogue"},
 	}
 	got := map[string][]string{}
 	for _, fd := range apiFiles(t) {
