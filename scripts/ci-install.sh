@@ -9,6 +9,7 @@
 set -euo pipefail
 
 PACKAGES=(
+	"/usr/lib/postgresql postgresql"
 )
 
 need=()
