@@ -9,7 +9,7 @@
 set -euo pipefail
 
 PACKAGES=(
-	"/usr/lib/postgresql postgresql"
+	"/usr/lib/postgresql/15/bin/initdb postgresql"
 )
 
 need=()
