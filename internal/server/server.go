@@ -199,7 +199,7 @@ func Start(ctx context.Context, cfg Config) (*Server, error) {
 	if cfg.Storage != nil {
 		s.db = cfg.Storage
 	} else {
-		db, err := store.Open(cfg.DBPath, store.Options{})
+		db, err := store.OpenDSN(cfg.DBPath, store.Options{})
 		if err != nil {
 			return nil, err
 		}
@@ -277,6 +277,7 @@ func Start(ctx context.Context, cfg Config) (*Server, error) {
 			}
 		}()
 	}
+	s.startPlanBridge()
 	go func() { s.serveDone <- s.grpc.Serve(s.lis) }()
 	attrs := []any{"addr", s.lis.Addr().String(), "tls", creds != nil, "mutual_tls", cfg.ClientCAFile != ""}
 	if s.metricsLis != nil {

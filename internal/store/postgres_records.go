@@ -572,9 +572,6 @@ func (d *pgDB) ListPlans(ctx context.Context, siteID string, p Page) ([]Plan, st
 
 // ---- tokens ----
 
-// tokenChannel announces a revoked token's id to every replica.
-const tokenChannel = "nightloom_token_revocations"
-
 func (d *pgDB) CreateToken(ctx context.Context, t Token) (Token, error) {
 	op := fmt.Sprintf("create token %q", t.ID)
 	if err := checkToken(t); err != nil {
@@ -624,8 +621,8 @@ func (d *pgDB) ListTokens(ctx context.Context, p Page) ([]Token, string, error) 
 	return out, next, pgMapErr(ctx, op, err)
 }
 
-// RevokeToken: see the SQLite implementation. The revocation is also
-// announced on tokenChannel (at commit) for replicas that cache tokens.
+// RevokeToken: see the SQLite implementation. The server caches no token, so
+// the revoked token's next call fails on every daemon without a notification.
 func (d *pgDB) RevokeToken(ctx context.Context, id string) (Token, error) {
 	op := fmt.Sprintf("revoke token %q", id)
 	var out Token
@@ -642,8 +639,7 @@ func (d *pgDB) RevokeToken(ctx context.Context, id string) (Token, error) {
 			t.RevokedAt = &now
 		}
 		out = t
-		_, err = tx.Exec(ctx, `SELECT pg_notify($1, $2)`, tokenChannel, id)
-		return err
+		return nil
 	})
 	if err != nil {
 		return Token{}, err

@@ -176,4 +176,3 @@ func newLockPool(ctx context.Context, cfg *pgxpool.Config) (*pgxpool.Pool, error
 	lc.MinConns = 0
 	return pgxpool.NewWithConfig(ctx, lc)
 }
-
