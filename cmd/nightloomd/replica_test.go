@@ -14,6 +14,7 @@ import (
 	"fmt"
 	"math/rand/v2"
 	"sync"
+	"sync/atomic"
 	"testing"
 	"time"
 
@@ -142,21 +143,25 @@ func TestReplicasUnderSIGKILL(t *testing.T) {
 		delay := time.Duration(rng.IntN(3000)) * time.Microsecond
 		L.acks.Store(0)
 		cctx, cancel := context.WithCancel(context.Background())
+		// The survivor's clients finish the call they are in and then stop
+		// (a call cancelled on a live daemon may still commit after the
+		// check); the doomed daemon's clients are cut off by its death.
+		stopA := &stopCtx{Context: context.Background()}
 		var wg sync.WaitGroup
 		for c := range clients {
-			conn, queue := connA, queueA
+			conn, queue, ctxC := connA, queueA, context.Context(stopA)
 			if c >= clients/2 {
-				conn, queue = connB, queueB
+				conn, queue, ctxC = connB, queueB, cctx
 			}
 			plans := nightloomv1.NewPlanServiceClient(conn)
 			wg.Add(2)
 			go func() {
 				defer wg.Done()
-				crashClient(cctx, L, queue, tokens, siteID, targets, round, c)
+				crashClient(ctxC, L, queue, tokens, siteID, targets, round, c)
 			}()
 			go func() {
 				defer wg.Done()
-				replicaPlanner(cctx, V, plans, tokens, siteID, round, c)
+				replicaPlanner(ctxC, V, plans, tokens, siteID, round, c)
 			}()
 		}
 		deadline := time.Now().Add(30 * time.Second)
@@ -166,6 +171,7 @@ func TestReplicasUnderSIGKILL(t *testing.T) {
 		time.Sleep(delay)
 		b.kill()
 		cancel()
+		stopA.stop.Store(true)
 		wg.Wait()
 		if L.acks.Load() < killAfter {
 			t.Fatalf("round %d: %d acknowledgements in 30 s, want %d\n%s", round, L.acks.Load(), killAfter, b.logs.String())
@@ -277,4 +283,19 @@ func replicaPlanner(ctx context.Context, V *versionLog, plans nightloomv1.PlanSe
 			return
 		}
 	}
+}
+
+// stopCtx is a context that reports Canceled from Err once stop is set but
+// never closes Done, so that a loop checking Err ends while the call in
+// flight (whose context derives from it) runs to its end.
+type stopCtx struct {
+	context.Context
+	stop atomic.Bool
+}
+
+func (c *stopCtx) Err() error {
+	if c.stop.Load() {
+		return context.Canceled
+	}
+	return nil
 }
