@@ -43,6 +43,9 @@ type SharedStorage interface {
 // planning of the same site before it fails with ABORTED.
 const PlanLockTimeout = store.DefaultPlanLockTimeout
 
+// planLockTimeout is PlanLockTimeout; a test shortens it.
+var planLockTimeout = PlanLockTimeout
+
 // shared returns the storage as SharedStorage when other daemons share it.
 func (s *Server) shared() SharedStorage {
 	if sh, ok := s.db.(SharedStorage); ok && sh.SharedByReplicas() {
@@ -58,7 +61,7 @@ func (s *Server) lockReplicas(ctx context.Context, siteID string) (func(), error
 	if sh == nil {
 		return func() {}, nil
 	}
-	return sh.LockSitePlanning(ctx, siteID, PlanLockTimeout)
+	return sh.LockSitePlanning(ctx, siteID, planLockTimeout)
 }
 
 // publishStored hands a version this daemon stored to the watchers, unless
