@@ -13,6 +13,8 @@ import (
 	"context"
 	"fmt"
 	"math/rand/v2"
+	"os"
+	"strings"
 	"sync"
 	"sync/atomic"
 	"testing"
@@ -298,4 +300,71 @@ func (c *stopCtx) Err() error {
 		return context.Canceled
 	}
 	return nil
+}
+
+// TestCopyDBCommand: `nightloomd copy-db` copies a SQLite file with tokens
+// into PostgreSQL and back; the tokens list the same from all three; the
+// flags are checked before anything is opened.
+func TestCopyDBCommand(t *testing.T) {
+	dir := t.TempDir()
+	src, back := dir+"/src.db", dir+"/back.db"
+	for _, role := range []string{"admin", "telescope"} {
+		if code, _, errs := runCmd(t, "token", "create", "--role", role, "--db", src); code != 0 {
+			t.Fatalf("token create: %s", errs)
+		}
+	}
+	if code, _, errs := runCmd(t, "token", "revoke", "--id", tokenIDs(t, src)[0], "--db", src); code != 0 {
+		t.Fatalf("token revoke: %s", errs)
+	}
+	cases := []struct {
+		args []string
+		want string
+	}{
+		{[]string{"copy-db", "--to", back}, "flag --from: required"},
+		{[]string{"copy-db", "--from", src}, "flag --to: required"},
+		{[]string{"copy-db", "--from", src, "--to", src}, "two different databases"},
+		{[]string{"copy-db", "--from", dir + "/missing.db", "--to", back}, "flag --from"},
+	}
+	for _, c := range cases {
+		code, _, errs := runCmd(t, c.args...)
+		if code != 2 || !strings.Contains(errs, c.want) {
+			t.Errorf("%v: exit %d, %q; want 2 and %q", c.args, code, errs, c.want)
+		}
+	}
+	if _, err := os.Stat(back); err == nil {
+		t.Fatal("a refused copy-db created the destination")
+	}
+	pg := pgtest.NewDatabase(t)
+	for _, step := range [][2]string{{src, pg}, {pg, back}} {
+		code, out, errs := runCmd(t, "copy-db", "--from", step[0], "--to", step[1])
+		if code != 0 || !strings.Contains(out, "2 tokens") {
+			t.Fatalf("copy-db: exit %d\n%s%s", code, out, errs)
+		}
+	}
+	if code, _, _ := runCmd(t, "copy-db", "--from", src, "--to", pg); code != 1 {
+		t.Errorf("copy-db into a database that is not empty: exit %d, want 1", code)
+	}
+	want := listTokens(t, src)
+	for _, db := range []string{pg, back} {
+		if got := listTokens(t, db); got != want {
+			t.Errorf("token list of the copy %s:\n%s\nwant\n%s", db, got, want)
+		}
+	}
+}
+
+func listTokens(t *testing.T, db string) string {
+	t.Helper()
+	code, out, errs := runCmd(t, "token", "list", "--db", db)
+	if code != 0 {
+		t.Fatalf("token list --db %s: %s", db, errs)
+	}
+	return out
+}
+
+func tokenIDs(t *testing.T, db string) []string {
+	var ids []string
+	for _, line := range strings.Split(strings.TrimSpace(listTokens(t, db)), "\n")[1:] {
+		ids = append(ids, strings.Fields(line)[0])
+	}
+	return ids
 }
