@@ -284,7 +284,7 @@ func Start(ctx context.Context, cfg Config) (*Server, error) {
 		attrs = append(attrs, "metrics_addr", s.metricsLis.Addr().String())
 	}
 	if cfg.Storage == nil {
-		attrs = append(attrs, "db", cfg.DBPath)
+		attrs = append(attrs, "db", store.RedactDSN(cfg.DBPath))
 	}
 	s.log.Info("nightloomd serving", attrs...)
 	return s, nil

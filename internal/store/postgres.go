@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"hash/fnv"
+	"net/url"
 	"strings"
 	"sync"
 	"time"
@@ -107,6 +108,22 @@ func openPG(dsn string, opts Options) (*pgDB, error) {
 		return nil, fmt.Errorf("store: open postgres %s: %w", redactDSN(dsn), err)
 	}
 	return d, nil
+}
+
+// RedactDSN returns db fit for a log: a postgres:// URL without its password
+// (a SQLite path as it is).
+func RedactDSN(db string) string {
+	if !IsPostgresDSN(db) {
+		return db
+	}
+	u, err := url.Parse(db)
+	if err != nil {
+		return "(unparsable postgres URL)"
+	}
+	if _, has := u.User.Password(); has {
+		u.User = url.UserPassword(u.User.Username(), "REDACTED")
+	}
+	return u.String()
 }
 
 // redactDSN drops a password from dsn for messages.
