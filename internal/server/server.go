@@ -46,7 +46,8 @@ type Config struct {
 	// port already bound). Its address still counts for the loopback rule.
 	Listener net.Listener
 
-	// DBPath is the SQLite file. Default DefaultDBPath.
+	// DBPath is the SQLite file, or a postgres:// URL of a database that
+	// several daemons share (store.OpenDSN). Default DefaultDBPath.
 	DBPath string
 	// Storage, when set, is used instead of opening DBPath; the server does
 	// not close it.
