@@ -167,12 +167,19 @@ func parsePlanNotification(payload string) (PlanVersion, bool) {
 	return PlanVersion{SiteID: site, Version: v}, true
 }
 
+// lockPoolSize bounds the connections that hold planning locks at once (one
+// per site being planned by this daemon); the listener's connection leaves
+// the pool. With the statement pool a daemon opens at most
+// MaxReaders + 8 + lockPoolSize + 1 connections (29 by default).
+const lockPoolSize = 16
+
 // newLockPool makes the pool of connections that hold planning locks and
 // listen for notifications, apart from the pool of statements so that
-// waiting for a lock never starves the calls that the lock holder makes.
+// waiting for a lock never starves the calls that the lock holder makes
+// (the holder's statements use the other pool).
 func newLockPool(ctx context.Context, cfg *pgxpool.Config) (*pgxpool.Pool, error) {
 	lc := cfg.Copy()
-	lc.MaxConns = 70 // the server's 64 site-lock stripes, the listener, and spare
+	lc.MaxConns = lockPoolSize
 	lc.MinConns = 0
 	return pgxpool.NewWithConfig(ctx, lc)
 }
