@@ -10,6 +10,7 @@ set -euo pipefail
 
 PACKAGES=(
 	"chromium chromium"
+	"/usr/lib/postgresql/15/bin/initdb postgresql"
 )
 
 need=()

@@ -431,7 +431,7 @@ func (L *ledger) noteError(id string, err error) {
 func crashVerify(t *testing.T, L *ledger, db, siteID string, round int) {
 	t.Helper()
 	ctx := context.Background()
-	st, err := store.Open(db, store.Options{})
+	st, err := store.OpenDSN(db, store.Options{})
 	if err != nil {
 		t.Fatalf("round %d: open after SIGKILL: %v", round, err)
 	}

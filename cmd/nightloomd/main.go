@@ -1,11 +1,13 @@
 // Command nightloomd is the nightloom daemon: the gRPC scheduling service
-// over a SQLite file.
+// over a SQLite file, or over PostgreSQL when several daemons share one
+// database (--db postgres://...).
 //
 //	nightloomd [flags]                       serve (SIGINT/SIGTERM stop it gracefully)
 //	nightloomd --http-addr 127.0.0.1:7880    also serve the read-only web pages
 //	nightloomd token create --role ROLE [--label L] [--db PATH]
 //	nightloomd token list [--db PATH]
 //	nightloomd token revoke --id ID [--db PATH]
+//	nightloomd copy-db --from DB --to DB     copy a whole database (SQLite <-> PostgreSQL) into an empty one
 //
 // With no flags it listens on 127.0.0.1:7878 in plaintext and keeps its data
 // in nightloom.db in the working directory. Every RPC needs a bearer token
@@ -46,9 +48,12 @@ func (e *usageError) Error() string { return e.msg }
 // run executes one command line and returns the exit status.
 func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 	var err error
-	if len(args) > 0 && args[0] == "token" {
+	switch {
+	case len(args) > 0 && args[0] == "token":
 		err = runToken(ctx, args[1:], stdout, stderr)
-	} else {
+	case len(args) > 0 && args[0] == "copy-db":
+		err = runCopyDB(ctx, args[1:], stdout, stderr)
+	default:
 		err = serve(ctx, args, stderr)
 	}
 	switch {
@@ -94,7 +99,7 @@ func parseServe(args []string, stderr io.Writer) (*serveFlags, error) {
 	f := &serveFlags{}
 	fs := newFlagSet("nightloomd", stderr)
 	fs.StringVar(&f.cfg.Listen, "listen", server.DefaultListen, "gRPC listen address host:port")
-	fs.StringVar(&f.cfg.DBPath, "db", server.DefaultDBPath, "SQLite database file")
+	fs.StringVar(&f.cfg.DBPath, "db", server.DefaultDBPath, dbFlagHelp)
 	fs.StringVar(&f.cfg.TLSCertFile, "tls-cert", "", "PEM certificate chain for TLS (with --tls-key)")
 	fs.StringVar(&f.cfg.TLSKeyFile, "tls-key", "", "PEM private key for TLS (with --tls-cert)")
 	fs.StringVar(&f.cfg.ClientCAFile, "client-ca", "", "PEM CA bundle: require client certificates it signed (mutual TLS)")
@@ -165,7 +170,7 @@ func runToken(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 		return &usageError{"token: want a subcommand: create, list or revoke"}
 	}
 	fs := newFlagSet("nightloomd token "+args[0], stderr)
-	db := fs.String("db", server.DefaultDBPath, "SQLite database file")
+	db := fs.String("db", server.DefaultDBPath, dbFlagHelp)
 	switch args[0] {
 	case "create":
 		role := fs.String("role", "", "role of the token: "+roleNames())
@@ -177,7 +182,7 @@ func runToken(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 		if err != nil {
 			return &usageError{"flag --role: " + strings.TrimPrefix(err.Error(), "server: ")}
 		}
-		st, err := store.Open(*db, store.Options{})
+		st, err := store.OpenDSN(*db, store.Options{})
 		if err != nil {
 			return err
 		}
@@ -194,7 +199,7 @@ func runToken(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 		if err := parse(fs, args[1:]); err != nil {
 			return err
 		}
-		st, err := store.Open(*db, store.Options{})
+		st, err := store.OpenDSN(*db, store.Options{})
 		if err != nil {
 			return err
 		}
@@ -228,7 +233,7 @@ func runToken(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 		if *id == "" {
 			return &usageError{"flag --id: required"}
 		}
-		st, err := store.Open(*db, store.Options{})
+		st, err := store.OpenDSN(*db, store.Options{})
 		if err != nil {
 			return err
 		}
@@ -249,4 +254,45 @@ func roleNames() string {
 		names = append(names, string(r))
 	}
 	return strings.Join(names, ", ")
+}
+
+const dbFlagHelp = "SQLite database file, or a postgres:// URL for a database that several daemons share"
+
+// runCopyDB handles `nightloomd copy-db --from DB --to DB`.
+func runCopyDB(ctx context.Context, args []string, stdout, stderr io.Writer) error {
+	fs := newFlagSet("nightloomd copy-db", stderr)
+	from := fs.String("from", "", "database to copy from (SQLite file or postgres:// URL); stop its daemons first")
+	to := fs.String("to", "", "empty database to copy into (SQLite file or postgres:// URL); created and migrated if needed")
+	if err := parse(fs, args); err != nil {
+		return err
+	}
+	switch {
+	case *from == "":
+		return &usageError{"flag --from: required"}
+	case *to == "":
+		return &usageError{"flag --to: required"}
+	case *from == *to:
+		return &usageError{"flags --from and --to: name two different databases"}
+	}
+	if !store.IsPostgresDSN(*from) {
+		if _, err := os.Stat(*from); err != nil {
+			return &usageError{fmt.Sprintf("flag --from: %v", err)}
+		}
+	}
+	src, err := store.OpenDSN(*from, store.Options{})
+	if err != nil {
+		return err
+	}
+	defer src.Close()
+	dst, err := store.OpenDSN(*to, store.Options{})
+	if err != nil {
+		return err
+	}
+	defer dst.Close()
+	st, err := store.Copy(ctx, src, dst)
+	if err != nil {
+		return err
+	}
+	fmt.Fprintf(stdout, "copied %v from %s to %s\n", st, src.Dialect(), dst.Dialect())
+	return nil
 }

@@ -20,6 +20,7 @@ import (
 	"google.golang.org/protobuf/types/known/durationpb"
 	"google.golang.org/protobuf/types/known/timestamppb"
 
+	"github.com/nightloom/nightloom/internal/pgtest"
 	nightloomv1 "github.com/nightloom/nightloom/proto/nightloom/v1"
 )
 
@@ -30,7 +31,7 @@ func TestMain(m *testing.M) {
 		main()
 		return
 	}
-	os.Exit(m.Run())
+	os.Exit(pgtest.Main(m)) // m.Run, then the throwaway PostgreSQL cluster (if any) is stopped
 }
 
 func runCmd(t *testing.T, args ...string) (int, string, string) {

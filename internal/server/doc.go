@@ -64,4 +64,12 @@
 // is ended with RESOURCE_EXHAUSTED and the others go on. Queuing an open
 // block of priority >= Config.ReplanPriority while the site's latest plan
 // runs replans it in the background (origin PLAN_ORIGIN_QUEUED_BLOCK).
+//
+// # Several daemons
+//
+// On storage that several daemons share (PostgreSQL), the per-site lock
+// also takes the storage's cross-daemon planning lock (ABORTED after
+// PlanLockTimeout), and watchers receive every version from the storage's
+// announcements instead of from the daemon that stored it, so that all
+// daemons' watchers see all versions in order (replicas.go).
 package server

@@ -53,11 +53,18 @@ func summary(p *nightloomv1.Plan) *nightloomv1.Plan {
 	return c
 }
 
-// lockSite takes the site's lock (striped); see Server.siteLocks.
-func (s *Server) lockSite(id string) func() {
+// lockSite takes the site's lock (striped; see Server.siteLocks) and, when
+// other daemons share the storage, their planning lock too (replicas.go),
+// which fails with store.ErrBusy (ABORTED) after PlanLockTimeout.
+func (s *Server) lockSite(ctx context.Context, id string) (func(), error) {
 	m := &s.siteLocks[stripe(id, len(s.siteLocks))]
 	m.Lock()
-	return m.Unlock
+	unlockReplicas, err := s.lockReplicas(ctx, id)
+	if err != nil {
+		m.Unlock()
+		return nil, err
+	}
+	return func() { unlockReplicas(); m.Unlock() }, nil
 }
 
 // storePlan stores a plan body as the site's next version and publishes it
@@ -76,7 +83,7 @@ func (s *Server) storePlan(ctx context.Context, body *nightloomv1.Plan) (*nightl
 	}
 	body.Version, body.CreateTime = rec.Version, timestamppb.New(rec.CreatedAt)
 	s.metrics.versions.Inc()
-	s.hub.publish(proto.Clone(body).(*nightloomv1.Plan))
+	s.publishStored(body)
 	return body, nil
 }
 
@@ -250,7 +257,10 @@ func (x *planService) MakePlan(ctx context.Context, req *nightloomv1.MakePlanReq
 			body.Night = job.night
 		}
 		body.Closures = cls
-		unlock := s.lockSite(body.SiteId)
+		unlock, err := s.lockSite(ctx, body.SiteId)
+		if err != nil {
+			return nil, err
+		}
 		stored, err := s.storePlan(ctx, body)
 		unlock()
 		if err != nil {
@@ -440,7 +450,10 @@ func (x *planService) Replan(ctx context.Context, req *nightloomv1.ReplanRequest
 	if err != nil {
 		return nil, err
 	}
-	unlock := s.lockSite(site.pb.GetId())
+	unlock, err := s.lockSite(ctx, site.pb.GetId())
+	if err != nil {
+		return nil, err
+	}
 	defer unlock()
 	var old *nightloomv1.Plan
 	if req.GetPlanId() != "" {
@@ -900,7 +913,10 @@ func (s *Server) replanForQueued(ctx context.Context, siteID string) error {
 	if err != nil {
 		return err
 	}
-	unlock := s.lockSite(siteID)
+	unlock, err := s.lockSite(ctx, siteID)
+	if err != nil {
+		return err
+	}
 	defer unlock()
 	rec, err := s.db.LatestPlan(ctx, siteID)
 	if errors.Is(err, store.ErrNotFound) {

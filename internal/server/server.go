@@ -46,7 +46,8 @@ type Config struct {
 	// port already bound). Its address still counts for the loopback rule.
 	Listener net.Listener
 
-	// DBPath is the SQLite file. Default DefaultDBPath.
+	// DBPath is the SQLite file, or a postgres:// URL of a database that
+	// several daemons share (store.OpenDSN). Default DefaultDBPath.
 	DBPath string
 	// Storage, when set, is used instead of opening DBPath; the server does
 	// not close it.
@@ -199,7 +200,7 @@ func Start(ctx context.Context, cfg Config) (*Server, error) {
 	if cfg.Storage != nil {
 		s.db = cfg.Storage
 	} else {
-		db, err := store.Open(cfg.DBPath, store.Options{})
+		db, err := store.OpenDSN(cfg.DBPath, store.Options{})
 		if err != nil {
 			return nil, err
 		}
@@ -279,13 +280,14 @@ func Start(ctx context.Context, cfg Config) (*Server, error) {
 			}
 		}()
 	}
+	s.startPlanBridge()
 	go func() { s.serveDone <- s.grpc.Serve(s.lis) }()
 	attrs := []any{"addr", s.lis.Addr().String(), "tls", creds != nil, "mutual_tls", cfg.ClientCAFile != ""}
 	if s.metricsLis != nil {
 		attrs = append(attrs, "metrics_addr", s.metricsLis.Addr().String())
 	}
 	if cfg.Storage == nil {
-		attrs = append(attrs, "db", cfg.DBPath)
+		attrs = append(attrs, "db", store.RedactDSN(cfg.DBPath))
 	}
 	s.log.Info("nightloomd serving", attrs...)
 	return s, nil

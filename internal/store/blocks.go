@@ -74,7 +74,7 @@ func checkNewBlock(b Block) error {
 // order given. The blocks of one call get consecutive nanosecond creation
 // stamps, so that listing keeps the order of the batch. An empty batch does
 // nothing.
-func (d *DB) CreateBlocks(ctx context.Context, blocks []Block) ([]Block, error) {
+func (d *sqliteDB) CreateBlocks(ctx context.Context, blocks []Block) ([]Block, error) {
 	const op = "create blocks"
 	seen := make(map[string]bool, len(blocks))
 	for _, b := range blocks {
@@ -143,7 +143,7 @@ func (d *DB) CreateBlocks(ctx context.Context, blocks []Block) ([]Block, error) 
 }
 
 // GetBlock returns the block with that id, or ErrNotFound.
-func (d *DB) GetBlock(ctx context.Context, id string) (Block, error) {
+func (d *sqliteDB) GetBlock(ctx context.Context, id string) (Block, error) {
 	b, err := scanBlock(d.r.QueryRowContext(ctx, `SELECT `+blockCols+` FROM blocks WHERE id = ?`, id))
 	if err != nil {
 		return Block{}, mapErr(ctx, fmt.Sprintf("get block %q", id), err)
@@ -161,7 +161,7 @@ type BlockFilter struct {
 // ListBlocks returns one page of the blocks that match f, in order of
 // creation (then id), and the token of the next page ("" after the last).
 // An unknown state is ErrInvalid; unknown site or target ids match nothing.
-func (d *DB) ListBlocks(ctx context.Context, f BlockFilter, p Page) ([]Block, string, error) {
+func (d *sqliteDB) ListBlocks(ctx context.Context, f BlockFilter, p Page) ([]Block, string, error) {
 	const op = "list blocks"
 	if f.State != "" && !validState(f.State) {
 		return nil, "", mapErr(ctx, op, invalidf("state %q is unknown", f.State))
@@ -193,7 +193,7 @@ func (d *DB) ListBlocks(ctx context.Context, f BlockFilter, p Page) ([]Block, st
 // WithdrawBlock takes a queued block off the queue and returns it. A block
 // already withdrawn is returned unchanged (so a retried call succeeds); a
 // completed block is ErrConflict.
-func (d *DB) WithdrawBlock(ctx context.Context, id string) (Block, error) {
+func (d *sqliteDB) WithdrawBlock(ctx context.Context, id string) (Block, error) {
 	op := fmt.Sprintf("withdraw block %q", id)
 	var out Block
 	err := d.write(ctx, op, func(tx *sql.Tx) error {
@@ -225,7 +225,7 @@ func (d *DB) WithdrawBlock(ctx context.Context, id string) (Block, error) {
 
 // QueueSize counts the queued blocks of a site, or of every site when siteID
 // is empty. An unknown site is ErrNotFound.
-func (d *DB) QueueSize(ctx context.Context, siteID string) (int, error) {
+func (d *sqliteDB) QueueSize(ctx context.Context, siteID string) (int, error) {
 	op := fmt.Sprintf("queue size of site %q", siteID)
 	var n int
 	if siteID == "" {

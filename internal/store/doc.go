@@ -1,6 +1,10 @@
 // Package store is nightloom's persistence: sites, targets, the block queue,
 // progress reports, plan versions and bearer tokens in one SQLite database
-// (github.com/mattn/go-sqlite3).
+// (github.com/mattn/go-sqlite3, Open: the embedded default) or in one
+// PostgreSQL database shared by several daemons (github.com/jackc/pgx/v5,
+// OpenPostgres; see postgres.go and replicas.go). Both implement Store with
+// the same behaviour, which the conformance suite (storetest) defines; DB
+// wraps either. Copy moves a whole database from one to the other.
 //
 // This room holds SQL and nothing else. It does not import the API (proto,
 // grpc) or the domain packages: the server encodes each API message with

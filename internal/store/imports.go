@@ -17,7 +17,7 @@ import (
 // with a different fingerprint it is ErrConflict. An empty request id, a
 // fingerprint of another length or a bad target is ErrInvalid; an existing
 // target id is ErrAlreadyExists.
-func (d *DB) ImportTargets(ctx context.Context, requestID string, fingerprint []byte, ts []Target) ([]Target, bool, error) {
+func (d *sqliteDB) ImportTargets(ctx context.Context, requestID string, fingerprint []byte, ts []Target) ([]Target, bool, error) {
 	op := fmt.Sprintf("import %d targets (request %q)", len(ts), requestID)
 	if requestID == "" {
 		return nil, false, mapErr(ctx, op, invalidf("import request id is empty"))

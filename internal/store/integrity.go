@@ -19,7 +19,7 @@ import (
 //
 // It returns nil, or an error wrapping ErrIntegrity that lists up to ten
 // problems of each kind.
-func (d *DB) IntegrityCheck(ctx context.Context) error {
+func (d *sqliteDB) IntegrityCheck(ctx context.Context) error {
 	const op = "integrity check"
 	var problems []string
 	err := d.read(ctx, op, func(tx *sql.Tx) error {

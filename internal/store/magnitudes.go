@@ -34,7 +34,7 @@ type MagnitudeFit struct {
 // content it is ErrConflict. An unknown target is ErrNotFound; an empty id,
 // a non-finite magnitude or a sigma that is not positive is ErrInvalid. It
 // returns how many were new.
-func (d *DB) AddMagnitudeObservations(ctx context.Context, obs []MagnitudeObservation) (int, error) {
+func (d *sqliteDB) AddMagnitudeObservations(ctx context.Context, obs []MagnitudeObservation) (int, error) {
 	op := fmt.Sprintf("add %d magnitude observations", len(obs))
 	for _, o := range obs {
 		if o.ID == "" || o.TargetID == "" || math.IsNaN(o.Magnitude) || math.IsInf(o.Magnitude, 0) || !(o.Sigma > 0) || math.IsInf(o.Sigma, 0) {
@@ -82,7 +82,7 @@ func (d *DB) AddMagnitudeObservations(ctx context.Context, obs []MagnitudeObserv
 
 // MagnitudeObservations returns a target's observations in time order (then
 // id); at most limit of them (the earliest).
-func (d *DB) MagnitudeObservations(ctx context.Context, targetID string, limit int) ([]MagnitudeObservation, error) {
+func (d *sqliteDB) MagnitudeObservations(ctx context.Context, targetID string, limit int) ([]MagnitudeObservation, error) {
 	op := fmt.Sprintf("list magnitude observations of %q", targetID)
 	rows, err := d.r.QueryContext(ctx, `SELECT id, target_id, observed_at, magnitude, sigma, note, created_at FROM magnitude_observations
 		WHERE target_id = ? ORDER BY observed_at, id LIMIT ?`, targetID, limit)
@@ -107,7 +107,7 @@ func (d *DB) MagnitudeObservations(ctx context.Context, targetID string, limit i
 // kind and spec, with the revision the caller read) is updated in the same
 // transaction, so that the fit and the target's new law land together;
 // a stale revision is ErrConflict. It returns the stored fit.
-func (d *DB) CreateMagnitudeFit(ctx context.Context, f MagnitudeFit, target *Target) (MagnitudeFit, error) {
+func (d *sqliteDB) CreateMagnitudeFit(ctx context.Context, f MagnitudeFit, target *Target) (MagnitudeFit, error) {
 	op := fmt.Sprintf("create magnitude fit %q of %q", f.ID, f.TargetID)
 	if f.ID == "" || f.TargetID == "" {
 		return MagnitudeFit{}, mapErr(ctx, op, invalidf("magnitude fit needs an id and a target"))
@@ -146,7 +146,7 @@ func (d *DB) CreateMagnitudeFit(ctx context.Context, f MagnitudeFit, target *Tar
 }
 
 // MagnitudeFits returns a target's fits, oldest first.
-func (d *DB) MagnitudeFits(ctx context.Context, targetID string) ([]MagnitudeFit, error) {
+func (d *sqliteDB) MagnitudeFits(ctx context.Context, targetID string) ([]MagnitudeFit, error) {
 	op := fmt.Sprintf("list magnitude fits of %q", targetID)
 	rows, err := d.r.QueryContext(ctx, `SELECT id, target_id, spec, applied, created_at FROM magnitude_fits
 		WHERE target_id = ? ORDER BY created_at, id`, targetID)

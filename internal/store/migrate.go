@@ -16,7 +16,10 @@ import (
 // numbered from 0001 without gaps. A released file is never edited; a change
 // of schema is a new file.
 //
-//go:embed migrations/*.sql
+// The PostgreSQL dialect of the same history is migrations/postgres/, file
+// for file.
+//
+//go:embed migrations/*.sql migrations/postgres/*.sql
 var embeddedMigrations embed.FS
 
 type migration struct {
@@ -30,7 +33,12 @@ var migrationName = regexp.MustCompile(`^([0-9]{4})_([a-z0-9_]+)\.sql$`)
 // loadMigrations reads migrations/*.sql from fsys, checks their names and
 // that they are numbered 1, 2, 3, ... and returns them in order.
 func loadMigrations(fsys fs.FS) ([]migration, error) {
-	names, err := fs.Glob(fsys, "migrations/*.sql")
+	return loadMigrationsDir(fsys, "migrations")
+}
+
+// loadMigrationsDir is loadMigrations for the folder dir of fsys.
+func loadMigrationsDir(fsys fs.FS, dir string) ([]migration, error) {
+	names, err := fs.Glob(fsys, dir+"/*.sql")
 	if err != nil {
 		return nil, err
 	}
@@ -61,7 +69,7 @@ func loadMigrations(fsys fs.FS) ([]migration, error) {
 }
 
 // SchemaVersion returns the highest migration applied to the database.
-func (d *DB) SchemaVersion(ctx context.Context) (int, error) {
+func (d *sqliteDB) SchemaVersion(ctx context.Context) (int, error) {
 	var v int
 	err := d.r.QueryRowContext(ctx, `SELECT COALESCE(MAX(version), 0) FROM schema_migrations`).Scan(&v)
 	return v, mapErr(ctx, "schema version", err)
@@ -71,7 +79,7 @@ func (d *DB) SchemaVersion(ctx context.Context) (int, error) {
 // that also records it in schema_migrations (so a failed migration leaves the
 // database at the previous version, and two processes opening the same file
 // at once apply each migration once).
-func (d *DB) migrate(ctx context.Context) error {
+func (d *sqliteDB) migrate(ctx context.Context) error {
 	ms, err := loadMigrations(d.opts.migrations)
 	if err != nil {
 		return err

@@ -36,7 +36,7 @@ func scanPlan(s scanner) (Plan, error) {
 // returns the stored plan. An unknown site is ErrNotFound, an existing plan id
 // ErrAlreadyExists, an interval that is missing or ends before it starts
 // ErrInvalid.
-func (d *DB) CreatePlan(ctx context.Context, p Plan) (Plan, error) {
+func (d *sqliteDB) CreatePlan(ctx context.Context, p Plan) (Plan, error) {
 	op := fmt.Sprintf("create plan %q for site %q", p.ID, p.SiteID)
 	var (
 		start, end int64
@@ -84,7 +84,7 @@ func (d *DB) CreatePlan(ctx context.Context, p Plan) (Plan, error) {
 }
 
 // GetPlan returns the plan with that id, or ErrNotFound.
-func (d *DB) GetPlan(ctx context.Context, id string) (Plan, error) {
+func (d *sqliteDB) GetPlan(ctx context.Context, id string) (Plan, error) {
 	p, err := scanPlan(d.r.QueryRowContext(ctx, `SELECT `+planCols+` FROM plans WHERE id = ?`, id))
 	if err != nil {
 		return Plan{}, mapErr(ctx, fmt.Sprintf("get plan %q", id), err)
@@ -93,7 +93,7 @@ func (d *DB) GetPlan(ctx context.Context, id string) (Plan, error) {
 }
 
 // PlanByVersion returns version v of a site's plan, or ErrNotFound.
-func (d *DB) PlanByVersion(ctx context.Context, siteID string, v int64) (Plan, error) {
+func (d *sqliteDB) PlanByVersion(ctx context.Context, siteID string, v int64) (Plan, error) {
 	p, err := scanPlan(d.r.QueryRowContext(ctx, `SELECT `+planCols+` FROM plans WHERE site_id = ? AND version = ?`, siteID, v))
 	if err != nil {
 		return Plan{}, mapErr(ctx, fmt.Sprintf("get plan version %d of site %q", v, siteID), err)
@@ -103,7 +103,7 @@ func (d *DB) PlanByVersion(ctx context.Context, siteID string, v int64) (Plan, e
 
 // LatestPlan returns the highest version of a site's plan; ErrNotFound when
 // the site has no plan (or does not exist).
-func (d *DB) LatestPlan(ctx context.Context, siteID string) (Plan, error) {
+func (d *sqliteDB) LatestPlan(ctx context.Context, siteID string) (Plan, error) {
 	p, err := scanPlan(d.r.QueryRowContext(ctx, `SELECT `+planCols+` FROM plans WHERE site_id = ? ORDER BY version DESC LIMIT 1`, siteID))
 	if err != nil {
 		return Plan{}, mapErr(ctx, fmt.Sprintf("latest plan of site %q", siteID), err)
@@ -113,7 +113,7 @@ func (d *DB) LatestPlan(ctx context.Context, siteID string) (Plan, error) {
 
 // ListPlans returns one page of a site's plans by ascending version and the
 // token of the next page. An unknown site has no plans.
-func (d *DB) ListPlans(ctx context.Context, siteID string, p Page) ([]Plan, string, error) {
+func (d *sqliteDB) ListPlans(ctx context.Context, siteID string, p Page) ([]Plan, string, error) {
 	op := fmt.Sprintf("list plans of site %q", siteID)
 	scope := "plans\x00" + siteID
 	c, size, err := p.start(scope)

@@ -51,7 +51,7 @@ func scanReport(s scanner) (ProgressReport, error) {
 // different content is ErrConflict. An unknown block is ErrNotFound; an empty
 // id, negative frames, or an interval that is missing or ends before it starts
 // is ErrInvalid.
-func (d *DB) ReportProgress(ctx context.Context, r ProgressReport) (Block, bool, error) {
+func (d *sqliteDB) ReportProgress(ctx context.Context, r ProgressReport) (Block, bool, error) {
 	op := fmt.Sprintf("report progress %q for block %q", r.ReportID, r.BlockID)
 	start, end, err := checkReport(r)
 	if err != nil {
@@ -136,7 +136,7 @@ func checkReport(r ProgressReport) (start, end int64, err error) {
 }
 
 // GetProgressReport returns the stored report with that id, or ErrNotFound.
-func (d *DB) GetProgressReport(ctx context.Context, reportID string) (ProgressReport, error) {
+func (d *sqliteDB) GetProgressReport(ctx context.Context, reportID string) (ProgressReport, error) {
 	r, err := scanReport(d.r.QueryRowContext(ctx, `SELECT `+reportCols+` FROM progress_reports WHERE report_id = ?`, reportID))
 	if err != nil {
 		return ProgressReport{}, mapErr(ctx, fmt.Sprintf("get progress report %q", reportID), err)
@@ -147,7 +147,7 @@ func (d *DB) GetProgressReport(ctx context.Context, reportID string) (ProgressRe
 // ListProgressReports returns one page of a block's reports in the order they
 // were received (then id) and the token of the next page. An unknown block
 // has no reports.
-func (d *DB) ListProgressReports(ctx context.Context, blockID string, p Page) ([]ProgressReport, string, error) {
+func (d *sqliteDB) ListProgressReports(ctx context.Context, blockID string, p Page) ([]ProgressReport, string, error) {
 	op := fmt.Sprintf("list progress reports of block %q", blockID)
 	scope := "progress\x00" + blockID
 	c, size, err := p.start(scope)
@@ -169,7 +169,7 @@ func (d *DB) ListProgressReports(ctx context.Context, blockID string, p Page) ([
 // ReportsEndingAfter returns the reports for blocks queued at a site whose
 // interval ends after t, ordered by interval start (then id): what replans
 // and NextAssignment need to know of runs that a report ended early.
-func (d *DB) ReportsEndingAfter(ctx context.Context, siteID string, t time.Time) ([]ProgressReport, error) {
+func (d *sqliteDB) ReportsEndingAfter(ctx context.Context, siteID string, t time.Time) ([]ProgressReport, error) {
 	op := fmt.Sprintf("list progress reports of site %q ending after %s", siteID, t.Format(time.RFC3339Nano))
 	rows, err := d.r.QueryContext(ctx, `SELECT r.report_id, r.block_id, r.frames_kept, r.frames_applied, r.start_at,
 		r.end_at, r.outcome, r.received_at FROM progress_reports r JOIN blocks b ON b.id = r.block_id

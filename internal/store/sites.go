@@ -41,7 +41,7 @@ func checkSite(s Site) error {
 // CreateSite stores a new site. The store sets CreatedAt, UpdatedAt and
 // Revision (1); it returns the stored record. An existing id is
 // ErrAlreadyExists.
-func (d *DB) CreateSite(ctx context.Context, s Site) (Site, error) {
+func (d *sqliteDB) CreateSite(ctx context.Context, s Site) (Site, error) {
 	op := fmt.Sprintf("create site %q", s.ID)
 	if err := checkSite(s); err != nil {
 		return Site{}, mapErr(ctx, op, err)
@@ -60,7 +60,7 @@ func (d *DB) CreateSite(ctx context.Context, s Site) (Site, error) {
 }
 
 // GetSite returns the site with that id, or ErrNotFound.
-func (d *DB) GetSite(ctx context.Context, id string) (Site, error) {
+func (d *sqliteDB) GetSite(ctx context.Context, id string) (Site, error) {
 	s, err := scanSite(d.r.QueryRowContext(ctx, `SELECT `+siteCols+` FROM sites WHERE id = ?`, id))
 	if err != nil {
 		return Site{}, mapErr(ctx, fmt.Sprintf("get site %q", id), err)
@@ -70,7 +70,7 @@ func (d *DB) GetSite(ctx context.Context, id string) (Site, error) {
 
 // ListSites returns one page of sites in order of creation (then id) and the
 // token of the next page ("" after the last).
-func (d *DB) ListSites(ctx context.Context, p Page) ([]Site, string, error) {
+func (d *sqliteDB) ListSites(ctx context.Context, p Page) ([]Site, string, error) {
 	const op, scope = "list sites", "sites"
 	c, size, err := p.start(scope)
 	if err != nil {
@@ -88,7 +88,7 @@ func (d *DB) ListSites(ctx context.Context, p Page) ([]Site, string, error) {
 // UpdateSite replaces the name and spec of site s.ID. s.Revision must be the
 // revision the caller read (else ErrConflict); the stored record, with the
 // next revision and a new UpdatedAt, is returned.
-func (d *DB) UpdateSite(ctx context.Context, s Site) (Site, error) {
+func (d *sqliteDB) UpdateSite(ctx context.Context, s Site) (Site, error) {
 	op := fmt.Sprintf("update site %q", s.ID)
 	if err := checkSite(s); err != nil {
 		return Site{}, mapErr(ctx, op, err)
@@ -117,7 +117,7 @@ func (d *DB) UpdateSite(ctx context.Context, s Site) (Site, error) {
 // DeleteSite deletes a site together with its plans and its blocks that are
 // no longer queued (and their progress reports). While a queued block uses
 // the site it is ErrConflict.
-func (d *DB) DeleteSite(ctx context.Context, id string) error {
+func (d *sqliteDB) DeleteSite(ctx context.Context, id string) error {
 	op := fmt.Sprintf("delete site %q", id)
 	return d.write(ctx, op, func(tx *sql.Tx) error {
 		var exists, queued int

@@ -75,8 +75,8 @@ func (o Options) withDefaults() Options {
 	return o
 }
 
-// DB is an open nightloom database. Its methods are safe for concurrent use.
-type DB struct {
+// sqliteDB is the SQLite implementation of Store.
+type sqliteDB struct {
 	opts Options
 	// w is the writer: one connection, transactions begin IMMEDIATE.
 	w *sql.DB
@@ -95,6 +95,14 @@ var memorySeq atomic.Uint64
 // up to date. path is a file name, a "file:" URI, or ":memory:" for a fresh
 // private in-memory database (each Open of ":memory:" is a new database).
 func Open(path string, opts Options) (*DB, error) {
+	s, err := openSQLite(path, opts)
+	if err != nil {
+		return nil, err
+	}
+	return &DB{sqliteDB: s, impl: s}, nil
+}
+
+func openSQLite(path string, opts Options) (*sqliteDB, error) {
 	opts = opts.withDefaults()
 	base, memory, err := baseDSN(path)
 	if err != nil {
@@ -112,9 +120,9 @@ func Open(path string, opts Options) (*DB, error) {
 		writer.Set("_journal_mode", "WAL")
 	}
 
-	d := &DB{opts: opts}
+	d := &sqliteDB{opts: opts}
 	ctx := context.Background()
-	fail := func(err error) (*DB, error) {
+	fail := func(err error) (*sqliteDB, error) {
 		_ = d.Close()
 		return nil, fmt.Errorf("store: open %s: %w", path, err)
 	}
@@ -214,7 +222,7 @@ func cloneValues(v url.Values) url.Values {
 }
 
 // Close closes the database. Calls in flight finish first.
-func (d *DB) Close() error {
+func (d *sqliteDB) Close() error {
 	var errs []error
 	if d.r != nil && d.r != d.w {
 		errs = append(errs, d.r.Close())
@@ -232,7 +240,7 @@ func (d *DB) Close() error {
 }
 
 // now is the store's clock, normalised to what a read gives back.
-func (d *DB) now() time.Time {
+func (d *sqliteDB) now() time.Time {
 	return time.Unix(0, d.opts.Now().UnixNano()).UTC()
 }
 
@@ -240,7 +248,7 @@ func (d *DB) now() time.Time {
 // commits it; fn must use only tx. It runs fn again (from a fresh
 // transaction) after SQLITE_BUSY/LOCKED, up to Options.BusyRetries times.
 // The error names op.
-func (d *DB) write(ctx context.Context, op string, fn func(tx *sql.Tx) error) error {
+func (d *sqliteDB) write(ctx context.Context, op string, fn func(tx *sql.Tx) error) error {
 	backoff := 5 * time.Millisecond
 	for attempt := 0; ; attempt++ {
 		err := d.writeOnce(ctx, fn)
@@ -261,7 +269,7 @@ func (d *DB) write(ctx context.Context, op string, fn func(tx *sql.Tx) error) er
 	}
 }
 
-func (d *DB) writeOnce(ctx context.Context, fn func(tx *sql.Tx) error) error {
+func (d *sqliteDB) writeOnce(ctx context.Context, fn func(tx *sql.Tx) error) error {
 	tx, err := d.w.BeginTx(ctx, nil)
 	if err != nil {
 		return err
@@ -276,7 +284,7 @@ func (d *DB) writeOnce(ctx context.Context, fn func(tx *sql.Tx) error) error {
 
 // read runs fn in one read transaction (a consistent snapshot) on the reader
 // pool.
-func (d *DB) read(ctx context.Context, op string, fn func(tx *sql.Tx) error) error {
+func (d *sqliteDB) read(ctx context.Context, op string, fn func(tx *sql.Tx) error) error {
 	tx, err := d.r.BeginTx(ctx, nil)
 	if err != nil {
 		return mapErr(ctx, op, err)

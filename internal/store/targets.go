@@ -50,7 +50,7 @@ func checkTarget(t Target) error {
 // CreateTarget stores a new target. The store sets CreatedAt, UpdatedAt and
 // Revision (1); it returns the stored record. An existing id is
 // ErrAlreadyExists.
-func (d *DB) CreateTarget(ctx context.Context, t Target) (Target, error) {
+func (d *sqliteDB) CreateTarget(ctx context.Context, t Target) (Target, error) {
 	op := fmt.Sprintf("create target %q", t.ID)
 	if err := checkTarget(t); err != nil {
 		return Target{}, mapErr(ctx, op, err)
@@ -69,7 +69,7 @@ func (d *DB) CreateTarget(ctx context.Context, t Target) (Target, error) {
 }
 
 // GetTarget returns the target with that id, or ErrNotFound.
-func (d *DB) GetTarget(ctx context.Context, id string) (Target, error) {
+func (d *sqliteDB) GetTarget(ctx context.Context, id string) (Target, error) {
 	t, err := scanTarget(d.r.QueryRowContext(ctx, `SELECT `+targetCols+` FROM targets WHERE id = ?`, id))
 	if err != nil {
 		return Target{}, mapErr(ctx, fmt.Sprintf("get target %q", id), err)
@@ -79,7 +79,7 @@ func (d *DB) GetTarget(ctx context.Context, id string) (Target, error) {
 
 // ListTargets returns one page of targets in order of creation (then id) and
 // the token of the next page ("" after the last).
-func (d *DB) ListTargets(ctx context.Context, p Page) ([]Target, string, error) {
+func (d *sqliteDB) ListTargets(ctx context.Context, p Page) ([]Target, string, error) {
 	const op, scope = "list targets", "targets"
 	c, size, err := p.start(scope)
 	if err != nil {
@@ -97,7 +97,7 @@ func (d *DB) ListTargets(ctx context.Context, p Page) ([]Target, string, error) 
 // UpdateTarget replaces the name, kind and spec of target t.ID. t.Revision
 // must be the revision the caller read (else ErrConflict); the stored record,
 // with the next revision and a new UpdatedAt, is returned.
-func (d *DB) UpdateTarget(ctx context.Context, t Target) (Target, error) {
+func (d *sqliteDB) UpdateTarget(ctx context.Context, t Target) (Target, error) {
 	op := fmt.Sprintf("update target %q", t.ID)
 	if err := checkTarget(t); err != nil {
 		return Target{}, mapErr(ctx, op, err)
@@ -126,7 +126,7 @@ func (d *DB) UpdateTarget(ctx context.Context, t Target) (Target, error) {
 // DeleteTarget deletes a target together with its blocks that are no longer
 // queued (and their progress reports). While a queued block uses the target
 // it is ErrConflict.
-func (d *DB) DeleteTarget(ctx context.Context, id string) error {
+func (d *sqliteDB) DeleteTarget(ctx context.Context, id string) error {
 	op := fmt.Sprintf("delete target %q", id)
 	return d.write(ctx, op, func(tx *sql.Tx) error {
 		var exists, queued int

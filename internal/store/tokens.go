@@ -39,17 +39,9 @@ func scanToken(s scanner) (Token, error) {
 // CreateToken stores a new active token. The store sets CreatedAt and clears
 // RevokedAt. An empty id or role, or a hash that is not sha256.Size bytes,
 // is ErrInvalid; an existing id or hash ErrAlreadyExists.
-func (d *DB) CreateToken(ctx context.Context, t Token) (Token, error) {
+func (d *sqliteDB) CreateToken(ctx context.Context, t Token) (Token, error) {
 	op := fmt.Sprintf("create token %q", t.ID)
-	var err error
-	switch {
-	case t.ID == "":
-		err = invalidf("token id is empty")
-	case len(t.Hash) != sha256.Size:
-		err = invalidf("token hash has %d bytes, want %d (SHA-256)", len(t.Hash), sha256.Size)
-	case t.Role == "":
-		err = invalidf("token role is empty")
-	}
+	err := checkToken(t)
 	if err != nil {
 		return Token{}, mapErr(ctx, op, err)
 	}
@@ -67,7 +59,7 @@ func (d *DB) CreateToken(ctx context.Context, t Token) (Token, error) {
 }
 
 // GetToken returns the token with that id, active or revoked, or ErrNotFound.
-func (d *DB) GetToken(ctx context.Context, id string) (Token, error) {
+func (d *sqliteDB) GetToken(ctx context.Context, id string) (Token, error) {
 	t, err := scanToken(d.r.QueryRowContext(ctx, `SELECT `+tokenCols+` FROM tokens WHERE id = ?`, id))
 	if err != nil {
 		return Token{}, mapErr(ctx, fmt.Sprintf("get token %q", id), err)
@@ -79,7 +71,7 @@ func (d *DB) GetToken(ctx context.Context, id string) (Token, error) {
 // token is ErrNotFound like an unknown one, so that the authenticating caller
 // cannot let it in by forgetting to look at RevokedAt. The hash is not part of
 // the error message.
-func (d *DB) TokenByHash(ctx context.Context, hash []byte) (Token, error) {
+func (d *sqliteDB) TokenByHash(ctx context.Context, hash []byte) (Token, error) {
 	t, err := scanToken(d.r.QueryRowContext(ctx, `SELECT `+tokenCols+` FROM tokens WHERE hash = ? AND revoked_at IS NULL`, hash))
 	if err != nil {
 		return Token{}, mapErr(ctx, "token by hash", err)
@@ -89,7 +81,7 @@ func (d *DB) TokenByHash(ctx context.Context, hash []byte) (Token, error) {
 
 // ListTokens returns one page of tokens, active and revoked, in order of
 // creation (then id) and the token of the next page.
-func (d *DB) ListTokens(ctx context.Context, p Page) ([]Token, string, error) {
+func (d *sqliteDB) ListTokens(ctx context.Context, p Page) ([]Token, string, error) {
 	const op, scope = "list tokens", "tokens"
 	c, size, err := p.start(scope)
 	if err != nil {
@@ -107,7 +99,7 @@ func (d *DB) ListTokens(ctx context.Context, p Page) ([]Token, string, error) {
 // RevokeToken marks a token revoked now and returns it. Revoking a revoked
 // token changes nothing (it keeps its first RevokedAt). An unknown id is
 // ErrNotFound.
-func (d *DB) RevokeToken(ctx context.Context, id string) (Token, error) {
+func (d *sqliteDB) RevokeToken(ctx context.Context, id string) (Token, error) {
 	op := fmt.Sprintf("revoke token %q", id)
 	var out Token
 	err := d.write(ctx, op, func(tx *sql.Tx) error {
@@ -129,4 +121,17 @@ func (d *DB) RevokeToken(ctx context.Context, id string) (Token, error) {
 		return Token{}, err
 	}
 	return out, nil
+}
+
+// checkToken enforces what a new token must be.
+func checkToken(t Token) error {
+	switch {
+	case t.ID == "":
+		return invalidf("token id is empty")
+	case len(t.Hash) != sha256.Size:
+		return invalidf("token hash has %d bytes, want %d (SHA-256)", len(t.Hash), sha256.Size)
+	case t.Role == "":
+		return invalidf("token role is empty")
+	}
+	return nil
 }

@@ -1,0 +1,232 @@
+package store
+
+// The PostgreSQL side of the records added after the first dialect: target
+// imports, magnitude observations and fits, and the reports a replan reads.
+// Each method's contract is documented on the SQLite implementation.
+
+import (
+	"bytes"
+	"context"
+	"errors"
+	"fmt"
+	"math"
+	"strings"
+	"time"
+
+	"github.com/jackc/pgx/v5"
+)
+
+func (d *pgDB) ReportsEndingAfter(ctx context.Context, siteID string, t time.Time) ([]ProgressReport, error) {
+	op := fmt.Sprintf("list progress reports of site %q ending after %s", siteID, t.Format(time.RFC3339Nano))
+	rows, err := d.pool.Query(ctx, `SELECT r.report_id, r.block_id, r.frames_kept, r.frames_applied, r.start_at,
+		r.end_at, r.outcome, r.received_at FROM progress_reports r JOIN blocks b ON b.id = r.block_id
+		WHERE b.site_id = $1 AND r.end_at > $2 ORDER BY r.start_at, r.report_id`, siteID, t.UTC().UnixNano())
+	if err != nil {
+		return nil, pgMapErr(ctx, op, err)
+	}
+	defer rows.Close()
+	var out []ProgressReport
+	for rows.Next() {
+		r, err := scanReport(rows)
+		if err != nil {
+			return nil, pgMapErr(ctx, op, err)
+		}
+		out = append(out, r)
+	}
+	return out, pgMapErr(ctx, op, rows.Err())
+}
+
+func (d *pgDB) ImportTargets(ctx context.Context, requestID string, fingerprint []byte, ts []Target) ([]Target, bool, error) {
+	op := fmt.Sprintf("import %d targets (request %q)", len(ts), requestID)
+	if requestID == "" {
+		return nil, false, pgMapErr(ctx, op, invalidf("import request id is empty"))
+	}
+	if len(fingerprint) != 32 {
+		return nil, false, pgMapErr(ctx, op, invalidf("import fingerprint has %d bytes, want 32", len(fingerprint)))
+	}
+	for _, t := range ts {
+		if err := checkTarget(t); err != nil {
+			return nil, false, pgMapErr(ctx, op, err)
+		}
+	}
+	var out []Target
+	replay := false
+	err := d.write(ctx, op, func(tx pgx.Tx) error {
+		out, replay = nil, false
+		// Two imports under one request id serialise on this lock.
+		if _, err := tx.Exec(ctx, `SELECT pg_advisory_xact_lock(hashtext('nightloom import ' || $1))`, requestID); err != nil {
+			return err
+		}
+		var fp []byte
+		var ids string
+		err := tx.QueryRow(ctx, `SELECT fingerprint, target_ids FROM target_imports WHERE request_id = $1`, requestID).Scan(&fp, &ids)
+		switch {
+		case err == nil:
+			if !bytes.Equal(fp, fingerprint) {
+				return fmt.Errorf("request id %q was used for a different import: %w", requestID, ErrConflict)
+			}
+			replay = true
+			for _, id := range strings.Split(ids, "\n") {
+				if id == "" {
+					continue
+				}
+				t, err := scanTarget(tx.QueryRow(ctx, `SELECT `+targetCols+` FROM targets WHERE id = $1`, id))
+				if errors.Is(err, pgx.ErrNoRows) {
+					continue
+				}
+				if err != nil {
+					return err
+				}
+				out = append(out, t)
+			}
+			return nil
+		case !errors.Is(err, pgx.ErrNoRows):
+			return err
+		}
+		now := d.now()
+		idList := make([]string, 0, len(ts))
+		for _, t := range ts {
+			t.CreatedAt, t.UpdatedAt, t.Revision = now, now, 1
+			if _, err := tx.Exec(ctx, `INSERT INTO targets (`+targetCols+`) VALUES ($1, $2, $3, $4, $5, $6, $7)`,
+				t.ID, t.Name, t.Kind, blob(t.Spec), now.UnixNano(), now.UnixNano(), t.Revision); err != nil {
+				return err
+			}
+			out = append(out, t)
+			idList = append(idList, t.ID)
+		}
+		_, err = tx.Exec(ctx, `INSERT INTO target_imports (request_id, fingerprint, target_ids, created_at) VALUES ($1, $2, $3, $4)`,
+			requestID, fingerprint, strings.Join(idList, "\n"), now.UnixNano())
+		return err
+	})
+	if err != nil {
+		return nil, false, err
+	}
+	return out, replay, nil
+}
+
+func (d *pgDB) AddMagnitudeObservations(ctx context.Context, obs []MagnitudeObservation) (int, error) {
+	op := fmt.Sprintf("add %d magnitude observations", len(obs))
+	for _, o := range obs {
+		if o.ID == "" || o.TargetID == "" || math.IsNaN(o.Magnitude) || math.IsInf(o.Magnitude, 0) || !(o.Sigma > 0) || math.IsInf(o.Sigma, 0) {
+			return 0, pgMapErr(ctx, op, invalidf("magnitude observation %q: needs an id, a target, a finite magnitude and a positive sigma", o.ID))
+		}
+	}
+	added := 0
+	err := d.write(ctx, op, func(tx pgx.Tx) error {
+		added = 0
+		now := d.now()
+		for _, o := range obs {
+			var cur MagnitudeObservation
+			var at, created int64
+			err := tx.QueryRow(ctx, `SELECT target_id, observed_at, magnitude, sigma, note, created_at FROM magnitude_observations
+				WHERE id = $1 FOR UPDATE`, o.ID).Scan(&cur.TargetID, &at, &cur.Magnitude, &cur.Sigma, &cur.Note, &created)
+			switch {
+			case err == nil:
+				if cur.TargetID != o.TargetID || at != o.ObservedAt.UnixNano() || cur.Magnitude != o.Magnitude || cur.Sigma != o.Sigma || cur.Note != o.Note {
+					return fmt.Errorf("magnitude observation %q is stored with other values: %w", o.ID, ErrConflict)
+				}
+				continue
+			case !errors.Is(err, pgx.ErrNoRows):
+				return err
+			}
+			var one int
+			if err := tx.QueryRow(ctx, `SELECT 1 FROM targets WHERE id = $1`, o.TargetID).Scan(&one); err != nil {
+				if errors.Is(err, pgx.ErrNoRows) {
+					return fmt.Errorf("target %q: %w", o.TargetID, ErrNotFound)
+				}
+				return err
+			}
+			if _, err := tx.Exec(ctx, `INSERT INTO magnitude_observations (id, target_id, observed_at, magnitude, sigma, note, created_at)
+				VALUES ($1, $2, $3, $4, $5, $6, $7)`, o.ID, o.TargetID, o.ObservedAt.UnixNano(), o.Magnitude, o.Sigma, o.Note, now.UnixNano()); err != nil {
+				return err
+			}
+			added++
+		}
+		return nil
+	})
+	if err != nil {
+		return 0, err
+	}
+	return added, nil
+}
+
+func (d *pgDB) MagnitudeObservations(ctx context.Context, targetID string, limit int) ([]MagnitudeObservation, error) {
+	op := fmt.Sprintf("list magnitude observations of %q", targetID)
+	rows, err := d.pool.Query(ctx, `SELECT id, target_id, observed_at, magnitude, sigma, note, created_at FROM magnitude_observations
+		WHERE target_id = $1 ORDER BY observed_at, id LIMIT $2`, targetID, limit)
+	if err != nil {
+		return nil, pgMapErr(ctx, op, err)
+	}
+	defer rows.Close()
+	var out []MagnitudeObservation
+	for rows.Next() {
+		var o MagnitudeObservation
+		var at, created int64
+		if err := rows.Scan(&o.ID, &o.TargetID, &at, &o.Magnitude, &o.Sigma, &o.Note, &created); err != nil {
+			return nil, pgMapErr(ctx, op, err)
+		}
+		o.ObservedAt, o.CreatedAt = decTime(at), decTime(created)
+		out = append(out, o)
+	}
+	return out, pgMapErr(ctx, op, rows.Err())
+}
+
+func (d *pgDB) CreateMagnitudeFit(ctx context.Context, f MagnitudeFit, target *Target) (MagnitudeFit, error) {
+	op := fmt.Sprintf("create magnitude fit %q of %q", f.ID, f.TargetID)
+	if f.ID == "" || f.TargetID == "" {
+		return MagnitudeFit{}, pgMapErr(ctx, op, invalidf("magnitude fit needs an id and a target"))
+	}
+	if target != nil {
+		if err := checkTarget(*target); err != nil {
+			return MagnitudeFit{}, pgMapErr(ctx, op, err)
+		}
+	}
+	f.Applied = target != nil
+	err := d.write(ctx, op, func(tx pgx.Tx) error {
+		now := d.now()
+		f.CreatedAt = now
+		if target != nil {
+			tag, err := tx.Exec(ctx, `UPDATE targets SET name = $1, kind = $2, spec = $3, updated_at = $4, revision = revision + 1
+				WHERE id = $5 AND revision = $6`, target.Name, target.Kind, blob(target.Spec), now.UnixNano(), target.ID, target.Revision)
+			if err != nil {
+				return err
+			}
+			if tag.RowsAffected() != 1 {
+				return fmt.Errorf("target %q changed since it was read: %w", target.ID, ErrConflict)
+			}
+		}
+		applied := 0
+		if f.Applied {
+			applied = 1
+		}
+		_, err := tx.Exec(ctx, `INSERT INTO magnitude_fits (id, target_id, spec, applied, created_at) VALUES ($1, $2, $3, $4, $5)`,
+			f.ID, f.TargetID, blob(f.Spec), applied, now.UnixNano())
+		return err
+	})
+	if err != nil {
+		return MagnitudeFit{}, err
+	}
+	return f, nil
+}
+
+func (d *pgDB) MagnitudeFits(ctx context.Context, targetID string) ([]MagnitudeFit, error) {
+	op := fmt.Sprintf("list magnitude fits of %q", targetID)
+	rows, err := d.pool.Query(ctx, `SELECT id, target_id, spec, applied, created_at FROM magnitude_fits
+		WHERE target_id = $1 ORDER BY created_at, id`, targetID)
+	if err != nil {
+		return nil, pgMapErr(ctx, op, err)
+	}
+	defer rows.Close()
+	var out []MagnitudeFit
+	for rows.Next() {
+		var f MagnitudeFit
+		var applied int
+		var created int64
+		if err := rows.Scan(&f.ID, &f.TargetID, &f.Spec, &applied, &created); err != nil {
+			return nil, pgMapErr(ctx, op, err)
+		}
+		f.Applied, f.CreatedAt = applied == 1, decTime(created)
+		out = append(out, f)
+	}
+	return out, pgMapErr(ctx, op, rows.Err())
+}
