@@ -1,0 +1,166 @@
+package main
+
+// Self-measurement: for every reported run, planned versus actual start and
+// end, and the slew the mount really took against the model's figure; as
+// Prometheus metrics and as a night summary.
+
+import (
+	"encoding/json"
+	"fmt"
+	"io"
+	"math"
+	"sort"
+	"sync"
+	"time"
+
+	"github.com/prometheus/client_golang/prometheus"
+)
+
+type metrics struct {
+	reg         *prometheus.Registry
+	runs        *prometheus.CounterVec
+	frames      prometheus.Counter
+	refusals    prometheus.Counter
+	replans     prometheus.Counter
+	weatherSafe prometheus.Gauge
+	startDelay  prometheus.Histogram
+	endDelay    prometheus.Histogram
+	slewActual  prometheus.Histogram
+	slewError   prometheus.Histogram
+
+	mu   sync.Mutex
+	done []*runRecord
+}
+
+func newMetrics() *metrics {
+	delays := []float64{-300, -60, -30, -10, -5, -2, 0, 2, 5, 10, 30, 60, 300}
+	m := &metrics{
+		reg: prometheus.NewRegistry(),
+		runs: prometheus.NewCounterVec(prometheus.CounterOpts{Name: "nightloom_executor_runs_total",
+			Help: "Runs reported, by outcome."}, []string{"outcome"}),
+		frames: prometheus.NewCounter(prometheus.CounterOpts{Name: "nightloom_executor_frames_total",
+			Help: "Frames written."}),
+		refusals: prometheus.NewCounter(prometheus.CounterOpts{Name: "nightloom_executor_slew_refusals_total",
+			Help: "Slews refused by the executor's own Sun and horizon checks."}),
+		replans: prometheus.NewCounter(prometheus.CounterOpts{Name: "nightloom_executor_replans_total",
+			Help: "Replans asked for (weather closures and reopenings)."}),
+		weatherSafe: prometheus.NewGauge(prometheus.GaugeOpts{Name: "nightloom_executor_weather_safe",
+			Help: "1 when the weather device says it is safe to observe."}),
+		startDelay: prometheus.NewHistogram(prometheus.HistogramOpts{Name: "nightloom_executor_run_start_delay_seconds",
+			Help: "Actual minus planned start of the first exposure of each run.", Buckets: delays}),
+		endDelay: prometheus.NewHistogram(prometheus.HistogramOpts{Name: "nightloom_executor_run_end_delay_seconds",
+			Help: "Actual minus planned end of each run.", Buckets: delays}),
+		slewActual: prometheus.NewHistogram(prometheus.HistogramOpts{Name: "nightloom_executor_slew_seconds",
+			Help: "Slew time the mount took (command to slew done).", Buckets: prometheus.ExponentialBuckets(0.5, 2, 10)}),
+		slewError: prometheus.NewHistogram(prometheus.HistogramOpts{Name: "nightloom_executor_slew_model_error_seconds",
+			Help: "Actual slew time minus the overhead model's.", Buckets: []float64{-60, -30, -10, -5, -2, -1, 0, 1, 2, 5, 10, 30, 60}}),
+	}
+	m.reg.MustRegister(m.runs, m.frames, m.refusals, m.replans, m.weatherSafe, m.startDelay, m.endDelay, m.slewActual, m.slewError)
+	return m
+}
+
+// observe records a reported run.
+func (m *metrics) observe(r *runRecord) {
+	m.runs.WithLabelValues(r.Outcome).Inc()
+	if !r.Start.IsZero() {
+		m.startDelay.Observe(r.Start.Sub(r.PlannedStart).Seconds())
+		m.endDelay.Observe(r.End.Sub(r.PlannedEnd).Seconds())
+	}
+	if r.SlewActualS > 0 {
+		m.slewActual.Observe(r.SlewActualS)
+		m.slewError.Observe(r.SlewActualS - r.SlewModelS)
+	}
+	m.mu.Lock()
+	m.done = append(m.done, r)
+	m.mu.Unlock()
+}
+
+// runFigures is one run's line of the summary (also its JSON form).
+type runFigures struct {
+	RunID         string    `json:"run_id"`
+	BlockID       string    `json:"block_id"`
+	Target        string    `json:"target"`
+	Outcome       string    `json:"outcome"`
+	Frames        int       `json:"frames"`
+	PlannedStart  time.Time `json:"planned_start"`
+	ActualStart   time.Time `json:"actual_start"`
+	PlannedEnd    time.Time `json:"planned_end"`
+	ActualEnd     time.Time `json:"actual_end"`
+	StartDelayS   float64   `json:"start_delay_s"`
+	EndDelayS     float64   `json:"end_delay_s"`
+	SlewDeg       float64   `json:"slew_deg"`
+	SlewActualS   float64   `json:"slew_actual_s"`
+	SlewModelS    float64   `json:"slew_model_s"`
+	SlewErrorS    float64   `json:"slew_error_s"`
+	ReportID      string    `json:"report_id"`
+	PlanID        string    `json:"plan_id"`
+	FirstFrameNum int       `json:"first_frame"`
+}
+
+func (m *metrics) figures() []runFigures {
+	m.mu.Lock()
+	defer m.mu.Unlock()
+	var out []runFigures
+	for _, r := range m.done {
+		f := runFigures{RunID: r.RunID, BlockID: r.BlockID, Target: r.Target, Outcome: r.Outcome, Frames: len(r.Files),
+			PlannedStart: r.PlannedStart, ActualStart: r.Start, PlannedEnd: r.PlannedEnd, ActualEnd: r.End,
+			SlewDeg: r.SlewDegrees, SlewActualS: r.SlewActualS, SlewModelS: r.SlewModelS, ReportID: r.ReportID, PlanID: r.PlanID,
+			FirstFrameNum: r.FirstFrame}
+		if !r.Start.IsZero() {
+			f.StartDelayS = r.Start.Sub(r.PlannedStart).Seconds()
+			f.EndDelayS = r.End.Sub(r.PlannedEnd).Seconds()
+		}
+		if r.SlewActualS > 0 {
+			f.SlewErrorS = r.SlewActualS - r.SlewModelS
+		}
+		out = append(out, f)
+	}
+	sort.Slice(out, func(i, k int) bool { return out[i].PlannedStart.Before(out[k].PlannedStart) })
+	return out
+}
+
+// summary prints the night's runs and the medians the overhead model is
+// calibrated with.
+func (m *metrics) summary(w io.Writer) {
+	figs := m.figures()
+	fmt.Fprintf(w, "night summary: %d runs reported\n", len(figs))
+	fmt.Fprintf(w, "%-20s %-11s %6s %20s %10s %10s %8s %8s %8s %8s\n", "target", "outcome", "frames", "planned start (UTC)",
+		"start +s", "end +s", "slew deg", "slew s", "model s", "error s")
+	var starts, ends, errs, rates []float64
+	for _, f := range figs {
+		fmt.Fprintf(w, "%-20s %-11s %6d %20s %10.1f %10.1f %8.2f %8.1f %8.1f %8.1f\n", truncate(f.Target, 20), f.Outcome, f.Frames,
+			f.PlannedStart.UTC().Format("2006-01-02 15:04:05"), f.StartDelayS, f.EndDelayS, f.SlewDeg, f.SlewActualS, f.SlewModelS, f.SlewErrorS)
+		if !f.ActualStart.IsZero() {
+			starts = append(starts, f.StartDelayS)
+			ends = append(ends, f.EndDelayS)
+		}
+		if f.SlewActualS > 0 {
+			errs = append(errs, f.SlewErrorS)
+			if f.SlewDeg > 1 {
+				rates = append(rates, f.SlewDeg/f.SlewActualS)
+			}
+		}
+	}
+	fmt.Fprintf(w, "median start delay %.1f s, median end delay %.1f s, median slew error %.1f s (actual - model), median slew speed %.2f deg/s over %d slews > 1 deg\n",
+		median(starts), median(ends), median(errs), median(rates), len(rates))
+}
+
+// writeJSON writes the figures as a JSON array.
+func (m *metrics) writeJSON(w io.Writer) error {
+	enc := json.NewEncoder(w)
+	enc.SetIndent("", "  ")
+	return enc.Encode(m.figures())
+}
+
+func median(xs []float64) float64 {
+	if len(xs) == 0 {
+		return math.NaN()
+	}
+	s := append([]float64(nil), xs...)
+	sort.Float64s(s)
+	if n := len(s); n%2 == 1 {
+		return s[n/2]
+	} else {
+		return (s[n/2-1] + s[n/2]) / 2
+	}
+}
