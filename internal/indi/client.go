@@ -523,7 +523,10 @@ func (c *Client) waitFrom(ctx context.Context, device, name string, gen, seq uin
 // SetAndWait sends a new vector and waits until the device has carried it
 // out: an update of the property that is not Busy, after either a Busy
 // update or one whose values already show the request (a driver that
-// finishes at once sends Ok directly). An Alert answer returns ErrAlert
+// finishes at once sends Ok directly). When neither comes within
+// QuietGrace and the property is neither Busy nor Alert, the driver is
+// taken to have done it at once (some answer a request that changes nothing
+// with an update that does not echo it). An Alert answer returns ErrAlert
 // with the driver's message. Number values match within NumberTolerance
 // (relative).
 func (c *Client) SetAndWait(ctx context.Context, kind Kind, device, name string, vals ...Value) (Property, error) {
@@ -538,26 +541,47 @@ func (c *Client) SetAndWait(ctx context.Context, kind Kind, device, name string,
 		return Property{}, err
 	}
 	sawBusy := false
-	var failed *Property
-	p, err := c.waitFrom(ctx, device, name, gen, seq, func(p *Property) bool {
+	var failed bool
+	cond := func(p *Property) bool {
 		switch p.State {
 		case Busy:
 			sawBusy = true
 			return false
 		case Alert:
-			failed = p
+			failed = true
 			return true
 		}
 		return sawBusy || shows(p, kind, vals)
-	})
+	}
+	gctx, cancel := context.WithTimeout(ctx, QuietGrace)
+	p, err := c.waitFrom(gctx, device, name, gen, seq, cond)
+	cancel()
+	if err != nil && ctx.Err() == nil && errors.Is(err, context.DeadlineExceeded) {
+		c.mu.Lock()
+		e, sameConn := c.props[propKey{device, name}], c.gen == gen
+		quiet := e != nil && sameConn && !sawBusy && e.State != Busy && e.State != Alert
+		if quiet {
+			p = e.clone()
+		}
+		c.mu.Unlock()
+		if quiet {
+			return p, nil
+		}
+		p, err = c.waitFrom(ctx, device, name, gen, seq, cond)
+	}
 	if err != nil {
 		return p, err
 	}
-	if failed != nil {
+	if failed {
 		return p, fmt.Errorf("%w: %s.%s: %s", ErrAlert, device, name, p.Message)
 	}
 	return p, nil
 }
+
+// QuietGrace is how long SetAndWait waits for a sign that the driver took
+// a request (a Busy update, or values equal to the request) before it
+// accepts a property that is neither Busy nor Alert.
+const QuietGrace = 3 * time.Second
 
 // NumberTolerance is the relative tolerance with which SetAndWait sees a
 // requested number in an update (1e-6 of the value, at least 1e-6).
