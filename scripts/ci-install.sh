@@ -9,6 +9,7 @@
 set -euo pipefail
 
 PACKAGES=(
+	"indiserver indi-bin"
 )
 
 need=()

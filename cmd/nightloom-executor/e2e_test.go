@@ -89,7 +89,9 @@ func newRig(t *testing.T) *rig {
 
 	port := freePort(t)
 	r.indiAddr = fmt.Sprintf("127.0.0.1:%d", port)
-	cmd := exec.Command(indiserver, append([]string{"-p", strconv.Itoa(port)}, simulators...)...)
+	// -u: a local socket of its own, so that several servers can run (the
+	// default path is shared by every indiserver on the machine).
+	cmd := exec.Command(indiserver, append([]string{"-p", strconv.Itoa(port), "-u", fmt.Sprintf("/tmp/nightloom-e2e-indi-%d", port)}, simulators...)...)
 	cmd.Dir = t.TempDir() // the drivers write their config files under HOME
 	cmd.Env = append(os.Environ(), "HOME="+cmd.Dir)
 	cmd.SysProcAttr = &syscall.SysProcAttr{Setpgid: true}
@@ -110,7 +112,8 @@ func newRig(t *testing.T) *rig {
 			break
 		}
 		if time.Now().After(deadline) {
-			t.Fatalf("indiserver never listened: %v", err)
+			b, _ := os.ReadFile(filepath.Join(r.out, "indiserver.log"))
+			t.Fatalf("indiserver never listened: %v\n%s", err, tail(string(b), 3000))
 		}
 	}
 	r.ic = ic
