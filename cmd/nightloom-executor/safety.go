@@ -59,44 +59,37 @@ func newSiteSky(s *pb.Site) (*siteSky, error) {
 
 // Refusals of a slew.
 var (
-	errSunTooClose    = errors.New("closer to the Sun than the site's solar-avoidance floor")
-	errBelowHorizon   = errors.New("below the site's horizon profile")
-	errSunUp          = errors.New("the Sun is above the parking altitude")
-	errNoPointingSent = errors.New("the assignment has no pointing")
+	errSunTooClose  = errors.New("closer to the Sun than the site's solar-avoidance floor")
+	errBelowHorizon = errors.New("below the site's horizon profile")
+	errNoPointing   = errors.New("the assignment has no pointing")
 )
 
 // look is where an apparent place of date stands at one instant.
 type look struct {
-	altDeg, azDeg     float64 // apparent altitude when the site has air, else geometric
-	sunSepDeg         float64 // separation from the topocentric apparent Sun
-	sunAltDeg         float64 // the Sun's altitude
-	horizonDeg        float64 // the horizon profile's altitude at azDeg
-	airmass, haDeg    float64
-	raDeg, decDeg     float64
-	ofDate            ephem.Vec3
-	local             ephem.Local
-	instant           ephem.Instant
-	refractionApplied bool
+	altDeg, azDeg float64 // apparent altitude when the site has air, else geometric
+	sunSepDeg     float64 // separation from the topocentric apparent Sun
+	sunAltDeg     float64 // the Sun's altitude
+	horizonDeg    float64 // the horizon profile's altitude at azDeg
+	airmass       float64 // Kasten & Young (ephem.Airmass)
+	haDeg         float64 // local apparent hour angle
 }
 
 // lookAt places apparent (true equator and equinox of date, topocentric)
 // right ascension and declination in degrees at t. Sun: the domain's
 // ephem.Local.SunOfDate (VSOP87 Earth, aberration; see ephem/snapshot.go).
 func (s *siteSky) lookAt(t time.Time, raDeg, decDeg float64) look {
-	in := ephem.NewInstant(t)
-	snap := ephem.Prepare(in)
+	snap := ephem.Prepare(ephem.NewInstant(t))
 	l := snap.Local(&s.obs)
 	v := ephem.SphericalToVec(raDeg*deg, decDeg*deg)
 	alt, az := l.HorizontalOfDate(v)
 	altApp := l.ApparentAlt(alt)
 	sun := l.SunPlace()
-	lk := look{
+	return look{
 		altDeg: altApp / deg, azDeg: az / deg,
 		sunSepDeg: ephem.Separation(v, l.SunOfDate()) / deg, sunAltDeg: sun.AltApparent / deg,
 		horizonDeg: s.horizon.AltitudeAt(az) / deg, airmass: ephem.Airmass(altApp),
-		haDeg: l.HourAngle(v) / deg, raDeg: raDeg, decDeg: decDeg, ofDate: v, local: l, instant: in,
+		haDeg: l.HourAngle(v) / deg,
 	}
-	return lk
 }
 
 // sunAltDeg returns the Sun's altitude at t in degrees.
@@ -118,7 +111,7 @@ func (s *siteSky) horizontal(t time.Time, raDeg, decDeg float64) (altDeg, azDeg 
 func pointingAt(a *pb.Assignment, t time.Time) (raDeg, decDeg float64, err error) {
 	p := a.GetPointing()
 	if p == nil {
-		return 0, 0, errNoPointingSent
+		return 0, 0, errNoPointing
 	}
 	raDeg, decDeg = p.GetRaApparentDeg(), p.GetDecApparentDeg()
 	if r := a.GetRate(); r != nil && a.GetStart() != nil {
