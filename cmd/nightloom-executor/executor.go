@@ -232,6 +232,7 @@ func (e *executor) execute(ctx context.Context, resp *pb.NextAssignmentResponse)
 	}
 	if fra, fdec, ok := e.dev.mountPosition(); ok {
 		rec.SlewDegrees = ephem.Separation(ephem.SphericalToVec(fra*deg, fdec*deg), ephem.SphericalToVec(ra*deg, dec*deg)) / deg
+		rec.SlewAxisDeg = e.axisMove(fra, fdec, ra, dec)
 	}
 	t0 := e.now()
 	off, err := e.dev.slew(octx, ra, dec)
@@ -576,6 +577,22 @@ func (e *executor) replan(ctx context.Context, from time.Time, cl *pb.Closure) {
 			"assignments", len(resp.GetPlan().GetAssignments()), "closure", cl != nil)
 		return
 	}
+}
+
+// axisMove is the larger of the two axis moves of a slew between apparent
+// places, in degrees: hour angle and declination for equatorial mounts
+// (the hour angle changes as the right ascension, the sidereal time
+// advancing by well under a degree during a slew), azimuth and altitude
+// for alt-azimuth ones. The overhead model counts the slower axis the same
+// way.
+func (e *executor) axisMove(fromRA, fromDec, toRA, toDec float64) float64 {
+	if e.site.GetMount().GetKind() == pb.MountKind_MOUNT_KIND_ALT_AZIMUTH {
+		now := e.now()
+		alt1, az1 := e.sky.horizontal(now, fromRA, fromDec)
+		alt2, az2 := e.sky.horizontal(now, toRA, toDec)
+		return max(math.Abs(math.Remainder(az2-az1, 360)), math.Abs(alt2-alt1))
+	}
+	return max(math.Abs(math.Remainder(toRA-fromRA, 360)), math.Abs(toDec-fromDec))
 }
 
 func maxTime(a, b time.Time) time.Time {

@@ -42,6 +42,9 @@ type runRecord struct {
 	SlewModelS  float64 `json:"slew_model_s"`
 	SlewActualS float64 `json:"slew_actual_s"`
 	SlewDegrees float64 `json:"slew_deg"`
+	// SlewAxisDeg is the larger axis move of the slew (what the overhead
+	// model's trapezoidal profile is fitted on).
+	SlewAxisDeg float64 `json:"slew_axis_deg"`
 	// PointingOffArcsec is how far the mount stood from the place it was
 	// sent to, after the slew.
 	PointingOffArcsec float64 `json:"pointing_off_arcsec"`

@@ -77,24 +77,26 @@ func (m *metrics) observe(r *runRecord) {
 
 // runFigures is one run's line of the summary (also its JSON form).
 type runFigures struct {
-	RunID         string    `json:"run_id"`
-	BlockID       string    `json:"block_id"`
-	Target        string    `json:"target"`
-	Outcome       string    `json:"outcome"`
-	Frames        int       `json:"frames"`
-	PlannedStart  time.Time `json:"planned_start"`
-	ActualStart   time.Time `json:"actual_start"`
-	PlannedEnd    time.Time `json:"planned_end"`
-	ActualEnd     time.Time `json:"actual_end"`
-	StartDelayS   float64   `json:"start_delay_s"`
-	EndDelayS     float64   `json:"end_delay_s"`
-	SlewDeg       float64   `json:"slew_deg"`
-	SlewActualS   float64   `json:"slew_actual_s"`
-	SlewModelS    float64   `json:"slew_model_s"`
-	SlewErrorS    float64   `json:"slew_error_s"`
-	ReportID      string    `json:"report_id"`
-	PlanID        string    `json:"plan_id"`
-	FirstFrameNum int       `json:"first_frame"`
+	RunID             string    `json:"run_id"`
+	BlockID           string    `json:"block_id"`
+	Target            string    `json:"target"`
+	Outcome           string    `json:"outcome"`
+	Frames            int       `json:"frames"`
+	PlannedStart      time.Time `json:"planned_start"`
+	ActualStart       time.Time `json:"actual_start"`
+	PlannedEnd        time.Time `json:"planned_end"`
+	ActualEnd         time.Time `json:"actual_end"`
+	StartDelayS       float64   `json:"start_delay_s"`
+	EndDelayS         float64   `json:"end_delay_s"`
+	SlewDeg           float64   `json:"slew_deg"`
+	SlewAxisDeg       float64   `json:"slew_axis_deg"`
+	SlewActualS       float64   `json:"slew_actual_s"`
+	SlewModelS        float64   `json:"slew_model_s"`
+	SlewErrorS        float64   `json:"slew_error_s"`
+	ReportID          string    `json:"report_id"`
+	PlanID            string    `json:"plan_id"`
+	FirstFrameNum     int       `json:"first_frame"`
+	PointingOffArcsec float64   `json:"pointing_off_arcsec"`
 }
 
 func (m *metrics) figures() []runFigures {
@@ -104,8 +106,8 @@ func (m *metrics) figures() []runFigures {
 	for _, r := range m.done {
 		f := runFigures{RunID: r.RunID, BlockID: r.BlockID, Target: r.Target, Outcome: r.Outcome, Frames: len(r.Files),
 			PlannedStart: r.PlannedStart, ActualStart: r.Start, PlannedEnd: r.PlannedEnd, ActualEnd: r.End,
-			SlewDeg: r.SlewDegrees, SlewActualS: r.SlewActualS, SlewModelS: r.SlewModelS, ReportID: r.ReportID, PlanID: r.PlanID,
-			FirstFrameNum: r.FirstFrame}
+			SlewDeg: r.SlewDegrees, SlewAxisDeg: r.SlewAxisDeg, SlewActualS: r.SlewActualS, SlewModelS: r.SlewModelS, ReportID: r.ReportID, PlanID: r.PlanID,
+			FirstFrameNum: r.FirstFrame, PointingOffArcsec: r.PointingOffArcsec}
 		if !r.Start.IsZero() {
 			f.StartDelayS = r.Start.Sub(r.PlannedStart).Seconds()
 			f.EndDelayS = r.End.Sub(r.PlannedEnd).Seconds()
@@ -126,7 +128,7 @@ func (m *metrics) summary(w io.Writer) {
 	fmt.Fprintf(w, "night summary: %d runs reported\n", len(figs))
 	fmt.Fprintf(w, "%-20s %-11s %6s %20s %10s %10s %8s %8s %8s %8s\n", "target", "outcome", "frames", "planned start (UTC)",
 		"start +s", "end +s", "slew deg", "slew s", "model s", "error s")
-	var starts, ends, errs, rates []float64
+	var starts, ends, errs, axis, secs []float64
 	for _, f := range figs {
 		fmt.Fprintf(w, "%-20s %-11s %6d %20s %10.1f %10.1f %8.2f %8.1f %8.1f %8.1f\n", truncate(f.Target, 20), f.Outcome, f.Frames,
 			f.PlannedStart.UTC().Format("2006-01-02 15:04:05"), f.StartDelayS, f.EndDelayS, f.SlewDeg, f.SlewActualS, f.SlewModelS, f.SlewErrorS)
@@ -136,13 +138,46 @@ func (m *metrics) summary(w io.Writer) {
 		}
 		if f.SlewActualS > 0 {
 			errs = append(errs, f.SlewErrorS)
-			if f.SlewDeg > 1 {
-				rates = append(rates, f.SlewDeg/f.SlewActualS)
+			if f.SlewAxisDeg > 1 {
+				axis, secs = append(axis, f.SlewAxisDeg), append(secs, f.SlewActualS)
 			}
 		}
 	}
-	fmt.Fprintf(w, "median start delay %.1f s, median end delay %.1f s, median slew error %.1f s (actual - model), median slew speed %.2f deg/s over %d slews > 1 deg\n",
-		median(starts), median(ends), median(errs), median(rates), len(rates))
+	fmt.Fprintf(w, "median start delay %.1f s, median end delay %.1f s, median slew error %.1f s (actual - model)\n",
+		median(starts), median(ends), median(errs))
+	if rate, acc, ok := fitSlews(axis, secs); ok {
+		fmt.Fprintf(w, "slew fit over %d slews > 1 deg: axis rate %.2f deg/s, acceleration %.2f deg/s^2 (t = d/rate + rate/acceleration)\n",
+			len(axis), rate, acc)
+	} else {
+		fmt.Fprintf(w, "slew fit: too few slews > 1 deg of different lengths (%d)\n", len(axis))
+	}
+}
+
+// fitSlews fits the trapezoidal slew profile t = d/v + v/a (a move long
+// enough to reach the rate v: accelerate for v/a, cruise, decelerate for
+// v/a) to slews of d degrees on the slower axis taking t seconds, by
+// ordinary least squares on t = t0 + d/v; then a = v/t0. ok is false with
+// fewer than two distinct lengths or a fit that is not physical.
+func fitSlews(d, t []float64) (rate, acc float64, ok bool) {
+	n := float64(len(d))
+	if len(d) < 2 {
+		return 0, 0, false
+	}
+	var sx, sy, sxx, sxy float64
+	for i := range d {
+		sx, sy, sxx, sxy = sx+d[i], sy+t[i], sxx+d[i]*d[i], sxy+d[i]*t[i]
+	}
+	den := n*sxx - sx*sx
+	if den <= 1e-9*n*sxx {
+		return 0, 0, false
+	}
+	slope := (n*sxy - sx*sy) / den
+	t0 := (sy - slope*sx) / n
+	if slope <= 0 || t0 <= 0 {
+		return 0, 0, false
+	}
+	rate = 1 / slope
+	return rate, rate / t0, true
 }
 
 // writeJSON writes the figures as a JSON array.

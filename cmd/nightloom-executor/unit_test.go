@@ -131,3 +131,22 @@ func TestPointingAtMovingTarget(t *testing.T) {
 		t.Errorf("moved to %.6f %.6f, want %.6f %.6f", ra, dec, 100+2.0/60, 60+2.0/60)
 	}
 }
+
+// The trapezoidal profile (constant acceleration a to the rate v, cruise,
+// constant deceleration): a move of d >= v*v/a takes d/v + v/a (elementary
+// kinematics). Slews generated from v = 4 deg/s, a = 2 deg/s^2 give them
+// back.
+func TestFitSlews(t *testing.T) {
+	const v, a, tol = 4.0, 2.0, 1e-9
+	var d, secs []float64
+	for _, x := range []float64{10, 40, 90} {
+		d, secs = append(d, x), append(secs, x/v+v/a)
+	}
+	rate, acc, ok := fitSlews(d, secs)
+	if !ok || math.Abs(rate-v) > tol || math.Abs(acc-a) > tol {
+		t.Errorf("fit %v %v %v, want %v %v", rate, acc, ok, v, a)
+	}
+	if _, _, ok := fitSlews([]float64{10, 10}, []float64{3, 3}); ok {
+		t.Error("one length fitted")
+	}
+}
