@@ -160,7 +160,7 @@ func (e *executor) execute(ctx context.Context, resp *pb.NextAssignmentResponse)
 	if until, ok := e.refused[key]; ok {
 		return e.pause(ctx, max(time.Until(until), time.Second))
 	}
-	kept, err := e.j.framesKept(planID, a.GetBlockId(), start)
+	kept, err := e.j.framesKept(planID, a.GetBlockId(), start, end)
 	if err != nil {
 		return err
 	}

@@ -102,19 +102,34 @@ func (j *journal) all() ([]*runRecord, error) {
 	return out, nil
 }
 
-// framesKept returns how many frames earlier runs kept of one assignment.
-func (j *journal) framesKept(planID, blockID string, start time.Time) (int, error) {
+// framesKept returns how many frames earlier runs kept of one assignment:
+// runs of the same plan and block whose assignment interval overlaps
+// [start, end] by more than half of the shorter one. (Dispatch may move an
+// assignment's start by the overheads it recomputes, and returns a run in
+// progress as planned, so the start alone does not name an assignment.)
+func (j *journal) framesKept(planID, blockID string, start, end time.Time) (int, error) {
 	all, err := j.all()
 	if err != nil {
 		return 0, err
 	}
 	n := 0
 	for _, r := range all {
-		if r.PlanID == planID && r.BlockID == blockID && r.AssignmentStart.Equal(start) {
+		if r.PlanID == planID && r.BlockID == blockID && sameAssignment(r.AssignmentStart, r.PlannedEnd, start, end) {
 			n += len(r.Files)
 		}
 	}
 	return n, nil
+}
+
+// sameAssignment reports whether two intervals overlap by more than half of
+// the shorter one.
+func sameAssignment(s1, e1, s2, e2 time.Time) bool {
+	lo, hi := maxTime(s1, s2), e1
+	if e2.Before(hi) {
+		hi = e2
+	}
+	shorter := min(e1.Sub(s1), e2.Sub(s2))
+	return hi.Sub(lo) > shorter/2
 }
 
 func writeFileAtomic(path string, b []byte) error {

@@ -13,7 +13,7 @@
 //
 // Usage:
 //
-//	nightloom-executor --server 127.0.0.1:7450 --site SITE_ID --indi 127.0.0.1:7624 \
+//	nightloom-executor --server 127.0.0.1:7878 --site SITE_ID --indi 127.0.0.1:7624 \
 //	    --filters L=8,R=1,G=2,B=3 --out /data/frames
 package main
 
@@ -69,7 +69,7 @@ func parseFlags(args []string, stderr io.Writer) (*options, error) {
 	o := &options{}
 	fs := flag.NewFlagSet("nightloom-executor", flag.ContinueOnError)
 	fs.SetOutput(stderr)
-	fs.StringVar(&o.server, "server", "127.0.0.1:7450", "nightloomd address host:port")
+	fs.StringVar(&o.server, "server", "127.0.0.1:7878", "nightloomd address host:port")
 	fs.StringVar(&o.token, "token", "", "token of role telescope (default: env "+envToken+")")
 	fs.StringVar(&o.tlsCA, "tls-ca", "", "PEM file of the CA that signed the daemon's certificate; turns TLS on")
 	fs.StringVar(&o.siteID, "site", "", "id of the site this executor runs (required)")

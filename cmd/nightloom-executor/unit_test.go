@@ -150,3 +150,23 @@ func TestFitSlews(t *testing.T) {
 		t.Error("one length fitted")
 	}
 }
+
+// Dispatch moves a run's start by recomputed overheads and returns a run in
+// progress as planned: the same assignment then comes back with a start a
+// few seconds apart; consecutive runs of one block only touch.
+func TestSameAssignment(t *testing.T) {
+	at := func(s int) time.Time { return time.Date(2026, 12, 4, 18, 9, 0, 0, time.UTC).Add(time.Duration(s) * time.Second) }
+	for _, tc := range []struct {
+		s1, e1, s2, e2 int
+		want           bool
+	}{
+		{57, 69, 56, 68, true},  // moved by a second
+		{46, 58, 56, 68, false}, // the next run of the block, 2 s overlap after a late start
+		{0, 12, 12, 24, false},  // back to back
+		{0, 12, 0, 12, true},
+	} {
+		if got := sameAssignment(at(tc.s1), at(tc.e1), at(tc.s2), at(tc.e2)); got != tc.want {
+			t.Errorf("%+v: %v", tc, got)
+		}
+	}
+}
