@@ -155,7 +155,9 @@ func TestFitSlews(t *testing.T) {
 // progress as planned: the same assignment then comes back with a start a
 // few seconds apart; consecutive runs of one block only touch.
 func TestSameAssignment(t *testing.T) {
-	at := func(s int) time.Time { return time.Date(2026, 12, 4, 18, 9, 0, 0, time.UTC).Add(time.Duration(s) * time.Second) }
+	at := func(s int) time.Time {
+		return time.Date(2026, 12, 4, 18, 9, 0, 0, time.UTC).Add(time.Duration(s) * time.Second)
+	}
 	for _, tc := range []struct {
 		s1, e1, s2, e2 int
 		want           bool
