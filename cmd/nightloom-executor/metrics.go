@@ -127,11 +127,11 @@ func (m *metrics) summary(w io.Writer) {
 	figs := m.figures()
 	fmt.Fprintf(w, "night summary: %d runs reported\n", len(figs))
 	fmt.Fprintf(w, "%-20s %-11s %6s %20s %10s %10s %8s %8s %8s %8s\n", "target", "outcome", "frames", "planned start (UTC)",
-		"start +s", "end +s", "slew deg", "slew s", "model s", "error s")
+		"start +s", "end +s", "axis deg", "slew s", "model s", "error s")
 	var starts, ends, errs, axis, secs []float64
 	for _, f := range figs {
 		fmt.Fprintf(w, "%-20s %-11s %6d %20s %10.1f %10.1f %8.2f %8.1f %8.1f %8.1f\n", truncate(f.Target, 20), f.Outcome, f.Frames,
-			f.PlannedStart.UTC().Format("2006-01-02 15:04:05"), f.StartDelayS, f.EndDelayS, f.SlewDeg, f.SlewActualS, f.SlewModelS, f.SlewErrorS)
+			f.PlannedStart.UTC().Format("2006-01-02 15:04:05"), f.StartDelayS, f.EndDelayS, f.SlewAxisDeg, f.SlewActualS, f.SlewModelS, f.SlewErrorS)
 		if !f.ActualStart.IsZero() {
 			starts = append(starts, f.StartDelayS)
 			ends = append(ends, f.EndDelayS)
@@ -145,10 +145,14 @@ func (m *metrics) summary(w io.Writer) {
 	}
 	fmt.Fprintf(w, "median start delay %.1f s, median end delay %.1f s, median slew error %.1f s (actual - model)\n",
 		median(starts), median(ends), median(errs))
-	if rate, acc, ok := fitSlews(axis, secs); ok {
+	switch rate, acc, ok := fitSlews(axis, secs); {
+	case ok && acc > 0:
 		fmt.Fprintf(w, "slew fit over %d slews > 1 deg: axis rate %.2f deg/s, acceleration %.2f deg/s^2 (t = d/rate + rate/acceleration)\n",
 			len(axis), rate, acc)
-	} else {
+	case ok:
+		fmt.Fprintf(w, "slew fit over %d slews > 1 deg: axis rate %.2f deg/s, no measurable acceleration time (t = d/rate; enter a high acceleration)\n",
+			len(axis), rate)
+	default:
 		fmt.Fprintf(w, "slew fit: too few slews > 1 deg of different lengths (%d)\n", len(axis))
 	}
 }
@@ -156,8 +160,10 @@ func (m *metrics) summary(w io.Writer) {
 // fitSlews fits the trapezoidal slew profile t = d/v + v/a (a move long
 // enough to reach the rate v: accelerate for v/a, cruise, decelerate for
 // v/a) to slews of d degrees on the slower axis taking t seconds, by
-// ordinary least squares on t = t0 + d/v; then a = v/t0. ok is false with
-// fewer than two distinct lengths or a fit that is not physical.
+// ordinary least squares on t = t0 + d/v; then a = v/t0. When the fitted
+// t0 is not positive the acceleration time is too short to measure: the
+// rate is then fitted through the origin (t = d/v) and acc is 0. ok is
+// false with fewer than two distinct lengths.
 func fitSlews(d, t []float64) (rate, acc float64, ok bool) {
 	n := float64(len(d))
 	if len(d) < 2 {
@@ -173,11 +179,13 @@ func fitSlews(d, t []float64) (rate, acc float64, ok bool) {
 	}
 	slope := (n*sxy - sx*sy) / den
 	t0 := (sy - slope*sx) / n
-	if slope <= 0 || t0 <= 0 {
+	if slope > 0 && t0 > 0 {
+		return 1 / slope, 1 / slope / t0, true
+	}
+	if sxy <= 0 {
 		return 0, 0, false
 	}
-	rate = 1 / slope
-	return rate, rate / t0, true
+	return sxx / sxy, 0, true
 }
 
 // writeJSON writes the figures as a JSON array.

@@ -172,3 +172,11 @@ func TestSameAssignment(t *testing.T) {
 		}
 	}
 }
+
+// A mount with no measurable acceleration time: t = d/v exactly.
+func TestFitSlewsNoAcceleration(t *testing.T) {
+	rate, acc, ok := fitSlews([]float64{16, 70, 97}, []float64{16.0 / 4, 70.0 / 4, 97.0 / 4})
+	if !ok || math.Abs(rate-4) > 1e-9 || acc != 0 {
+		t.Errorf("fit %v %v %v, want rate 4 and no acceleration", rate, acc, ok)
+	}
+}
