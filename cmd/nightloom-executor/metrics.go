@@ -179,7 +179,7 @@ func fitSlews(d, t []float64) (rate, acc float64, ok bool) {
 	}
 	slope := (n*sxy - sx*sy) / den
 	t0 := (sy - slope*sx) / n
-	if slope > 0 && t0 > 0 {
+	if slope > 0 && t0 > 1e-6*sy/n { // an intercept below a millionth of the mean time is none
 		return 1 / slope, 1 / slope / t0, true
 	}
 	if sxy <= 0 {
