@@ -71,9 +71,8 @@ func (d *devices) connect(ctx context.Context) error {
 			return fmt.Errorf("device %q: %w", dev, err)
 		}
 		if !p.IsOn("CONNECT") {
-			if d.dryRun {
-				return fmt.Errorf("device %q is not connected (dry run connects nothing)", dev)
-			}
+			// Connecting moves nothing; a dry run needs it to read the device.
+			d.log.Info("connecting", "device", dev)
 			if _, err := d.c.SetAndWait(ctx, indi.Switch, dev, "CONNECTION", on("CONNECT"), off("DISCONNECT")); err != nil {
 				return fmt.Errorf("connecting %q: %w", dev, err)
 			}
