@@ -10,6 +10,7 @@ set -euo pipefail
 
 PACKAGES=(
 	"indiserver indi-bin"
+	"/usr/lib/python3/dist-packages/astropy python3-astropy"
 )
 
 need=()

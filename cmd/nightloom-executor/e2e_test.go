@@ -521,6 +521,10 @@ func TestExecutorNightOnSimulators(t *testing.T) {
 	if n := r.checkFrames(); n < 6 {
 		t.Errorf("%d frames checked, want at least 6", n)
 	}
+	for _, list := range r.frames() {
+		astropyVerify(t, list[0]) // one real frame from the camera simulator, as edited
+		break
+	}
 
 	// Weather: Alert in the middle of a run.
 	r.waitFor("a run in progress", 90*time.Second, func() bool { return r.runInProgress() != nil })
@@ -663,4 +667,31 @@ func logFigures(t *testing.T, path string) {
 	}
 	sort.Float64s(starts)
 	t.Logf("figures: %d runs; start delays %v s; slew errors (actual - model) %v s", len(figs), starts, errs)
+}
+
+// astropyVerify opens a written frame with astropy.io.fits and verifies it
+// (output_verify "exception"): an outside reader of the camera's file as
+// the executor edited it. Without python3-astropy it is logged locally and
+// fails under CI.
+func astropyVerify(t *testing.T, path string) {
+	t.Helper()
+	py, err := exec.LookPath("python3")
+	if err == nil {
+		err = exec.Command(py, "-c", "import astropy.io.fits").Run()
+	}
+	if err != nil {
+		if testenv.InCI() {
+			t.Errorf("python3-astropy missing: %v", err)
+		} else {
+			t.Logf("python3-astropy missing, frame not checked by astropy: %v", err)
+		}
+		return
+	}
+	script := "import sys\nfrom astropy.io import fits\nwith fits.open(sys.argv[1]) as h:\n    h.verify('exception')\n    print(h[0].header['OBJECT'], h[0].header['NAXIS1'])\n"
+	out, err := exec.Command(py, "-c", script, path).CombinedOutput()
+	if err != nil {
+		t.Errorf("astropy rejects %s: %v\n%s", path, err, out)
+		return
+	}
+	t.Logf("astropy reads %s: %s", filepath.Base(path), strings.TrimSpace(string(out)))
 }

@@ -2,8 +2,14 @@ package main
 
 import (
 	"bytes"
+	"encoding/json"
+	"os"
+	"os/exec"
+	"path/filepath"
 	"strings"
 	"testing"
+
+	"github.com/nightloom/nightloom/internal/testenv"
 )
 
 // Card layouts from the FITS standard 4.0, sect. 4.2 (fixed format): the
@@ -42,15 +48,16 @@ func TestCardFormat(t *testing.T) {
 }
 
 // synthetic builds a primary HDU with n header cards before END and a data
-// unit of one block.
+// unit of one block (2880 8-bit values).
 func synthetic(n int) []byte {
 	var b bytes.Buffer
 	pad := func(s string) string { return s + strings.Repeat(" ", fitsCard-len(s)) }
 	b.WriteString(pad("SIMPLE  =                    T"))
-	b.WriteString(pad("BITPIX  =                   16"))
-	b.WriteString(pad("NAXIS   =                    0"))
+	b.WriteString(pad("BITPIX  =                    8"))
+	b.WriteString(pad("NAXIS   =                    1"))
+	b.WriteString(pad("NAXIS1  =                 2880"))
 	b.WriteString(pad("OBJECT  = 'Unknown '"))
-	for i := 4; i < n; i++ {
+	for i := 5; i < n; i++ {
 		b.WriteString(pad("COMMENT filler"))
 	}
 	b.WriteString(pad("END"))
@@ -83,7 +90,7 @@ func TestEditHeader(t *testing.T) {
 	if !bytes.Equal(out[2*fitsBlock:], in[fitsBlock:]) {
 		t.Error("data unit changed")
 	}
-	for key, want := range map[string]string{"OBJECT": "Invented Nebula", "FILTER": "L", "EXPTIME": "1.5", "BITPIX": "16"} {
+	for key, want := range map[string]string{"OBJECT": "Invented Nebula", "FILTER": "L", "EXPTIME": "1.5", "BITPIX": "8"} {
 		if got, ok := headerValue(out, key); !ok || got != want {
 			t.Errorf("%s = %q (%v), want %q", key, got, ok, want)
 		}
@@ -93,5 +100,57 @@ func TestEditHeader(t *testing.T) {
 	}
 	if _, err := editHeader([]byte("not fits"), nil); err == nil {
 		t.Error("garbage accepted")
+	}
+}
+
+// An edited file read back by an outside FITS reader: astropy.io.fits
+// (Debian's python3-astropy, 5.2.1 here) with output_verify="exception",
+// which rejects cards that break the standard.
+func TestEditHeaderReadByAstropy(t *testing.T) {
+	py := testenv.LookPath(t, "python3", "python3-astropy", "/usr/bin")
+	if err := exec.Command(py, "-c", "import astropy.io.fits").Run(); err != nil {
+		testenv.Missing(t, "python3-astropy", "python3 cannot import astropy.io.fits")
+	}
+	out, err := editHeader(synthetic(35), []card{
+		{"OBJECT", "Invented O'Nebula", "target name"},
+		{"FILTER", "L", "filter name"},
+		{"EXPTIME", 1.5, "[s] exposure time"},
+		{"DATE-OBS", "2026-12-04T23:00:01.250", "UTC start of the exposure"},
+		{"RA", 83.822083333, "[deg]"},
+		{"DEC", -5.391111111, "[deg]"},
+		{"AIRMASS", 1.2345, ""},
+		{"SITELONG", -70.5, "[deg] east positive"},
+		{"FRAMENO", 12, ""},
+		{"BLOCKID", "blk-0123456789abcdef01234567", "nightloom block id"},
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	path := filepath.Join(t.TempDir(), "f.fits")
+	if err := os.WriteFile(path, out, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	script := `import sys, json
+from astropy.io import fits
+with fits.open(sys.argv[1]) as h:
+    h.verify("exception")
+    hd = h[0].header
+    print(json.dumps({k: hd[k] for k in ["OBJECT", "FILTER", "EXPTIME", "DATE-OBS", "RA", "DEC", "AIRMASS", "SITELONG", "FRAMENO", "BLOCKID", "BITPIX"]}))
+`
+	b, err := exec.Command(py, "-c", script, path).CombinedOutput()
+	if err != nil {
+		t.Fatalf("astropy rejected the file: %v\n%s", err, b)
+	}
+	var got map[string]any
+	if err := json.Unmarshal(b, &got); err != nil {
+		t.Fatalf("%v: %s", err, b)
+	}
+	want := map[string]any{"OBJECT": "Invented O'Nebula", "FILTER": "L", "EXPTIME": 1.5, "DATE-OBS": "2026-12-04T23:00:01.250",
+		"RA": 83.822083333, "DEC": -5.391111111, "AIRMASS": 1.2345, "SITELONG": -70.5, "FRAMENO": 12.0,
+		"BLOCKID": "blk-0123456789abcdef01234567", "BITPIX": 8.0}
+	for k, w := range want {
+		if got[k] != w {
+			t.Errorf("astropy reads %s = %v, want %v", k, got[k], w)
+		}
 	}
 }
