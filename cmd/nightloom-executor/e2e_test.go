@@ -13,6 +13,7 @@ import (
 	"log/slog"
 	"math"
 	"net"
+	"net/http"
 	"os"
 	"os/exec"
 	"path/filepath"
@@ -505,7 +506,8 @@ func TestExecutorNightOnSimulators(t *testing.T) {
 	}
 	t.Parallel()
 	r := newRig(t)
-	ex := r.startExecutor()
+	metricsAddr := fmt.Sprintf("127.0.0.1:%d", freePort(t))
+	ex := r.startExecutor("--metrics-listen", metricsAddr)
 
 	// Observe: runs done, frames with the right headers, each counted once.
 	r.waitFor("two runs reported", 120*time.Second, func() bool {
@@ -571,6 +573,19 @@ func TestExecutorNightOnSimulators(t *testing.T) {
 	})
 	if d, _ := r.ic.Property("Dome Simulator", "DOME_SHUTTER"); !d.IsOn("SHUTTER_OPEN") {
 		t.Error("observing again with the shutter not open")
+	}
+	// The same figures as Prometheus metrics.
+	resp, err := http.Get("http://" + metricsAddr + "/metrics")
+	if err != nil {
+		t.Fatal(err)
+	}
+	body, _ := io.ReadAll(resp.Body)
+	resp.Body.Close()
+	for _, want := range []string{"nightloom_executor_frames_total ", "nightloom_executor_slew_model_error_seconds_count ",
+		"nightloom_executor_run_start_delay_seconds_count ", `nightloom_executor_runs_total{outcome="interrupted"} `, "nightloom_executor_replans_total "} {
+		if !strings.Contains(string(body), want) {
+			t.Errorf("metrics lack %q", want)
+		}
 	}
 	stdout := ex.stop(t)
 	r.checkCounts()
@@ -675,7 +690,10 @@ func logFigures(t *testing.T, path string) {
 // fails under CI.
 func astropyVerify(t *testing.T, path string) {
 	t.Helper()
-	py, err := exec.LookPath("python3")
+	py, err := "/usr/bin/python3", error(nil) // Debian's, which python3-astropy serves
+	if _, serr := os.Stat(py); serr != nil {
+		py, err = exec.LookPath("python3")
+	}
 	if err == nil {
 		err = exec.Command(py, "-c", "import astropy.io.fits").Run()
 	}
