@@ -338,3 +338,36 @@ func TestParseNumber(t *testing.T) {
 		}
 	}
 }
+
+// A driver that answers a request which changes nothing with an Ok update
+// not echoing it (seen with the telescope simulator on a goto to where it
+// already points): SetAndWait takes it after QuietGrace.
+func TestSetAndWaitQuietAnswer(t *testing.T) {
+	f := newFakePeer(t)
+	ctx, cancel := context.WithTimeout(context.Background(), 10*time.Second)
+	defer cancel()
+	c, err := Dial(ctx, f.ln.Addr().String(), Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer c.Close()
+	conn := f.accept(t)
+	write(t, conn, defCoord)
+	if _, err := c.Wait(ctx, "Telescope Simulator", "EQUATORIAL_EOD_COORD", nil); err != nil {
+		t.Fatal(err)
+	}
+	done := make(chan error, 1)
+	begin := time.Now()
+	go func() {
+		_, err := c.SetAndWait(ctx, Number, "Telescope Simulator", "EQUATORIAL_EOD_COORD", Value{Name: "RA", Number: 16.5}, Value{Name: "DEC", Number: 90})
+		done <- err
+	}()
+	f.expect(t, `<newNumberVector device="Telescope Simulator" name="EQUATORIAL_EOD_COORD"`)
+	write(t, conn, `<setNumberVector device="Telescope Simulator" name="EQUATORIAL_EOD_COORD" state="Ok" timestamp="2026-12-04T17:40:00"><oneNumber name="RA">16.51</oneNumber><oneNumber name="DEC">90</oneNumber></setNumberVector>`)
+	if err := <-done; err != nil {
+		t.Fatal(err)
+	}
+	if took := time.Since(begin); took < QuietGrace-100*time.Millisecond {
+		t.Errorf("returned after %v, before the grace of %v", took, QuietGrace)
+	}
+}
