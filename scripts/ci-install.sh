@@ -11,6 +11,8 @@ set -euo pipefail
 PACKAGES=(
 	"chromium chromium"
 	"/usr/lib/postgresql/15/bin/initdb postgresql"
+	"indiserver indi-bin"
+	"/usr/lib/python3/dist-packages/astropy python3-astropy"
 )
 
 need=()

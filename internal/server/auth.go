@@ -24,7 +24,9 @@ type Role string
 
 // Roles (issue 5): viewer reads; operator queues blocks and makes plans, and
 // reads; telescope fetches plans, asks for the next assignment, watches
-// plans and reports progress, and reads blocks and plans; admin does
+// plans and reports progress, and reads blocks and plans; issue 11 lets it
+// also read its site (for its own safety checks) and replan (a weather
+// closure from the executor beside the devices); admin does
 // everything, sites and targets included.
 const (
 	RoleViewer    Role = "viewer"
@@ -52,6 +54,8 @@ var (
 	queueReaders  = []Role{RoleViewer, RoleOperator, RoleTelescope, RoleAdmin}
 	planners      = []Role{RoleOperator, RoleAdmin}
 	reporters     = []Role{RoleTelescope, RoleOperator, RoleAdmin}
+	siteReaders   = []Role{RoleViewer, RoleOperator, RoleTelescope, RoleAdmin}
+	replanners    = []Role{RoleOperator, RoleTelescope, RoleAdmin}
 	administrator = []Role{RoleAdmin}
 )
 
@@ -60,7 +64,7 @@ var (
 // that every RPC of the service descriptors has a row).
 var methodRoles = map[string][]Role{
 	nightloomv1.SiteService_CreateSite_FullMethodName: administrator,
-	nightloomv1.SiteService_GetSite_FullMethodName:    readers,
+	nightloomv1.SiteService_GetSite_FullMethodName:    siteReaders,
 	nightloomv1.SiteService_ListSites_FullMethodName:  readers,
 	nightloomv1.SiteService_UpdateSite_FullMethodName: administrator,
 	nightloomv1.SiteService_DeleteSite_FullMethodName: administrator,
@@ -81,7 +85,7 @@ var methodRoles = map[string][]Role{
 	nightloomv1.PlanService_MakePlan_FullMethodName:       planners,
 	nightloomv1.PlanService_GetPlan_FullMethodName:        queueReaders,
 	nightloomv1.PlanService_ListPlans_FullMethodName:      queueReaders,
-	nightloomv1.PlanService_Replan_FullMethodName:         planners,
+	nightloomv1.PlanService_Replan_FullMethodName:         replanners,
 	nightloomv1.PlanService_NextAssignment_FullMethodName: queueReaders,
 	nightloomv1.PlanService_WatchPlans_FullMethodName:     queueReaders,
 

@@ -69,9 +69,9 @@ type QueueServiceClient interface {
 	// the same way, up to frames_wanted: the frames were taken; a withdrawn
 	// block stays withdrawn.
 	// A report that cannot be true is refused with INVALID_ARGUMENT naming the
-	// field, and nothing is stored: frames_kept that do not fit the interval
-	// at the block's exposure and the site's readout
-	// (report.frames_kept), an interval that ends more than 2 minutes after
+	// field, and nothing is stored: frames_kept whose exposures alone do not
+	// fit the interval (report.frames_kept; the site's readout is a planning
+	// figure that a camera may beat), an interval that ends more than 2 minutes after
 	// the server's clock (report.interval.end), starts more than 2 minutes
 	// before the block was queued (report.interval.start) or lasts longer
 	// than 24 hours (report.interval).
@@ -178,9 +178,9 @@ type QueueServiceServer interface {
 	// the same way, up to frames_wanted: the frames were taken; a withdrawn
 	// block stays withdrawn.
 	// A report that cannot be true is refused with INVALID_ARGUMENT naming the
-	// field, and nothing is stored: frames_kept that do not fit the interval
-	// at the block's exposure and the site's readout
-	// (report.frames_kept), an interval that ends more than 2 minutes after
+	// field, and nothing is stored: frames_kept whose exposures alone do not
+	// fit the interval (report.frames_kept; the site's readout is a planning
+	// figure that a camera may beat), an interval that ends more than 2 minutes after
 	// the server's clock (report.interval.end), starts more than 2 minutes
 	// before the block was queued (report.interval.start) or lasts longer
 	// than 24 hours (report.interval).
