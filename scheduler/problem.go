@@ -160,6 +160,14 @@ func newProblem(in Input, tracks []*constraints.Track, vis []*constraints.Visibi
 			return nil, fmt.Errorf("%w %q: %w", ErrBlock, in.Blocks[i].ID, constraints.ErrTarget)
 		}
 	}
+	if cancelled(p.Options.Cancel) {
+		return nil, ErrCancelled
+	}
+	for i, v := range p.Vis {
+		if v == nil {
+			return nil, fmt.Errorf("%w %q: no visibility", ErrBlock, in.Blocks[i].ID)
+		}
+	}
 	p.Intervals = make([][]constraints.Interval, len(p.Blocks))
 	workers := p.Options.Workers
 	if workers <= 0 {

@@ -744,7 +744,19 @@ func TestPlanningStopsAtDeadline(t *testing.T) {
 	e := newEnv(t, "")
 	f := e.seed(t, 120)
 	op := as(RoleOperator, e)
-	ok := 0
+	quick := func() time.Duration {
+		t.Helper()
+		t0 := time.Now()
+		if _, err := e.plans.MakePlan(op, &nightloomv1.MakePlanRequest{SiteId: f.site.GetId(),
+			Span: &nightloomv1.MakePlanRequest_Night{Night: testNight}, TimeBudget: dur(0), LookaheadNights: proto.Int32(0)}); err != nil {
+			t.Fatal(err)
+		}
+		return time.Since(t0)
+	}
+	// The time of a plan with no search, on this machine now (the race
+	// detector or a loaded machine make it long).
+	base := quick()
+	ok := 1
 	for _, budget := range []time.Duration{50 * time.Millisecond, 5 * time.Second} {
 		for _, deadline := range []time.Duration{30 * time.Millisecond, 300 * time.Millisecond} {
 			ctx, cancel := context.WithTimeout(op, deadline)
@@ -763,18 +775,15 @@ func TestPlanningStopsAtDeadline(t *testing.T) {
 				t.Errorf("budget %v, deadline %v: code %v (%v), want DeadlineExceeded", budget, deadline, c, err)
 			}
 			// The server must have stopped too, not only the client: the
-			// next call for the site waits for the site's planning lock.
-			t1 := time.Now()
-			if _, err := e.plans.MakePlan(op, &nightloomv1.MakePlanRequest{SiteId: f.site.GetId(),
-				Span: &nightloomv1.MakePlanRequest_Night{Night: testNight}, TimeBudget: dur(0), LookaheadNights: proto.Int32(0)}); err != nil {
-				t.Fatal(err)
-			}
+			// next call for the site waits for the site's planning lock,
+			// and would wait for most of the 5 s budget if the search went
+			// on.
+			next := quick()
 			ok++
-			next := time.Since(t1)
-			t.Logf("budget %v, deadline %v: answered %v after the deadline (%v); the next call took %v", budget, deadline,
-				late.Round(time.Millisecond), err, next.Round(time.Millisecond))
-			if late > time.Second || next > 2*time.Second {
-				t.Errorf("budget %v, deadline %v: answered %v after the deadline, the next call took %v", budget, deadline, late, next)
+			t.Logf("budget %v, deadline %v: answered %v after the deadline (%v); the next call took %v (%v with nothing running)",
+				budget, deadline, late.Round(time.Millisecond), err, next.Round(time.Millisecond), base.Round(time.Millisecond))
+			if late > 2*time.Second || next > 2*base+2*time.Second {
+				t.Errorf("budget %v, deadline %v: answered %v after the deadline, the next call took %v (%v alone)", budget, deadline, late, next, base)
 			}
 		}
 	}
