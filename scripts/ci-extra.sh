@@ -5,8 +5,10 @@
 #     default), one target per `go test -fuzz` invocation, as Go requires;
 #     the targets are found by name (func FuzzXxx in *_test.go), so a new
 #     one is run without editing this script;
-#  2. the race detector over the server, the store and both commands:
-#     go test -race -count=1 ./internal/... ./cmd/...
+#  2. the race detector over the server, the store and the commands, in
+#     -short mode (the long end-to-end runs, executor on simulators and
+#     SIGKILL rounds, run in full in the plain test run before):
+#     go test -race -short -count=1 ./internal/... ./cmd/...
 #
 # It installs nothing and needs only Go and a C compiler (go-sqlite3 and
 # the race detector use cgo). A fuzz failure leaves its input under the
@@ -56,9 +58,9 @@ if [ "${SKIP_FUZZ:-0}" != 1 ]; then
 fi
 
 if [ "${SKIP_RACE:-0}" != 1 ]; then
-	echo "== go test -race -count=1 ./internal/... ./cmd/..."
+	echo "== go test -race -short -count=1 ./internal/... ./cmd/..."
 	t0=$(date +%s)
-	go test -race -count=1 ./internal/... ./cmd/...
+	go test -race -short -count=1 ./internal/... ./cmd/...
 	echo "race run: $(($(date +%s) - t0))s"
 fi
 
