@@ -139,13 +139,32 @@ type Options struct {
 	Cancel <-chan struct{}
 	// Budget stops the search early when exceeded. Default 250 ms;
 	// negative means no time limit. The result is deterministic for a seed
-	// as long as Iterations, not Budget, ends the search.
+	// as long as Iterations, not Budget, ends the search. When the pace of
+	// the first iterations shows that the budget will end the search, the
+	// annealing cools by elapsed time instead of by iterations, so that a
+	// budget-limited search ends cold.
 	Budget time.Duration
+	// ConvergeIterations ends the search early (Plan.Stopped =
+	// StopConverged) when the best plan has not improved by more than
+	// ConvergeTolerance (relative) for this many iterations, and, when the
+	// annealing is clocked by time, for a tenth of the budget as well: the
+	// budget is then a ceiling, not a cost. Default 500 (one cooling cycle
+	// of the default 1500 iterations); negative means never.
+	ConvergeIterations int
+	// ConvergeTolerance is the relative improvement that counts for
+	// ConvergeIterations. Default 1e-4 (0.01 %).
+	ConvergeTolerance float64
 	// Workers bounds the goroutines that compute tracks and visibility
 	// (default GOMAXPROCS).
 	Workers int
 	// LookaheadNights is N of the urgency lookahead. Default 14.
 	LookaheadNights int
+	// CadenceWeight values each run of a cadence block (a point of its
+	// series, delivered in its slot) at this many times the weighted
+	// exposure of its shortest run, on top of the frames' own value (package
+	// doc): a missed slot costs more than its exposure seconds. Default 3;
+	// negative means points are worth their frames only.
+	CadenceWeight float64
 	// KeepBonus is the fraction of a run's value that Replan adds for
 	// keeping an assignment of the old plan unchanged. Default 0.1;
 	// negative means none.
@@ -160,7 +179,10 @@ const (
 	DefaultIterations      = 1500
 	DefaultBudget          = 250 * time.Millisecond
 	DefaultLookaheadNights = 14
-	DefaultKeepBonus       = 0.1
+	DefaultKeepBonus       = 0.5
+	DefaultCadenceWeight   = 3.0
+	DefaultConvergeIters   = 500
+	DefaultConvergeTol     = 1e-4
 )
 
 func (o Options) withDefaults() Options {
@@ -193,6 +215,21 @@ func (o Options) withDefaults() Options {
 	}
 	if o.LookaheadNights <= 0 {
 		o.LookaheadNights = DefaultLookaheadNights
+	}
+	switch {
+	case o.CadenceWeight == 0:
+		o.CadenceWeight = DefaultCadenceWeight
+	case o.CadenceWeight < 0:
+		o.CadenceWeight = 0
+	}
+	switch {
+	case o.ConvergeIterations == 0:
+		o.ConvergeIterations = DefaultConvergeIters
+	case o.ConvergeIterations < 0:
+		o.ConvergeIterations = 0
+	}
+	if !(o.ConvergeTolerance > 0) {
+		o.ConvergeTolerance = DefaultConvergeTol
 	}
 	return o
 }
@@ -263,14 +300,17 @@ type Plan struct {
 	// Assignments in time order; executed ones (Executed true) first.
 	Assignments []Assignment
 	// Unplaced lists every block with frames left that got no run.
-	Unplaced  []Unplaced
+	Unplaced []Unplaced
+	// Cadence reports, per cadence block with a run, the points delivered
+	// and every slot skipped, with the reason.
+	Cadence   []CadenceReport
 	Objective Objective
 	// Solver names the algorithm that made the plan.
 	Solver string
 	// Iterations of improvement run (large-neighbourhood search).
 	Iterations int
-	// Stopped says what ended the search: StopIterations, StopBudget or
-	// StopCancelled ("" for solvers without a search).
+	// Stopped says what ended the search: StopIterations, StopBudget,
+	// StopConverged or StopCancelled ("" for solvers without a search).
 	Stopped string
 }
 
@@ -279,6 +319,9 @@ const (
 	StopIterations = "iterations"
 	StopBudget     = "time budget"
 	StopCancelled  = "cancelled"
+	// StopConverged: no improvement worth keeping for a stretch of the
+	// search (Options.ConvergeIterations).
+	StopConverged = "converged"
 )
 
 // cancelled reports whether ch is closed (a nil channel never is).
@@ -311,7 +354,9 @@ type Assignment struct {
 	// plan start) and Start.
 	Spent    Spent
 	Executed bool
-	// Value is the run's weighted exposure (package doc), without the bonus.
+	// Value is the run's weighted exposure (package doc) plus, for a
+	// cadence block, the value of the point it delivers; without the
+	// completion bonus.
 	Value float64
 }
 
@@ -346,11 +391,13 @@ type Spent struct {
 // Objective is a plan's value and its parts (package doc). Units are
 // seconds of exposure weighted by priority, quality and urgency.
 type Objective struct {
-	// Value = Weighted + Bonus: what the solvers maximise (executed runs
-	// excluded).
+	// Value = Weighted + Cadence + Bonus: what the solvers maximise
+	// (executed runs excluded).
 	Value    float64
 	Weighted float64
-	Bonus    float64
+	// Cadence is the value of the cadence points delivered (package doc).
+	Cadence float64
+	Bonus   float64
 	// Raw is sum priority * quality * exposure without urgency.
 	Raw float64
 	// ExposureS is the plain exposure time planned.

@@ -98,6 +98,7 @@ type bdat struct {
 	bad        []int32
 	good       []int32
 	every, tol float64 // cadence, seconds (every = 0: none)
+	point      float64 // value of one cadence point (run), 0 without cadence
 	avoidFlip  bool    // the block avoids the flip zone: no flip inside a run
 	minSetup   float64
 	peak       int // step of the best quality
@@ -343,8 +344,15 @@ func (p *Problem) prepare(closures []Closure, executed []Assignment, from time.T
 		}
 		p.Urgency[i] = u
 		d.w = b.Priority * d.exp * u
+		if d.every > 0 {
+			// A point of a light curve is worth more than its exposure:
+			// CadenceWeight times a shortest run's weighted exposure.
+			d.point = p.Options.CadenceWeight * d.w * float64(d.minRun)
+		}
 		if d.rem > 0 {
-			d.bonus = p.Options.CompletionBonus * d.w * float64(b.FramesWanted)
+			// The frames left, not the whole block: one frame of a hundred left
+			// earns a hundredth of a whole block's bonus.
+			d.bonus = p.Options.CompletionBonus * d.w * float64(d.rem)
 		}
 		p.blockIntervals(i)
 	}

@@ -395,8 +395,15 @@ func TestReplanKeepsExecutedWork(t *testing.T) {
 		t.Fatal(err)
 	}
 	mustValidate(t, "as planned", pl0, q)
-	if rep0.Kept < future*4/5 {
-		t.Errorf("executed as planned, no closure: kept %d of %d future assignments (%+v)", rep0.Kept, future, rep0)
+	// Of the future runs still valid (a cadence series whose next run's
+	// setup would start before now is not), at least 4 in 5 stay.
+	if rep0.Kept < rep0.Feasible*4/5 || rep0.Feasible < future/2 {
+		t.Errorf("executed as planned, no closure: kept %d of %d feasible, %d future assignments", rep0.Kept, rep0.Feasible, future)
+	}
+	for _, c := range rep0.Runs {
+		if (c.Change == RunKept) != (c.Why == "") || c.Change == 0 {
+			t.Errorf("run change without its reason: %+v", c)
+		}
 	}
 	_, rep := check("last run short", State{Now: now, Executed: exec})
 	cl := []Closure{{Start: now.Add(30 * time.Minute), End: now.Add(100 * time.Minute), Note: "cloud"}}
@@ -404,7 +411,8 @@ func TestReplanKeepsExecutedWork(t *testing.T) {
 	if rep2.Changed == 0 {
 		t.Errorf("a 70-minute closure changed nothing: %+v", rep2)
 	}
-	t.Logf("as planned: %+v; last run 2 frames short: %+v; and a closure: %+v (of %d future)", rep0, rep, rep2, future)
+	t.Logf("as planned: kept %d of %d feasible; last run 2 frames short: kept %d of %d; and a closure: kept %d of %d (of %d future)",
+		rep0.Kept, rep0.Feasible, rep.Kept, rep.Feasible, rep2.Kept, rep2.Feasible, future)
 }
 
 // Dispatch agrees with the plan's first assignment, at the start of the
@@ -633,7 +641,9 @@ func TestExactAgainstBruteForceAndBounds(t *testing.T) {
 	}
 	t.Logf("micro: exact = brute force = %.1f (%d runs)", bf, len(x.Assignments))
 
-	for _, seed := range []uint64{3, 101} {
+	// Seed 101 (13.8 million states once short runs may stand anywhere,
+	// two minutes) is left to the benchmarks.
+	for _, seed := range []uint64{3} {
 		p := testProblem(t, GenSpec{Name: "ex", Seed: seed, Site: 0, Night: "2027-02-10", Blocks: 8, StepS: 60, QuantumS: 60,
 			Load: 1.6, AllOrNothing: 0.6, NoFocusEvery: true, Lookahead: 14}, Options{Seed: 1, Iterations: 1500, Budget: -1})
 		x, err := Exact(p, ExactLimits{})
@@ -667,12 +677,26 @@ func bruteForce(p *Problem) float64 {
 	best := 0.0
 	var rec func(sc *sched)
 	rec = func(sc *sched) {
-		best = math.Max(best, sc.val)
+		// Validate's rule: at most one run shorter than MinRun per
+		// block, anywhere in time, and only when the plan completes it.
+		short := make([]int, len(p.Blocks))
+		for _, r := range sc.runs {
+			if r.n < p.bd[r.b].minRun {
+				short[r.b]++
+			}
+		}
+		valid := true
+		for b, n := range short {
+			valid = valid && (n == 0 || n == 1 && sc.planned[b] == p.bd[b].rem)
+		}
+		if valid {
+			best = math.Max(best, sc.val)
+		}
 		k := len(sc.runs)
 		base := p.baseOf(sc, k)
 		prev := p.prevOf(sc, k)
 		for b := range p.Blocks {
-			lo := p.minFrames(b, sc.planned[b])
+			lo := 1 // short runs anywhere; rec keeps only valid plans
 			hi := p.maxFrames(b, sc.planned[b])
 			if hi <= 0 {
 				continue
@@ -965,8 +989,89 @@ func TestCancelAndStopReason(t *testing.T) {
 	if _, err := in.Problem(Options{Cancel: done}); !errors.Is(err, ErrCancelled) {
 		t.Errorf("preparing with a closed Cancel: %v, want ErrCancelled", err)
 	}
-	q.Options.Cancel, q.Options.Budget = nil, 20*time.Millisecond
+	q.Options.Cancel, q.Options.Budget, q.Options.ConvergeIterations = nil, 20*time.Millisecond, 0
 	if pl := Solve(&q); pl.Stopped != StopBudget {
 		t.Errorf("budget: stopped %q", pl.Stopped)
 	}
+}
+
+// A search with no iteration or time limit to speak of stops when it has
+// converged (Plan.Stopped = StopConverged), deterministically for a seed,
+// and is as good as the default-length search it outlasts; a budget that
+// the pace shows to be binding clocks the annealing by time.
+func TestSearchConverges(t *testing.T) {
+	p := testProblem(t, GenSpec{Name: "cv", Seed: 5, Site: 0, Night: "2027-02-10", Blocks: 30, StepS: 60, Load: 2},
+		Options{Seed: 1, Iterations: 1 << 20, Budget: -1, ConvergeIterations: 300})
+	a, b := Solve(p), Solve(p)
+	if a.Stopped != StopConverged || a.Iterations >= 1<<20 {
+		t.Fatalf("stopped %q after %d iterations, want %q", a.Stopped, a.Iterations, StopConverged)
+	}
+	if a.Iterations != b.Iterations || a.Objective.Value != b.Objective.Value {
+		t.Errorf("not deterministic: %d iterations %v, then %d %v", a.Iterations, a.Objective.Value, b.Iterations, b.Objective.Value)
+	}
+	mustValidate(t, "converged", a, p)
+	q := *p
+	q.Options.Iterations = 300
+	if short := Solve(&q); a.Objective.Value < short.Objective.Value*(1-1e-9) {
+		t.Errorf("converged search %v below a 300-iteration one %v", a.Objective.Value, short.Objective.Value)
+	}
+	t.Logf("converged after %d iterations, objective %.0f", a.Iterations, a.Objective.Value)
+}
+
+// Cadence points are valued above their exposure (Options.CadenceWeight):
+// with the default weight the cadence blocks get at least as many points
+// as when a point is worth its frames only, the objective's Cadence part
+// is the points' value, and the plan reports every delivered point and
+// explains every skipped slot of each series. Rules of the model (package
+// doc), no outside source.
+func TestCadenceDelivers(t *testing.T) {
+	sp := GenSpec{Name: "cd", Seed: 1, Site: 0, Night: "2027-02-10", Blocks: 30, StepS: 60, Load: 3, Cadence: 0.15, Lookahead: 14}
+	count := func(pl *Plan, p *Problem) int {
+		n := 0
+		for _, a := range pl.Assignments {
+			if p.bd[a.Block].every > 0 {
+				n++
+			}
+		}
+		return n
+	}
+	flat := testOpts(1)
+	flat.CadenceWeight = -1
+	pf := testProblem(t, sp, flat)
+	p := testProblem(t, sp, testOpts(1))
+	plf, pl := Solve(pf), Solve(p)
+	mustValidate(t, "flat", plf, pf)
+	mustValidate(t, "points", pl, p)
+	nf, n := count(plf, pf), count(pl, p)
+	if n < nf || n == 0 {
+		t.Errorf("%d cadence points with CadenceWeight %v, %d with points worth their frames", n, p.Options.CadenceWeight, nf)
+	}
+	if plf.Objective.Cadence != 0 {
+		t.Errorf("points worth their frames only, yet Cadence = %v", plf.Objective.Cadence)
+	}
+	reported := 0
+	for _, c := range pl.Cadence {
+		reported += c.Delivered
+		for _, s := range c.Skipped {
+			if s.Why < SlotNotObservable || s.Why > SlotPast {
+				t.Errorf("%s: slot at %v without a reason", c.ID, s.At)
+			}
+		}
+		d := &p.bd[c.Block]
+		if want := float64(c.Delivered) * d.point; want <= 0 {
+			t.Errorf("%s: %d points worth %v", c.ID, c.Delivered, want)
+		}
+	}
+	if reported != n {
+		t.Errorf("cadence reports count %d points, the plan has %d", reported, n)
+	}
+	var pts float64
+	for _, a := range pl.Assignments {
+		pts += p.bd[a.Block].point
+	}
+	if math.Abs(pts-pl.Objective.Cadence) > 1e-9*math.Max(1, pts) {
+		t.Errorf("objective's cadence part %v, points give %v", pl.Objective.Cadence, pts)
+	}
+	t.Logf("cadence points: %d (weight %v), %d (frames only); objective %.0f of which points %.0f",
+		n, p.Options.CadenceWeight, nf, pl.Objective.Value, pl.Objective.Cadence)
 }
