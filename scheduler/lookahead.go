@@ -42,6 +42,9 @@ func NewLookahead(site *Site, blocks []Block, first time.Time, nights int, step 
 			return // no night: nothing usable
 		}
 		tracks, vis := visibilities(g, blocks, 1, cancel)
+		if cancelled(cancel) {
+			return // tracks and visibility may be missing
+		}
 		for i := range blocks {
 			if tracks[i] == nil {
 				errs[k] = constraints.ErrTarget
