@@ -73,6 +73,20 @@
 // priority-6 imaging by about 4 x 8/6 per second of its runs, and loses
 // to a run worth more than the point plus the setups it costs.
 //
+// Shared telescopes: a block may spend the time of a Program (its
+// allocation for the period and the time already used). Every weight of
+// the block (frames, cadence points, bonus) carries its program's
+// fair-share factor
+//
+//	f = clamp(1 + lambda_f * (1 - used / allocation), 0.25, 2)
+//
+// (lambda_f = Options.FairShareWeight, default 0.5): 1 at the allocation,
+// above for a program under it, below over it, so at equal priority the
+// program under its allocation gets the time first. Plan.Charged reports
+// per program the exposure and overheads (setups before the runs,
+// readouts, dithers and flips inside them) the plan charges; they add up
+// to the plan's exposure plus overheads.
+//
 // Replanning adds a stability term: every run of the old plan kept
 // unchanged (same block, start and frames) earns Options.KeepBonus
 // (default 0.5) times its value, so a replan moves a still-feasible run

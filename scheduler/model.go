@@ -72,8 +72,9 @@ type Site struct {
 
 // Cadence asks for one run every Every, plus or minus Tolerance. Within one
 // night the runs of a cadence block form one series: consecutive runs start
-// between Every-Tolerance and Every+Tolerance apart. The series may begin
-// and end at any time; each run counts on its own.
+// a whole number of Every apart, within Tolerance (a series may skip
+// slots). The series may begin and end at any time; each run is a point
+// (package doc).
 type Cadence struct {
 	Every, Tolerance time.Duration
 }
@@ -106,6 +107,33 @@ type Block struct {
 	NonSidereal bool
 	// Cadence, when set, asks for a regular series of runs.
 	Cadence *Cadence
+	// Program names whose time the block spends (Input.Programs); empty
+	// means none (no fair-share factor).
+	Program string
+}
+
+// Program is whose time blocks spend on a shared telescope (a student's
+// project, a member's share, a network partner): its allocation for the
+// period and the time already charged to it in the period before this
+// plan.
+type Program struct {
+	Name       string
+	Allocation time.Duration
+	Used       time.Duration
+}
+
+// Charge is the time a plan charges to one program: the exposure of its
+// runs and the overheads spent for them (the setup before each run, and
+// the readouts, dithers and flips inside it). Program "" gathers blocks
+// without a program.
+type Charge struct {
+	Program    string
+	Allocation time.Duration // 0 for "" and unknown programs
+	Used       time.Duration // before the plan
+	Exposure   time.Duration
+	Overheads  time.Duration
+	// Share is the fair-share factor applied to the program's blocks.
+	Share float64
 }
 
 // Closure is an interval when the site cannot observe (weather,
@@ -151,6 +179,10 @@ type Options struct {
 	// budget is then a ceiling, not a cost. Default 500 (one cooling cycle
 	// of the default 1500 iterations); negative means never.
 	ConvergeIterations int
+	// FairShareWeight is lambda_f of the fair-share factor of a block's
+	// program (package doc): f = clamp(1 + lambda_f (1 - used /
+	// allocation), 0.25, 2). Default 0.5; negative means no fair share.
+	FairShareWeight float64
 	// ConvergeTolerance is the relative improvement that counts for
 	// ConvergeIterations. Default 1e-4 (0.01 %).
 	ConvergeTolerance float64
@@ -183,6 +215,7 @@ const (
 	DefaultLookaheadNights = 14
 	DefaultKeepBonus       = 0.5
 	DefaultCadenceWeight   = 3.0
+	DefaultFairShareWeight = 0.5
 	DefaultConvergeIters   = 500
 	DefaultConvergeTol     = 1e-4
 )
@@ -217,6 +250,12 @@ func (o Options) withDefaults() Options {
 	}
 	if o.LookaheadNights <= 0 {
 		o.LookaheadNights = DefaultLookaheadNights
+	}
+	switch {
+	case o.FairShareWeight == 0:
+		o.FairShareWeight = DefaultFairShareWeight
+	case o.FairShareWeight < 0:
+		o.FairShareWeight = 0
 	}
 	switch {
 	case o.CadenceWeight == 0:
@@ -305,7 +344,11 @@ type Plan struct {
 	Unplaced []Unplaced
 	// Cadence reports, per cadence block with a run, the points delivered
 	// and every slot skipped, with the reason.
-	Cadence   []CadenceReport
+	Cadence []CadenceReport
+	// Charged is the time the plan's runs charge to each program (blocks
+	// without one under ""), in the order of Input.Programs, "" last.
+	// Exposure plus overheads over all entries equals the plan's.
+	Charged   []Charge
 	Objective Objective
 	// Solver names the algorithm that made the plan.
 	Solver string
@@ -408,6 +451,9 @@ type Objective struct {
 	Completed int
 	// Executed is the weighted value of executed runs (not in Value).
 	Executed float64
+	// OverheadS is the overhead time of the planned runs: the setups
+	// before them and the readouts, dithers and flips inside them.
+	OverheadS float64
 }
 
 // Why says why a block got no run.

@@ -26,7 +26,48 @@ func (p *Problem) toPlan(sc *sched, solver string, iters int) *Plan {
 	}
 	pl.Unplaced = p.unplaced(sc)
 	pl.Cadence = p.cadenceReports(sc)
+	pl.Charged = p.charges(pl)
+	for _, c := range pl.Charged {
+		pl.Objective.OverheadS += c.Overheads.Seconds()
+	}
 	return pl
+}
+
+// charges sums the time the plan's runs (not the executed ones) charge to
+// each program: exposure, and overheads (the setup before the run, and
+// the readouts, dithers and flips inside it; idle time is nobody's).
+func (p *Problem) charges(pl *Plan) []Charge {
+	idx := map[string]int{}
+	var out []Charge
+	for _, pr := range p.Programs {
+		if _, ok := idx[pr.Name]; !ok && pr.Name != "" {
+			idx[pr.Name] = len(out)
+			out = append(out, Charge{Program: pr.Name, Allocation: pr.Allocation, Used: pr.Used, Share: p.fairShare(pr.Name)})
+		}
+	}
+	for i := range pl.Assignments {
+		a := &pl.Assignments[i]
+		if a.Executed {
+			continue
+		}
+		name := p.Blocks[a.Block].Program
+		k, ok := idx[name]
+		if !ok {
+			k = len(out)
+			idx[name] = k
+			out = append(out, Charge{Program: name, Share: p.Share[a.Block]})
+		}
+		exp := time.Duration(a.Frames) * p.Blocks[a.Block].Exposure
+		s := a.Spent
+		out[k].Exposure += exp
+		out[k].Overheads += a.End.Sub(a.Start) - exp + s.Slew + s.Settle + s.FilterChange + s.Focus + s.Acquisition
+	}
+	// Blocks without a program last.
+	if k, ok := idx[""]; ok && k != len(out)-1 {
+		c := out[k]
+		out = append(append(out[:k], out[k+1:]...), c)
+	}
+	return out
 }
 
 // objective sums a timeline's parts.
@@ -36,7 +77,7 @@ func (p *Problem) objective(sc *sched) Objective {
 		pt := p.bd[r.b].point
 		o.Weighted += r.val - pt
 		o.Cadence += pt
-		o.Raw += (r.val - pt) / p.Urgency[r.b]
+		o.Raw += (r.val - pt) / (p.Urgency[r.b] * p.Share[r.b])
 		o.ExposureS += float64(r.n) * p.bd[r.b].exp
 	}
 	for b, n := range sc.planned {

@@ -1075,3 +1075,65 @@ func TestCadenceDelivers(t *testing.T) {
 	t.Logf("cadence points: %d (weight %v), %d (frames only); objective %.0f of which points %.0f",
 		n, p.Options.CadenceWeight, nf, pl.Objective.Value, pl.Objective.Cadence)
 }
+
+// Programs on a shared telescope: of two blocks alike in everything but
+// their program (same target, filter, priority), the block of the program
+// under its allocation gets the night's time before the one over it, and
+// the time the plan charges to programs adds up to the plan's exposure
+// plus overheads. Rules of the model (package doc), no outside source.
+func TestProgramsFairShare(t *testing.T) {
+	in, err := GenerateInstance(GenSpec{Name: "pg", Seed: 4, Site: 0, Night: "2027-02-10", Blocks: 3, StepS: 60, Load: 1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	site, _ := in.SiteOf()
+	blocks, _ := in.BlocksOf()
+	day, _ := in.Date()
+	g, err := NightGrid(site.Site, day.Year(), day.Month(), day.Day(), WeakestDarkness(blocks), time.Minute, constraints.Options{NoSkyBrightness: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	// Block 0 twice, each wanting far more frames than the night holds;
+	// the others keep their own programs out.
+	over, under := blocks[0], blocks[0]
+	over.ID, over.Program, over.FramesWanted, over.FramesDone, over.MaxRun = "over", "club", 10000, 0, 0
+	under.ID, under.Program, under.FramesWanted, under.FramesDone, under.MaxRun = "under", "student", 10000, 0, 0
+	bs := []Block{over, under, blocks[1], blocks[2]}
+	progs := []Program{{Name: "club", Allocation: 10 * time.Hour, Used: 15 * time.Hour}, {Name: "student", Allocation: 10 * time.Hour, Used: 2 * time.Hour}}
+	p, err := NewProblem(Input{Site: site, Grid: g, Blocks: bs, Programs: progs, Options: testOpts(1)})
+	if err != nil {
+		t.Fatal(err)
+	}
+	pl := Solve(p)
+	mustValidate(t, "programs", pl, p)
+	frames := map[string]int{}
+	for _, a := range pl.Assignments {
+		frames[a.ID] += a.Frames
+	}
+	if frames["under"] == 0 || frames["under"] <= frames["over"] {
+		t.Errorf("under its allocation %d frames, over it %d (shares %v)", frames["under"], frames["over"], p.Share)
+	}
+	var exp, oh time.Duration
+	for _, c := range pl.Charged {
+		exp += c.Exposure
+		oh += c.Overheads
+	}
+	// A nanosecond per assignment: instants are rounded to the nanosecond.
+	tol := time.Duration(len(pl.Assignments)+1) * time.Nanosecond
+	if d := exp - secs(pl.Objective.ExposureS); d > tol || d < -tol {
+		t.Errorf("charged exposure %v, plan %v s", exp, pl.Objective.ExposureS)
+	}
+	if d := oh - secs(pl.Objective.OverheadS); d > tol || d < -tol {
+		t.Errorf("charged overheads %v, plan %v s", oh, pl.Objective.OverheadS)
+	}
+	// Independently: the setups before the runs and the gaps inside them.
+	var want time.Duration
+	for _, a := range pl.Assignments {
+		s := a.Spent
+		want += a.End.Sub(a.Start) + s.Slew + s.Settle + s.FilterChange + s.Focus + s.Acquisition
+	}
+	if d := exp + oh - want; d > tol || d < -tol {
+		t.Errorf("charged %v in all, runs and setups give %v", exp+oh, want)
+	}
+	t.Logf("frames: under %d, over %d; charged %+v", frames["under"], frames["over"], pl.Charged)
+}
