@@ -142,7 +142,7 @@ func (p *Problem) solve(start *sched, keepBonus float64, keep ...map[runKey]bool
 	cycle := 0
 	cycleLen := max(1, o.Iterations/annealCycles)
 	if o.ConvergeIterations > 0 {
-		cycleLen = min(cycleLen, o.ConvergeIterations)
+		cycleLen = min(cycleLen, max(1, o.ConvergeIterations/2))
 	}
 	// Convergence: the last iteration and instant at which the best
 	// improved by more than ConvergeTolerance.
@@ -164,15 +164,11 @@ func (p *Problem) solve(start *sched, keepBonus float64, keep ...map[runKey]bool
 			stop = StopCancelled
 			break
 		}
-		if o.ConvergeIterations > 0 && it-markIt >= o.ConvergeIterations &&
-			(!timed || time.Since(markT) >= o.Budget/convergeBudgetShare) {
-			stop = StopConverged
-			break
-		}
 		// Simulated annealing in cycles: each cools from t0 to t0/1000 and
 		// the next starts again from the best solution. By iterations a
-		// cycle is a third of the iterations (at most ConvergeIterations,
-		// so that a search with a huge iteration cap still cools); by
+		// cycle is a third of the iterations (at most half of
+		// ConvergeIterations, so that a search with a huge iteration cap
+		// still cools); by
 		// time the budget holds annealCycles cycles and ends cold.
 		var f float64
 		if timed {
@@ -186,11 +182,23 @@ func (p *Problem) solve(start *sched, keepBonus float64, keep ...map[runKey]bool
 			c = min(c, annealCycles-1)
 		}
 		if c > cycle {
+			// Convergence is judged when a cooling cycle ends: the cycles
+			// since the last improvement worth keeping (at least
+			// ConvergeIterations, and a tenth of the budget when time
+			// clocks the search) found nothing.
+			if o.ConvergeIterations > 0 && it-markIt >= o.ConvergeIterations &&
+				(!timed || time.Since(markT) >= o.Budget/convergeBudgetShare) {
+				stop = StopConverged
+				break
+			}
 			cycle = c
 			cur.copyFrom(best)
 			curObj = bestObj
 		}
 		temp := t0 * math.Pow(1e-3, f-float64(c))
+		if p.annealHook != nil {
+			p.annealHook(temp/t0, timed)
+		}
 		di, ri := roulette(wD, rng), roulette(wR, rng)
 		trial.copyFrom(cur)
 		changed := map[int]bool{}

@@ -173,11 +173,12 @@ type Options struct {
 	// budget-limited search ends cold.
 	Budget time.Duration
 	// ConvergeIterations ends the search early (Plan.Stopped =
-	// StopConverged) when the best plan has not improved by more than
-	// ConvergeTolerance (relative) for this many iterations, and, when the
-	// annealing is clocked by time, for a tenth of the budget as well: the
-	// budget is then a ceiling, not a cost. Default 500 (one cooling cycle
-	// of the default 1500 iterations); negative means never.
+	// StopConverged) when a cooling cycle ends and the best plan has not
+	// improved by more than ConvergeTolerance (relative) for this many
+	// iterations, and, when the annealing is clocked by time, for a tenth
+	// of the budget as well: the budget is then a ceiling, not a cost.
+	// Default 1000 (two cooling cycles of the default 1500 iterations);
+	// negative means never.
 	ConvergeIterations int
 	// FairShareWeight is lambda_f of the fair-share factor of a block's
 	// program (package doc): f = clamp(1 + lambda_f (1 - used /
@@ -216,7 +217,7 @@ const (
 	DefaultKeepBonus       = 0.5
 	DefaultCadenceWeight   = 3.0
 	DefaultFairShareWeight = 0.5
-	DefaultConvergeIters   = 500
+	DefaultConvergeIters   = 1000
 	DefaultConvergeTol     = 1e-4
 )
 

@@ -73,6 +73,9 @@ type Problem struct {
 	flip0, flip1  float64         // flip zone, radians of hour angle
 	oh            ohSec
 	maxSetup      float64
+	// annealHook, when set (tests), sees each iteration's temperature as
+	// a fraction of the starting one and whether time clocks it.
+	annealHook func(temp float64, timed bool)
 }
 
 // ohSec is the overhead model in seconds.

@@ -1137,3 +1137,67 @@ func TestProgramsFairShare(t *testing.T) {
 	}
 	t.Logf("frames: under %d, over %d; charged %+v", frames["under"], frames["over"], pl.Charged)
 }
+
+// A setup toward or from a pointing that is not a number never fits: the
+// NaN slew becomes +Inf, so startOK, earliest and Validate refuse it
+// instead of letting NaN comparisons pass. Rule of the model, no outside
+// source.
+func TestNaNSetupNeverFits(t *testing.T) {
+	p := testProblem(t, GenSpec{Name: "nan", Seed: 3, Site: 0, Night: "2027-02-10", Blocks: 4, StepS: 60, Load: 1}, testOpts(1))
+	q := *p
+	q.Tracks = append([]*constraints.Track(nil), p.Tracks...)
+	tr := *q.Tracks[1]
+	tr.HA = append([]float32(nil), tr.HA...)
+	tr.Dec = append([]float32(nil), tr.Dec...)
+	for i := range tr.HA {
+		tr.HA[i], tr.Dec[i] = float32(math.NaN()), float32(math.NaN())
+	}
+	q.Tracks[1] = &tr
+	q.ax = nil // axes from the tracks, not the precomputed table
+	prev := prevState{block: 0, filter: -1, focused: true}
+	s := q.ivNext(1, q.tFrom)
+	if s >= q.tEnd {
+		t.Skip("block 1 is never observable on this night")
+	}
+	s = q.ceilQ(s + 3600)
+	su := q.setup(prev, 1, s)
+	if !math.IsInf(su.slew, 1) {
+		t.Errorf("slew toward a NaN pointing = %v, want +Inf", su.slew)
+	}
+	if _, ok := q.startOK(prev, 1, 0, s); ok {
+		t.Error("a run after a NaN setup may start")
+	}
+	if _, _, ok := q.earliest(prev, 1, 0, 0); ok {
+		t.Error("earliest found a start after a NaN setup")
+	}
+}
+
+// A search that the time budget ends is clocked by time and ends cold
+// (late in its last cooling cycle); one that the
+// iteration count ends is clocked by iterations. Rule of the search
+// (package doc), no outside source.
+func TestAnnealingEndsCold(t *testing.T) {
+	p := testProblem(t, GenSpec{Name: "ac", Seed: 5, Site: 0, Night: "2027-02-10", Blocks: 40, StepS: 60, Load: 3}, testOpts(1))
+	q := *p
+	q.Options.Iterations, q.Options.Budget, q.Options.ConvergeIterations = 1<<30, 150*time.Millisecond, 0
+	last, timed := 1.0, false
+	q.annealHook = func(temp float64, tm bool) { last, timed = temp, tm }
+	if pl := Solve(&q); pl.Stopped != StopBudget {
+		t.Fatalf("stopped %q, want %q", pl.Stopped, StopBudget)
+	}
+	// coldFrac: the last iteration lies in the second half of the last
+	// cooling cycle (temperature below 10^(-3 x 0.5) of the cycle's
+	// start; loose for a loaded machine: an iteration-clocked search with
+	// this iteration cap would end at about 1).
+	const coldFrac = 0.032
+	if !timed || last > coldFrac {
+		t.Errorf("budget-ended search: timed %v, last temperature %.3g of t0 (want <= %v)", timed, last, coldFrac)
+	}
+	r := *p
+	r.Options.Iterations, r.Options.Budget = 90, -1
+	timed = true
+	r.annealHook = func(temp float64, tm bool) { last, timed = temp, tm }
+	if pl := Solve(&r); pl.Stopped != StopIterations || timed {
+		t.Errorf("iteration-ended search: stopped %q, timed %v", pl.Stopped, timed)
+	}
+}
