@@ -264,7 +264,30 @@ func Bound(p *Problem, slotSteps int) float64 {
 			lambda[i] = math.Max(0, lambda[i]-step*g[i])
 		}
 	}
-	return best
+	return best + p.pointsBound()
+}
+
+// pointsBound bounds the value of the cadence points (package doc) that
+// any plan can deliver: per cadence block, no more runs than its frames
+// allow (all but one of at least MinRun frames) nor than fit Every less
+// Tolerance apart between its first and last observable instants. The
+// slot relaxation has no runs, so it adds this to its bound.
+func (p *Problem) pointsBound() float64 {
+	v := 0.0
+	for b := range p.Blocks {
+		d := &p.bd[b]
+		if d.point == 0 || d.rem <= 0 || len(d.iv) == 0 {
+			continue
+		}
+		first := p.ivNext(b, p.tFrom)
+		if first >= p.tEnd {
+			continue
+		}
+		span := d.iv[len(d.iv)-1] - first
+		n := min(d.rem, d.rem/d.minRun+1, int(math.Floor(span/(d.every-d.tol)))+1)
+		v += float64(n) * d.point
+	}
+	return v
 }
 
 // flow is the maximum-cost flow of the transportation problem with costs
@@ -478,5 +501,5 @@ func BoundLP(p *Problem, slotSteps int) (float64, error) {
 	if err != nil {
 		return 0, fmt.Errorf("%w: %w", ErrNoLP, err)
 	}
-	return -opt, nil
+	return -opt + p.pointsBound(), nil
 }

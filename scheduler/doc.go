@@ -17,8 +17,15 @@
 // waiting for the hour angle to reach the zone's start if need be) before
 // the first frame that would end past the zone's end. Every grid step that
 // the run covers must be observable for the block and not closed. A run
-// has between MinRun and MaxRun frames; one shorter run is allowed as the
-// remainder of a block that the plan completes.
+// has between MinRun and MaxRun frames; one shorter run per block is
+// allowed, anywhere in time, when the plan completes the block.
+//
+// A cadence block (Block.Cadence) asks for a series of runs, one per slot:
+// consecutive runs of the series start a whole number of Every apart,
+// within Tolerance of it (a series may skip slots; it may not put two runs
+// in one slot or drift off its rhythm). The plan's Cadence reports list,
+// per cadence block, the runs delivered and every skipped slot with its
+// reason (not observable, closure, no frames left, lost to higher value).
 //
 // Before a run the mount slews from the previous pointing (the previous
 // target where it is when the new run starts, a german mount stopping at
@@ -45,12 +52,47 @@
 // A plan maximises
 //
 //	sum over frames of priority_b * u_b * quality(step of mid-exposure) * exposure_s
-//	+ sum over blocks completed by the plan of B * priority_b * u_b * FramesWanted_b * exposure_s
+//	+ sum over runs of cadence blocks of C * priority_b * u_b * MinRun_b * exposure_s
+//	+ sum over blocks completed by the plan of B * priority_b * u_b * left_b * exposure_s
 //
-// (seconds of zenith, dark-sky exposure weighted by priority), with B the
-// completion bonus (Options.CompletionBonus, default 0.25) and nothing
+// (seconds of zenith, dark-sky exposure weighted by priority), with left_b
+// the frames the block still wants when the plan starts, B the completion
+// bonus (Options.CompletionBonus, default 0.25: a block with one frame of
+// a hundred left earns a hundredth of a whole block's bonus, so nearly
+// done blocks are not favoured beyond their frames) and nothing
 // subtracted for idle time. Quality is the constraints package's factor in
 // (0, 1]. Executed runs are reported but not counted.
+//
+// Cadence points: a light curve is worth its points in their slots, not
+// its exposure seconds. Each run of a cadence block is a point worth C
+// (Options.CadenceWeight, default 3) times the weighted exposure of its
+// shortest run on top of its frames' value, so a missed slot costs
+// (1 + C) times its exposure seconds; regularity is a rule of the model
+// (runs only in slots, above). The point scales with the block's priority
+// and urgency like everything else: a priority-8 light curve outweighs
+// priority-6 imaging by about 4 x 8/6 per second of its runs, and loses
+// to a run worth more than the point plus the setups it costs.
+//
+// Shared telescopes: a block may spend the time of a Program (its
+// allocation for the period and the time already used). Every weight of
+// the block (frames, cadence points, bonus) carries its program's
+// fair-share factor
+//
+//	f = clamp(1 + lambda_f * (1 - used / allocation), 0.25, 2)
+//
+// (lambda_f = Options.FairShareWeight, default 0.5): 1 at the allocation,
+// above for a program under it, below over it, so at equal priority the
+// program under its allocation gets the time first. Plan.Charged reports
+// per program the exposure and overheads (setups before the runs,
+// readouts, dithers and flips inside them) the plan charges; they add up
+// to the plan's exposure plus overheads.
+//
+// Replanning adds a stability term: every run of the old plan kept
+// unchanged (same block, start and frames) earns Options.KeepBonus
+// (default 0.5) times its value, so a replan moves a still-feasible run
+// only when the change gains more than half of that run's value. Replan
+// says per old run what became of it (kept, no longer feasible with the
+// reason, moved, dropped).
 //
 // The urgency u_b favours blocks about to become unobservable for the
 // season (a setting target, a comet closing on the Sun or fading, a
@@ -87,11 +129,24 @@
 //     455), with related removal after Shaw (1998, CP-98, LNCS 1520,
 //     417). Every new best solution and the final one are polished by
 //     local search (shift a run within its slack, swap adjacent runs).
-//     It is deterministic for a given Options.Seed when the iteration
-//     count (not the time budget) ends it.
+//     The annealing cools in three cycles; its clock is the iteration
+//     count (a cycle is a third of Options.Iterations, at most
+//     Options.ConvergeIterations), or, when the pace of the first 32
+//     iterations shows that Options.Budget will end the search, the
+//     elapsed share of the budget, so that a budget-limited search ends
+//     cold whatever the machine's speed. The search stops early when the
+//     best plan has not improved by Options.ConvergeTolerance (0.01 %)
+//     for Options.ConvergeIterations (and, clocked by time, a tenth of
+//     the budget): Plan.Stopped says StopConverged, and the budget is a
+//     ceiling. A replan's first incumbent is the old plan's still-valid
+//     runs, completed by insertion. It is deterministic for a given
+//     Options.Seed when the iteration count or convergence (not the time
+//     budget) ends it and the budget does not clock the annealing.
 //   - Exact: dynamic programming over (quantum, last block, pier side,
-//     focus period, frames per block) with memoised recursion; exact for
-//     the model above, refused for cadence blocks and large state spaces.
+//     focus period, frames per block and whether its one short run is
+//     taken) with memoised recursion; exact for the model above (a short
+//     run anywhere commits the plan to completing its block, as Validate
+//     has it), refused for cadence blocks and large state spaces.
 //   - Bounds: BoundDP, the Lagrangian dual of the run-indexed time
 //     formulation (Sousa & Wolsey 1992) with the per-block frame budgets
 //     dualised and the inner problem solved by dynamic programming over

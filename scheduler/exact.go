@@ -96,6 +96,12 @@ func newExact(p *Problem, lim ExactLimits) (*exact, error) {
 		x.active = append(x.active, b)
 		x.mult = append(x.mult, prod)
 		r := uint64(d.rem + 1)
+		if d.minRun > 1 {
+			// Twice: the frames planned, and whether a short run (fewer
+			// than MinRun frames, not completing the block) has been
+			// taken, which commits the plan to completing the block.
+			r *= 2
+		}
 		x.radix = append(x.radix, r)
 		if prod > math.MaxUint64/r {
 			return nil, fmt.Errorf("%w: frame space overflows", ErrTooLarge)
@@ -234,7 +240,7 @@ func (x *exact) options(k uint64, f func(c choice, imm float64) bool) {
 	}
 	for a, b := range x.active {
 		d := &p.bd[b]
-		fb := int(fv / x.mult[a] % x.radix[a])
+		fb, short := x.frames(fv, a)
 		left := d.rem - fb
 		if left <= 0 {
 			continue
@@ -251,27 +257,68 @@ func (x *exact) options(k uint64, f func(c choice, imm float64) bool) {
 				tot += p.oh.focus
 			}
 			hi := float64(kq) * p.quantum
-			if tot > hi+1e-9 || tot <= hi-p.quantum+1e-9 || !p.setupClear(s, tot) {
+			if !(tot <= hi+1e-9) || tot <= hi-p.quantum+1e-9 || !p.setupClear(s, tot) {
 				continue
 			}
 			for _, er := range x.runsAt(a, qs) {
 				if er.n > left {
 					break
 				}
-				if er.n < d.minRun && er.n != left {
-					continue
+				add := uint64(er.n) * x.mult[a]
+				if er.n < d.minRun {
+					// One short run per block, anywhere in time, when the
+					// plan completes the block (as Validate has it).
+					if short {
+						continue
+					}
+					if er.n != left {
+						if !splits(left-er.n, d.minRun, d.maxRun) {
+							continue // the rest could not be completed
+						}
+						add += uint64(d.rem+1) * x.mult[a]
+					}
 				}
 				imm := er.val
 				if er.n == left {
 					imm += d.bonus
 				}
-				nk := x.key(er.qe, a, er.side, p.focusPeriod(s), fv+uint64(er.n)*x.mult[a])
+				nk := x.key(er.qe, a, er.side, p.focusPeriod(s), fv+add)
 				if !f(choice{a: a, er: er, next: nk}, imm) {
 					return
 				}
 			}
 		}
 	}
+}
+
+// frames decodes active block a's frames planned and its short-run flag
+// from the frame part of a key.
+func (x *exact) frames(fv uint64, a int) (int, bool) {
+	v := int(fv / x.mult[a] % x.radix[a])
+	n := x.p.bd[x.active[a]].rem + 1
+	return v % n, v >= n
+}
+
+// splits reports whether m frames can be planned as runs of lo to hi
+// frames each: some k has k lo <= m <= k hi.
+func splits(m, lo, hi int) bool {
+	if m <= 0 {
+		return m == 0
+	}
+	k := (m + hi - 1) / hi // fewest runs
+	return k*lo <= m
+}
+
+// committed reports whether a state holds a block with a short run that
+// is not yet complete.
+func (x *exact) committed(k uint64) bool {
+	_, _, _, _, fv := x.unkey(k)
+	for a, b := range x.active {
+		if f, short := x.frames(fv, a); short && f < x.p.bd[b].rem {
+			return true
+		}
+	}
+	return false
 }
 
 // value is the memoised recursion.
@@ -287,6 +334,9 @@ func (x *exact) value(k uint64) float64 {
 		return 0
 	}
 	best := 0.0
+	if x.committed(k) {
+		best = math.Inf(-1) // a short run was taken: stopping is not allowed
+	}
 	x.options(k, func(c choice, imm float64) bool {
 		if v := imm + x.value(c.next); v > best {
 			best = v
@@ -303,7 +353,7 @@ func (x *exact) reconstruct(k uint64) *sched {
 	sc := p.emptySched()
 	for {
 		v := x.memo[k]
-		if v <= 0 {
+		if v <= 0 && !x.committed(k) {
 			return sc
 		}
 		var pick *choice

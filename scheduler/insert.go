@@ -127,7 +127,7 @@ func (p *Problem) bestInGap(sc *sched, pos, b, mode int) cand {
 	if g := p.ivNext(b, base); g >= p.tEnd || g > ns-float64(nmin)*d.frame {
 		return best
 	}
-	lo, hi, ok := p.cadenceRange(sc, b, pos)
+	lo, hi, ok := p.cadenceRange(sc, b, pos, base)
 	if !ok {
 		return best
 	}

@@ -41,6 +41,12 @@ const (
 	shawD = 4
 	// annealCycles is the number of cooling cycles of the acceptance.
 	annealCycles = 3
+	// timingIters is when the search decides from its pace whether the
+	// budget or the iteration count will end it (the annealing's clock).
+	timingIters = 32
+	// convergeBudgetShare: a search clocked by time converges only after
+	// 1/convergeBudgetShare of the budget without improvement as well.
+	convergeBudgetShare = 10
 )
 
 // Solve plans the night: a constructive schedule (greedy insertion by
@@ -109,9 +115,10 @@ func (p *Problem) solve(start *sched, keepBonus float64, keep ...map[runKey]bool
 	curObj := objective(cur)
 	bestObj := curObj
 	t0 := 0.05 * math.Max(curObj, 1) / math.Ln2
+	began := time.Now()
 	deadline := time.Time{}
 	if o.Budget > 0 {
-		deadline = time.Now().Add(o.Budget)
+		deadline = began.Add(o.Budget)
 	}
 	wD := make([]float64, numDestroy)
 	wR := make([]float64, len(repairOps))
@@ -128,24 +135,70 @@ func (p *Problem) solve(start *sched, keepBonus float64, keep ...map[runKey]bool
 	trial := p.emptySched()
 	it := 0
 	stop := StopIterations
+	// The clock of the annealing: the fraction of the search done, by
+	// iterations, or by time when the budget will end the search
+	// (timed, decided after the first iterations from their pace).
+	timed := false
+	cycle := 0
+	cycleLen := max(1, o.Iterations/annealCycles)
+	if o.ConvergeIterations > 0 {
+		cycleLen = min(cycleLen, max(1, o.ConvergeIterations/2))
+	}
+	// Convergence: the last iteration and instant at which the best
+	// improved by more than ConvergeTolerance.
+	markObj, markIt, markT := bestObj, 0, began
 	for ; it < o.Iterations; it++ {
-		if !deadline.IsZero() && it%8 == 0 && time.Now().After(deadline) {
-			stop = StopBudget
-			break
+		if !deadline.IsZero() && it%8 == 0 {
+			now := time.Now()
+			if now.After(deadline) {
+				stop = StopBudget
+				break
+			}
+			if it == timingIters || !timed && it < timingIters && now.Sub(began) > o.Budget/20 {
+				// Projected time of all iterations against the budget.
+				el := now.Sub(began).Seconds()
+				timed = el/float64(max(it, 1))*float64(o.Iterations) > o.Budget.Seconds()
+			}
 		}
 		if cancelled(o.Cancel) {
 			stop = StopCancelled
 			break
 		}
-		// Simulated annealing in annealCycles cycles: each cools from t0 to
-		// t0/1000 and the next starts again from the best solution.
-		cyc := o.Iterations / annealCycles
-		if cyc > 0 && it > 0 && it%cyc == 0 {
+		// Simulated annealing in cycles: each cools from t0 to t0/1000 and
+		// the next starts again from the best solution. By iterations a
+		// cycle is a third of the iterations (at most half of
+		// ConvergeIterations, so that a search with a huge iteration cap
+		// still cools); by
+		// time the budget holds annealCycles cycles and ends cold.
+		var f float64
+		if timed {
+			f = math.Max(float64(it)/float64(o.Iterations), time.Since(began).Seconds()/o.Budget.Seconds())
+			f = math.Min(f, 1) * annealCycles
+		} else {
+			f = float64(it) / float64(cycleLen)
+		}
+		c := int(f)
+		if timed {
+			c = min(c, annealCycles-1)
+		}
+		if c > cycle {
+			// Convergence is judged when a cooling cycle ends: the cycles
+			// since the last improvement worth keeping (at least
+			// ConvergeIterations, and a tenth of the budget when time
+			// clocks the search) found nothing.
+			if o.ConvergeIterations > 0 && it-markIt >= o.ConvergeIterations &&
+				(!timed || time.Since(markT) >= o.Budget/convergeBudgetShare) {
+				stop = StopConverged
+				break
+			}
+			cycle = c
 			cur.copyFrom(best)
 			curObj = bestObj
 		}
-		frac := float64(it%max(1, cyc)) / float64(max(1, cyc))
-		temp := t0 * math.Pow(1e-3, frac)
+		temp := t0 * math.Pow(1e-3, f-float64(c))
+		if p.annealHook != nil {
+			p.annealHook(temp/t0, timed)
+		}
 		di, ri := roulette(wD, rng), roulette(wR, rng)
 		trial.copyFrom(cur)
 		changed := map[int]bool{}
@@ -176,6 +229,9 @@ func (p *Problem) solve(start *sched, keepBonus float64, keep ...map[runKey]bool
 			cur.copyFrom(trial)
 			curObj = obj
 			sigma = sigmaBest
+			if bestObj > markObj+o.ConvergeTolerance*math.Abs(markObj) {
+				markObj, markIt, markT = bestObj, it+1, time.Now()
+			}
 		case obj > curObj+1e-9:
 			cur.copyFrom(trial)
 			curObj = obj
@@ -433,7 +489,7 @@ func (p *Problem) greedy() *sched {
 			if nmax <= 0 {
 				continue
 			}
-			lo, hi, ok := p.cadenceRange(sc, b, k)
+			lo, hi, ok := p.cadenceRange(sc, b, k, t)
 			if !ok {
 				continue
 			}

@@ -72,8 +72,9 @@ type Site struct {
 
 // Cadence asks for one run every Every, plus or minus Tolerance. Within one
 // night the runs of a cadence block form one series: consecutive runs start
-// between Every-Tolerance and Every+Tolerance apart. The series may begin
-// and end at any time; each run counts on its own.
+// a whole number of Every apart, within Tolerance (a series may skip
+// slots). The series may begin and end at any time; each run is a point
+// (package doc).
 type Cadence struct {
 	Every, Tolerance time.Duration
 }
@@ -106,6 +107,33 @@ type Block struct {
 	NonSidereal bool
 	// Cadence, when set, asks for a regular series of runs.
 	Cadence *Cadence
+	// Program names whose time the block spends (Input.Programs); empty
+	// means none (no fair-share factor).
+	Program string
+}
+
+// Program is whose time blocks spend on a shared telescope (a student's
+// project, a member's share, a network partner): its allocation for the
+// period and the time already charged to it in the period before this
+// plan.
+type Program struct {
+	Name       string
+	Allocation time.Duration
+	Used       time.Duration
+}
+
+// Charge is the time a plan charges to one program: the exposure of its
+// runs and the overheads spent for them (the setup before each run, and
+// the readouts, dithers and flips inside it). Program "" gathers blocks
+// without a program.
+type Charge struct {
+	Program    string
+	Allocation time.Duration // 0 for "" and unknown programs
+	Used       time.Duration // before the plan
+	Exposure   time.Duration
+	Overheads  time.Duration
+	// Share is the fair-share factor applied to the program's blocks.
+	Share float64
 }
 
 // Closure is an interval when the site cannot observe (weather,
@@ -139,16 +167,42 @@ type Options struct {
 	Cancel <-chan struct{}
 	// Budget stops the search early when exceeded. Default 250 ms;
 	// negative means no time limit. The result is deterministic for a seed
-	// as long as Iterations, not Budget, ends the search.
+	// as long as Iterations, not Budget, ends the search. When the pace of
+	// the first iterations shows that the budget will end the search, the
+	// annealing cools by elapsed time instead of by iterations, so that a
+	// budget-limited search ends cold.
 	Budget time.Duration
+	// ConvergeIterations ends the search early (Plan.Stopped =
+	// StopConverged) when a cooling cycle ends and the best plan has not
+	// improved by more than ConvergeTolerance (relative) for this many
+	// iterations, and, when the annealing is clocked by time, for a tenth
+	// of the budget as well: the budget is then a ceiling, not a cost.
+	// Default 1000 (two cooling cycles of the default 1500 iterations);
+	// negative means never.
+	ConvergeIterations int
+	// FairShareWeight is lambda_f of the fair-share factor of a block's
+	// program (package doc): f = clamp(1 + lambda_f (1 - used /
+	// allocation), 0.25, 2). Default 0.5; negative means no fair share.
+	FairShareWeight float64
+	// ConvergeTolerance is the relative improvement that counts for
+	// ConvergeIterations. Default 1e-4 (0.01 %).
+	ConvergeTolerance float64
 	// Workers bounds the goroutines that compute tracks and visibility
 	// (default GOMAXPROCS).
 	Workers int
 	// LookaheadNights is N of the urgency lookahead. Default 14.
 	LookaheadNights int
-	// KeepBonus is the fraction of a run's value that Replan adds for
-	// keeping an assignment of the old plan unchanged. Default 0.1;
-	// negative means none.
+	// CadenceWeight values each run of a cadence block (a point of its
+	// series, delivered in its slot) at this many times the weighted
+	// exposure of its shortest run, on top of the frames' own value (package
+	// doc): a missed slot costs more than its exposure seconds. Default 3;
+	// negative means points are worth their frames only.
+	CadenceWeight float64
+	// KeepBonus is the stability term of Replan: the fraction of a run's
+	// value added for keeping an assignment of the old plan unchanged, so
+	// that a still-feasible run moves only when the change gains more.
+	// Default 0.5 (at 0.1 the demo's replan kept 1 of the old plan's 12
+	// later runs); negative means none.
 	KeepBonus float64
 }
 
@@ -160,7 +214,11 @@ const (
 	DefaultIterations      = 1500
 	DefaultBudget          = 250 * time.Millisecond
 	DefaultLookaheadNights = 14
-	DefaultKeepBonus       = 0.1
+	DefaultKeepBonus       = 0.5
+	DefaultCadenceWeight   = 3.0
+	DefaultFairShareWeight = 0.5
+	DefaultConvergeIters   = 1000
+	DefaultConvergeTol     = 1e-4
 )
 
 func (o Options) withDefaults() Options {
@@ -193,6 +251,27 @@ func (o Options) withDefaults() Options {
 	}
 	if o.LookaheadNights <= 0 {
 		o.LookaheadNights = DefaultLookaheadNights
+	}
+	switch {
+	case o.FairShareWeight == 0:
+		o.FairShareWeight = DefaultFairShareWeight
+	case o.FairShareWeight < 0:
+		o.FairShareWeight = 0
+	}
+	switch {
+	case o.CadenceWeight == 0:
+		o.CadenceWeight = DefaultCadenceWeight
+	case o.CadenceWeight < 0:
+		o.CadenceWeight = 0
+	}
+	switch {
+	case o.ConvergeIterations == 0:
+		o.ConvergeIterations = DefaultConvergeIters
+	case o.ConvergeIterations < 0:
+		o.ConvergeIterations = 0
+	}
+	if !(o.ConvergeTolerance > 0) {
+		o.ConvergeTolerance = DefaultConvergeTol
 	}
 	return o
 }
@@ -263,14 +342,21 @@ type Plan struct {
 	// Assignments in time order; executed ones (Executed true) first.
 	Assignments []Assignment
 	// Unplaced lists every block with frames left that got no run.
-	Unplaced  []Unplaced
+	Unplaced []Unplaced
+	// Cadence reports, per cadence block with a run, the points delivered
+	// and every slot skipped, with the reason.
+	Cadence []CadenceReport
+	// Charged is the time the plan's runs charge to each program (blocks
+	// without one under ""), in the order of Input.Programs, "" last.
+	// Exposure plus overheads over all entries equals the plan's.
+	Charged   []Charge
 	Objective Objective
 	// Solver names the algorithm that made the plan.
 	Solver string
 	// Iterations of improvement run (large-neighbourhood search).
 	Iterations int
-	// Stopped says what ended the search: StopIterations, StopBudget or
-	// StopCancelled ("" for solvers without a search).
+	// Stopped says what ended the search: StopIterations, StopBudget,
+	// StopConverged or StopCancelled ("" for solvers without a search).
 	Stopped string
 }
 
@@ -279,6 +365,9 @@ const (
 	StopIterations = "iterations"
 	StopBudget     = "time budget"
 	StopCancelled  = "cancelled"
+	// StopConverged: no improvement worth keeping for a stretch of the
+	// search (Options.ConvergeIterations).
+	StopConverged = "converged"
 )
 
 // cancelled reports whether ch is closed (a nil channel never is).
@@ -311,7 +400,9 @@ type Assignment struct {
 	// plan start) and Start.
 	Spent    Spent
 	Executed bool
-	// Value is the run's weighted exposure (package doc), without the bonus.
+	// Value is the run's weighted exposure (package doc) plus, for a
+	// cadence block, the value of the point it delivers; without the
+	// completion bonus.
 	Value float64
 }
 
@@ -346,11 +437,13 @@ type Spent struct {
 // Objective is a plan's value and its parts (package doc). Units are
 // seconds of exposure weighted by priority, quality and urgency.
 type Objective struct {
-	// Value = Weighted + Bonus: what the solvers maximise (executed runs
-	// excluded).
+	// Value = Weighted + Cadence + Bonus: what the solvers maximise
+	// (executed runs excluded).
 	Value    float64
 	Weighted float64
-	Bonus    float64
+	// Cadence is the value of the cadence points delivered (package doc).
+	Cadence float64
+	Bonus   float64
 	// Raw is sum priority * quality * exposure without urgency.
 	Raw float64
 	// ExposureS is the plain exposure time planned.
@@ -359,6 +452,9 @@ type Objective struct {
 	Completed int
 	// Executed is the weighted value of executed runs (not in Value).
 	Executed float64
+	// OverheadS is the overhead time of the planned runs: the setups
+	// before them and the readouts, dithers and flips inside them.
+	OverheadS float64
 }
 
 // Why says why a block got no run.

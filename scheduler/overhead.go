@@ -284,6 +284,12 @@ func (p *Problem) setup(prev prevState, b int, x float64) setupParts {
 			s.slew = s1
 		}
 	}
+	if math.IsNaN(s.slew) {
+		// A pointing without a position (a track sample that is not a
+		// number) can never be slewed to in time: every comparison with
+		// the setup must fail, not succeed as NaN comparisons do.
+		s.slew = math.Inf(1)
+	}
 	return s
 }
 

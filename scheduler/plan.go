@@ -25,15 +25,59 @@ func (p *Problem) toPlan(sc *sched, solver string, iters int) *Plan {
 		pl.Objective.Executed += a.Value
 	}
 	pl.Unplaced = p.unplaced(sc)
+	pl.Cadence = p.cadenceReports(sc)
+	pl.Charged = p.charges(pl)
+	for _, c := range pl.Charged {
+		pl.Objective.OverheadS += c.Overheads.Seconds()
+	}
 	return pl
+}
+
+// charges sums the time the plan's runs (not the executed ones) charge to
+// each program: exposure, and overheads (the setup before the run, and
+// the readouts, dithers and flips inside it; idle time is nobody's).
+func (p *Problem) charges(pl *Plan) []Charge {
+	idx := map[string]int{}
+	var out []Charge
+	for _, pr := range p.Programs {
+		if _, ok := idx[pr.Name]; !ok && pr.Name != "" {
+			idx[pr.Name] = len(out)
+			out = append(out, Charge{Program: pr.Name, Allocation: pr.Allocation, Used: pr.Used, Share: p.fairShare(pr.Name)})
+		}
+	}
+	for i := range pl.Assignments {
+		a := &pl.Assignments[i]
+		if a.Executed {
+			continue
+		}
+		name := p.Blocks[a.Block].Program
+		k, ok := idx[name]
+		if !ok {
+			k = len(out)
+			idx[name] = k
+			out = append(out, Charge{Program: name, Share: p.Share[a.Block]})
+		}
+		exp := time.Duration(a.Frames) * p.Blocks[a.Block].Exposure
+		s := a.Spent
+		out[k].Exposure += exp
+		out[k].Overheads += a.End.Sub(a.Start) - exp + s.Slew + s.Settle + s.FilterChange + s.Focus + s.Acquisition
+	}
+	// Blocks without a program last.
+	if k, ok := idx[""]; ok && k != len(out)-1 {
+		c := out[k]
+		out = append(append(out[:k], out[k+1:]...), c)
+	}
+	return out
 }
 
 // objective sums a timeline's parts.
 func (p *Problem) objective(sc *sched) Objective {
 	var o Objective
 	for _, r := range sc.runs {
-		o.Weighted += r.val
-		o.Raw += r.val / p.Urgency[r.b]
+		pt := p.bd[r.b].point
+		o.Weighted += r.val - pt
+		o.Cadence += pt
+		o.Raw += (r.val - pt) / (p.Urgency[r.b] * p.Share[r.b])
 		o.ExposureS += float64(r.n) * p.bd[r.b].exp
 	}
 	for b, n := range sc.planned {
@@ -42,7 +86,7 @@ func (p *Problem) objective(sc *sched) Objective {
 			o.Completed++
 		}
 	}
-	o.Value = o.Weighted + o.Bonus
+	o.Value = o.Weighted + o.Cadence + o.Bonus
 	return o
 }
 
@@ -155,4 +199,141 @@ func (p *Problem) unplaced(sc *sched) []Unplaced {
 		out = append(out, u)
 	}
 	return out
+}
+
+// CadenceReport is what a plan delivers of one cadence block's series
+// tonight: the runs (points) delivered, executed ones included, and every
+// slot of the series that the plan skips, with the reason.
+type CadenceReport struct {
+	Block     int
+	ID        string
+	Every     time.Duration
+	Delivered int
+	Skipped   []SkippedSlot
+}
+
+// SkippedSlot is one slot of a cadence series without a run: the slot's
+// centre (a whole number of Every from a delivered run) and why.
+type SkippedSlot struct {
+	At  time.Time
+	Why SlotWhy
+}
+
+// SlotWhy says why a cadence slot has no run.
+type SlotWhy uint8
+
+// Reasons for a skipped cadence slot.
+const (
+	// SlotNotObservable: no run of the block's shortest length fits
+	// inside its observable intervals within the slot's tolerance.
+	SlotNotObservable SlotWhy = iota + 1
+	// SlotClosed: a closure covers the slot.
+	SlotClosed
+	// SlotNoFrames: the block's frames are all planned.
+	SlotNoFrames
+	// SlotLostToHigherValue: a run would fit, but the time went to runs
+	// worth more than the point.
+	SlotLostToHigherValue
+	// SlotPast: the slot lies before the plan's start.
+	SlotPast
+)
+
+func (w SlotWhy) String() string {
+	switch w {
+	case SlotNotObservable:
+		return "not observable"
+	case SlotClosed:
+		return "closure"
+	case SlotNoFrames:
+		return "no frames left"
+	case SlotLostToHigherValue:
+		return "lost to higher value"
+	case SlotPast:
+		return "before the plan's start"
+	}
+	return "unknown"
+}
+
+// cadenceReports explains the series of every cadence block with a run
+// (blocks with none are in Unplaced).
+func (p *Problem) cadenceReports(sc *sched) []CadenceReport {
+	var out []CadenceReport
+	for b := range p.Blocks {
+		d := &p.bd[b]
+		if d.every <= 0 {
+			continue
+		}
+		var starts []float64
+		for _, a := range p.Executed {
+			if a.Block == b {
+				starts = append(starts, p.rel(a.Start))
+			}
+		}
+		for _, r := range sc.runs {
+			if r.b == b {
+				starts = append(starts, r.s)
+			}
+		}
+		if len(starts) == 0 {
+			continue
+		}
+		rep := CadenceReport{Block: b, ID: p.Blocks[b].ID, Every: secs(d.every), Delivered: len(starts)}
+		skip := func(c float64) {
+			if c+d.tol < 0 || c-d.tol >= p.tEnd {
+				return
+			}
+			rep.Skipped = append(rep.Skipped, SkippedSlot{At: p.abs(c), Why: p.slotWhy(sc, b, c)})
+		}
+		var before []float64
+		for c := starts[0] - d.every; c+d.tol >= 0; c -= d.every {
+			before = append(before, c)
+		}
+		for i := len(before) - 1; i >= 0; i-- {
+			skip(before[i]) // earliest first
+		}
+		for i := 1; i < len(starts); i++ {
+			for c := starts[i-1] + d.every; c < starts[i]-d.tol; c += d.every {
+				skip(c)
+			}
+		}
+		for c := starts[len(starts)-1] + d.every; c-d.tol < p.tEnd; c += d.every {
+			skip(c)
+		}
+		out = append(out, rep)
+	}
+	return out
+}
+
+// slotWhy says why cadence block b has no run in the slot centred at c.
+func (p *Problem) slotWhy(sc *sched, b int, c float64) SlotWhy {
+	d := &p.bd[b]
+	lo, hi := c-d.tol, c+d.tol
+	if hi < p.tFrom {
+		return SlotPast
+	}
+	fits, closed := false, false
+	for x := p.ceilQ(math.Max(lo, p.tFrom)); x <= hi && x < p.tEnd; x += p.quantum {
+		it, ok := p.newRun(b, x)
+		if !ok {
+			if len(p.cl) > 0 && p.closureIn(x, x+p.quantum) >= 0 {
+				closed = true
+			}
+			continue
+		}
+		for it.r.n < d.minRun && it.next() {
+		}
+		if it.r.n >= min(d.minRun, max(1, d.rem)) {
+			fits = true
+			break
+		}
+	}
+	switch {
+	case fits && sc.planned[b] >= d.rem:
+		return SlotNoFrames
+	case fits:
+		return SlotLostToHigherValue
+	case closed:
+		return SlotClosed
+	}
+	return SlotNotObservable
 }

@@ -30,7 +30,9 @@ type Input struct {
 	// the lookahead (tonight included) with a window long enough for its
 	// shortest run (see Lookahead); nil means no urgency.
 	Chances []int
-	Options Options
+	// Programs are the allocations of the blocks' programs (Block.Program).
+	Programs []Program
+	Options  Options
 }
 
 // Problem is a prepared night: tracks and visibility of every block and
@@ -52,7 +54,10 @@ type Problem struct {
 	// Urgency is the factor u of each block (package doc).
 	Urgency []float64
 	Chances []int
-	Options Options
+	// Programs and Share: the programs and each block's fair-share factor.
+	Programs []Program
+	Share    []float64
+	Options  Options
 
 	step, quantum float64   // seconds
 	n             int       // grid steps
@@ -68,6 +73,9 @@ type Problem struct {
 	flip0, flip1  float64         // flip zone, radians of hour angle
 	oh            ohSec
 	maxSetup      float64
+	// annealHook, when set (tests), sees each iteration's temperature as
+	// a fraction of the starting one and whether time clocks it.
+	annealHook func(temp float64, timed bool)
 }
 
 // ohSec is the overhead model in seconds.
@@ -98,6 +106,7 @@ type bdat struct {
 	bad        []int32
 	good       []int32
 	every, tol float64 // cadence, seconds (every = 0: none)
+	point      float64 // value of one cadence point (run), 0 without cadence
 	avoidFlip  bool    // the block avoids the flip zone: no flip inside a run
 	moving     bool    // the target moves against the stars
 	minSetup   float64
@@ -153,7 +162,7 @@ func checkInput(in *Input) error {
 
 // newProblem assembles a problem from precomputed tracks and visibility.
 func newProblem(in Input, tracks []*constraints.Track, vis []*constraints.Visibility) (*Problem, error) {
-	p := &Problem{Site: in.Site, Grid: in.Grid, Blocks: in.Blocks, Chances: in.Chances,
+	p := &Problem{Site: in.Site, Grid: in.Grid, Blocks: in.Blocks, Chances: in.Chances, Programs: in.Programs,
 		Options: in.Options.withDefaults(), Tracks: tracks, Vis: vis}
 	for i, tr := range p.Tracks {
 		if tr == nil {
@@ -321,6 +330,7 @@ func (p *Problem) prepare(closures []Closure, executed []Assignment, from time.T
 	}
 	p.bd = make([]bdat, len(p.Blocks))
 	p.Urgency = make([]float64, len(p.Blocks))
+	p.Share = make([]float64, len(p.Blocks))
 	for i := range p.Blocks {
 		b := &p.Blocks[i]
 		d := &p.bd[i]
@@ -352,9 +362,17 @@ func (p *Problem) prepare(closures []Closure, executed []Assignment, from time.T
 			u = urgency(p.Options.UrgencyWeight, d.rem, d.maxRun, p.Chances[i])
 		}
 		p.Urgency[i] = u
-		d.w = b.Priority * d.exp * u
+		p.Share[i] = p.fairShare(b.Program)
+		d.w = b.Priority * d.exp * u * p.Share[i]
+		if d.every > 0 {
+			// A point of a light curve is worth more than its exposure:
+			// CadenceWeight times a shortest run's weighted exposure.
+			d.point = p.Options.CadenceWeight * d.w * float64(d.minRun)
+		}
 		if d.rem > 0 {
-			d.bonus = p.Options.CompletionBonus * d.w * float64(b.FramesWanted)
+			// The frames left, not the whole block: one frame of a hundred left
+			// earns a hundredth of a whole block's bonus.
+			d.bonus = p.Options.CompletionBonus * d.w * float64(d.rem)
 		}
 		p.blockIntervals(i)
 	}
@@ -381,6 +399,30 @@ func (p *Problem) prepare(closures []Closure, executed []Assignment, from time.T
 	}
 	return nil
 }
+
+// fairShare is the fair-share factor of a program (package doc): above 1
+// for a program under its allocation, below 1 over it, 1 without a
+// program or an allocation.
+func (p *Problem) fairShare(name string) float64 {
+	if name == "" || p.Options.FairShareWeight == 0 {
+		return 1
+	}
+	for _, pr := range p.Programs {
+		if pr.Name == name && pr.Allocation > 0 {
+			f := 1 + p.Options.FairShareWeight*(1-pr.Used.Seconds()/pr.Allocation.Seconds())
+			return math.Min(fairShareMax, math.Max(fairShareMin, f))
+		}
+	}
+	return 1
+}
+
+// Bounds of the fair-share factor: a program far over its allocation still
+// gets a quarter of its value (its blocks run when nothing else can), one
+// far under it at most twice.
+const (
+	fairShareMin = 0.25
+	fairShareMax = 2
+)
 
 // WithState returns a copy of p for replanning: the same tracks and
 // visibility with new closures, executed runs and start instant.

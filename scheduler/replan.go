@@ -19,9 +19,60 @@ type State struct {
 // ReplanReport says how much a replan changed: Kept future assignments of
 // the old plan that the new one has unchanged (same block, start and
 // frames), Dropped ones that it does not, Added ones that are new.
-// Changed = Dropped + Added.
+// Changed = Dropped + Added. Feasible counts the old future assignments
+// that were still valid in the new state (the ones a replan could keep);
+// Runs says, for every old future assignment, what became of it and why.
 type ReplanReport struct {
 	Kept, Dropped, Added, Changed int
+	Feasible                      int
+	Runs                          []RunChange
+}
+
+// RunChange is what a replan did to one future assignment of the old plan.
+type RunChange struct {
+	ID     string    // the block
+	Start  time.Time // the old start
+	Frames int       // the old frames
+	Change Change
+	// NewStart and NewFrames are the block's nearest new run (zero when
+	// it has none).
+	NewStart  time.Time
+	NewFrames int
+	// Why says why in words (empty when kept).
+	Why string
+}
+
+// Change is what happened to an old run in a replan.
+type Change uint8
+
+// Changes of an old run.
+const (
+	// RunKept: the same block, start and frames.
+	RunKept Change = iota + 1
+	// RunInfeasible: no longer valid in the new state (a closure, frames
+	// reported done, the mount's new state, a broken cadence series).
+	RunInfeasible
+	// RunMoved: still valid, but the block runs at another time or with
+	// other frames, because the new plan gains more than the stability
+	// term (Options.KeepBonus) costs.
+	RunMoved
+	// RunDropped: still valid, but the block has no run left: its time
+	// went to runs worth more than it and its stability term.
+	RunDropped
+)
+
+func (c Change) String() string {
+	switch c {
+	case RunKept:
+		return "kept"
+	case RunInfeasible:
+		return "no longer feasible"
+	case RunMoved:
+		return "moved"
+	case RunDropped:
+		return "dropped"
+	}
+	return "unknown"
 }
 
 // Replan re-plans the rest of the night from st.Now: the executed runs are
@@ -62,7 +113,72 @@ func Replan(p *Problem, old *Plan, st State) (*Plan, ReplanReport, error) {
 		}
 	}
 	rep.Changed = rep.Dropped + rep.Added
+	rep.Feasible = len(keep)
+	rep.Runs = q.runChanges(old, sc, keep, kept)
 	return pl, rep, nil
+}
+
+// runChanges explains what a replan did to each future run of the old plan.
+func (p *Problem) runChanges(old *Plan, sc *sched, feasible, kept map[runKey]bool) []RunChange {
+	var out []RunChange
+	for i := range old.Assignments {
+		a := &old.Assignments[i]
+		if a.Executed || p.rel(a.Start) < p.tFrom-1e-9 {
+			continue
+		}
+		c := RunChange{ID: a.ID, Start: a.Start, Frames: a.Frames}
+		k := p.keyOfAssignment(a)
+		// The block's new run nearest to the old start.
+		near := -1
+		if a.Block >= 0 && a.Block < len(p.Blocks) && p.Blocks[a.Block].ID == a.ID {
+			for j := range sc.runs {
+				if sc.runs[j].b == a.Block && (near < 0 ||
+					math.Abs(sc.runs[j].s-p.rel(a.Start)) < math.Abs(sc.runs[near].s-p.rel(a.Start))) {
+					near = j
+				}
+			}
+		}
+		if near >= 0 {
+			c.NewStart, c.NewFrames = p.abs(sc.runs[near].s), sc.runs[near].n
+		}
+		switch {
+		case kept[k]:
+			c.Change = RunKept
+		case !feasible[k]:
+			c.Change = RunInfeasible
+			c.Why = p.whyInfeasible(a)
+		case near >= 0:
+			c.Change = RunMoved
+			c.Why = "moved: the new plan gains more than keeping it is worth"
+		default:
+			c.Change = RunDropped
+			c.Why = "dropped: its time went to runs worth more than it and its stability bonus"
+		}
+		out = append(out, c)
+	}
+	return out
+}
+
+// whyInfeasible says why an old run is no longer valid in p's state.
+func (p *Problem) whyInfeasible(a *Assignment) string {
+	b := a.Block
+	if b < 0 || b >= len(p.Blocks) || p.Blocks[b].ID != a.ID {
+		return "its block is no longer open"
+	}
+	s, e := p.rel(a.Start), p.rel(a.End)
+	if p.closureIn(math.Max(0, s-p.bd[b].minSetup), e) >= 0 {
+		return "a closure covers it or its setup"
+	}
+	if a.Frames > p.bd[b].rem {
+		return fmt.Sprintf("only %d of its %d frames are still wanted", p.bd[b].rem, a.Frames)
+	}
+	if p.ivEnd(b, s) < 0 || p.ivEnd(b, s) < e-1e-6 {
+		return "its block is no longer observable then"
+	}
+	if p.bd[b].every > 0 {
+		return "its cadence series or the runs before it changed: it no longer fits"
+	}
+	return "the runs before it changed (setup, mount side or frames): it no longer fits"
 }
 
 func (p *Problem) keyOfAssignment(a *Assignment) runKey {
@@ -96,7 +212,7 @@ func (p *Problem) fromPlan(old *Plan) (*sched, map[runKey]bool) {
 		if a.Frames > p.maxFrames(b, sc.planned[b]) || a.Frames < 1 {
 			continue
 		}
-		lo, hi, ok := p.cadenceRange(sc, b, k)
+		lo, hi, ok := p.cadenceRange(sc, b, k, s)
 		if !ok || s < lo-1e-9 || s > hi+1e-9 {
 			continue
 		}

@@ -13,7 +13,7 @@ type run struct {
 	side0, side1 int8    // pier side at start and end
 	flipAt       float64 // start of the flip (wait included), -1 if none
 	flipBefore   int     // the flip comes before this frame
-	val          float64 // sum of w * quality over frames
+	val          float64 // the cadence point (if any) + sum of w * quality over frames
 }
 
 // runIter grows a run of one block frame by frame, following the frame
@@ -40,7 +40,7 @@ func (p *Problem) newRun(b int, s float64) (runIter, bool) {
 	}
 	side := p.startSide(b, s)
 	it := runIter{p: p, d: d, t: s, limit: limit, side: side,
-		r: run{b: b, s: s, e: s, side0: side, side1: side, flipAt: -1}}
+		r: run{b: b, s: s, e: s, side0: side, side1: side, flipAt: -1, val: d.point}}
 	return it, true
 }
 
@@ -157,7 +157,7 @@ func (p *Problem) earliest(prev prevState, b int, base, notBefore float64) (s fl
 		}
 		su = p.setup(prev, b, s)
 		tot := su.total()
-		if need := p.ceilQ(base + tot); need > s+1e-9 {
+		if need := p.ceilQ(base + tot); !(need <= s+1e-9) {
 			s = need
 			continue
 		}
@@ -180,7 +180,7 @@ func (p *Problem) startOK(prev prevState, b int, base, s float64) (setupParts, b
 	}
 	su := p.setup(prev, b, s)
 	tot := su.total()
-	if s-base < tot-1e-9 || !p.setupClear(s, tot) {
+	if !(s-base >= tot-1e-9) || !p.setupClear(s, tot) {
 		return su, false
 	}
 	return su, true

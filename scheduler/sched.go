@@ -193,8 +193,7 @@ func (p *Problem) markBrokenSeries(sc *sched, b int, del *[]bool, mark func(int)
 		// removes the planned runs from there on.
 		prev := p.execStart[b]
 		for i, k := range idx {
-			gap := sc.runs[k].s - prev
-			if gap < d.every-d.tol-1e-9 || gap > d.every+d.tol+1e-9 {
+			if !onSlot(sc.runs[k].s-prev, d.every, d.tol, 1e-9) {
 				for _, k := range idx[i:] {
 					mark(k)
 				}
@@ -205,8 +204,7 @@ func (p *Problem) markBrokenSeries(sc *sched, b int, del *[]bool, mark func(int)
 		return
 	}
 	for i := 1; i < len(idx); i++ {
-		gap := sc.runs[idx[i]].s - sc.runs[idx[i-1]].s
-		if gap < d.every-d.tol-1e-9 || gap > d.every+d.tol+1e-9 {
+		if !onSlot(sc.runs[idx[i]].s-sc.runs[idx[i-1]].s, d.every, d.tol, 1e-9) {
 			if i <= len(idx)-i {
 				for _, k := range idx[:i] {
 					mark(k)
@@ -222,8 +220,11 @@ func (p *Problem) markBrokenSeries(sc *sched, b int, del *[]bool, mark func(int)
 }
 
 // cadenceRange is the allowed start range of a new run of cadence block b
-// inserted at position k, and whether one may go there at all.
-func (p *Problem) cadenceRange(sc *sched, b, k int) (lo, hi float64, ok bool) {
+// inserted at position k, at or after from (the first slot that ends
+// there), and whether one may go there at all. A series may skip slots:
+// consecutive runs are a whole number of Every apart, within Tolerance
+// (see onSlot); the skipped slots earn nothing.
+func (p *Problem) cadenceRange(sc *sched, b, k int, from float64) (lo, hi float64, ok bool) {
 	d := &p.bd[b]
 	lo, hi = math.Inf(-1), math.Inf(1)
 	if d.every <= 0 {
@@ -249,15 +250,47 @@ func (p *Problem) cadenceRange(sc *sched, b, k int) (lo, hi float64, ok bool) {
 		bs = p.execStart[b] // the series began with an executed run
 	}
 	switch {
-	case !math.IsNaN(bs) && after >= 0:
-		return 0, 0, false
 	case !math.IsNaN(bs):
-		return bs + d.every - d.tol, bs + d.every + d.tol, true
+		// The first slot after the previous run that ends at or after from.
+		m := math.Max(1, math.Ceil((from-bs-d.tol)/d.every-1e-9))
+		lo, hi = bs+m*d.every-d.tol, bs+m*d.every+d.tol
+		if after >= 0 {
+			// Between two runs of the series: the slot must also be a
+			// whole number of Every before the next one.
+			as := sc.runs[after].s
+			j := math.Round((as - bs - m*d.every) / d.every)
+			if j < 1 {
+				return 0, 0, false
+			}
+			lo, hi = math.Max(lo, as-j*d.every-d.tol), math.Min(hi, as-j*d.every+d.tol)
+			if lo > hi {
+				return 0, 0, false
+			}
+		}
+		return lo, hi, true
 	case after >= 0:
-		s := sc.runs[after].s
-		return s - d.every - d.tol, s - d.every + d.tol, true
+		// Before the series: the latest slot that starts before the next
+		// run's slot and ends at or after from.
+		as := sc.runs[after].s
+		m := math.Max(1, math.Floor((as-from+d.tol)/d.every+1e-9))
+		return as - m*d.every - d.tol, as - m*d.every + d.tol, true
 	}
 	return lo, hi, true
+}
+
+// onSlot reports whether a gap g between the starts of two consecutive
+// runs of a cadence series is a whole number (>= 1) of every, within tol
+// (and slack, for checks on rounded times).
+func onSlot(g, every, tol, slack float64) bool {
+	if g < every-tol-slack {
+		return false
+	}
+	for _, m := range []float64{math.Floor(g / every), math.Ceil(g / every)} {
+		if m >= 1 && math.Abs(g-m*every) <= tol+slack {
+			return true
+		}
+	}
+	return false
 }
 
 // recompute rebuilds sc.val and sc.planned from the runs (a check against

@@ -395,8 +395,15 @@ func TestReplanKeepsExecutedWork(t *testing.T) {
 		t.Fatal(err)
 	}
 	mustValidate(t, "as planned", pl0, q)
-	if rep0.Kept < future*4/5 {
-		t.Errorf("executed as planned, no closure: kept %d of %d future assignments (%+v)", rep0.Kept, future, rep0)
+	// Of the future runs still valid (a cadence series whose next run's
+	// setup would start before now is not), at least 4 in 5 stay.
+	if rep0.Kept < rep0.Feasible*4/5 || rep0.Feasible < future/2 {
+		t.Errorf("executed as planned, no closure: kept %d of %d feasible, %d future assignments", rep0.Kept, rep0.Feasible, future)
+	}
+	for _, c := range rep0.Runs {
+		if (c.Change == RunKept) != (c.Why == "") || c.Change == 0 {
+			t.Errorf("run change without its reason: %+v", c)
+		}
 	}
 	_, rep := check("last run short", State{Now: now, Executed: exec})
 	cl := []Closure{{Start: now.Add(30 * time.Minute), End: now.Add(100 * time.Minute), Note: "cloud"}}
@@ -404,7 +411,8 @@ func TestReplanKeepsExecutedWork(t *testing.T) {
 	if rep2.Changed == 0 {
 		t.Errorf("a 70-minute closure changed nothing: %+v", rep2)
 	}
-	t.Logf("as planned: %+v; last run 2 frames short: %+v; and a closure: %+v (of %d future)", rep0, rep, rep2, future)
+	t.Logf("as planned: kept %d of %d feasible; last run 2 frames short: kept %d of %d; and a closure: kept %d of %d (of %d future)",
+		rep0.Kept, rep0.Feasible, rep.Kept, rep.Feasible, rep2.Kept, rep2.Feasible, future)
 }
 
 // Dispatch agrees with the plan's first assignment, at the start of the
@@ -633,7 +641,9 @@ func TestExactAgainstBruteForceAndBounds(t *testing.T) {
 	}
 	t.Logf("micro: exact = brute force = %.1f (%d runs)", bf, len(x.Assignments))
 
-	for _, seed := range []uint64{3, 101} {
+	// Seed 101 (13.8 million states once short runs may stand anywhere,
+	// two minutes) is left to the benchmarks.
+	for _, seed := range []uint64{3} {
 		p := testProblem(t, GenSpec{Name: "ex", Seed: seed, Site: 0, Night: "2027-02-10", Blocks: 8, StepS: 60, QuantumS: 60,
 			Load: 1.6, AllOrNothing: 0.6, NoFocusEvery: true, Lookahead: 14}, Options{Seed: 1, Iterations: 1500, Budget: -1})
 		x, err := Exact(p, ExactLimits{})
@@ -667,12 +677,26 @@ func bruteForce(p *Problem) float64 {
 	best := 0.0
 	var rec func(sc *sched)
 	rec = func(sc *sched) {
-		best = math.Max(best, sc.val)
+		// Validate's rule: at most one run shorter than MinRun per
+		// block, anywhere in time, and only when the plan completes it.
+		short := make([]int, len(p.Blocks))
+		for _, r := range sc.runs {
+			if r.n < p.bd[r.b].minRun {
+				short[r.b]++
+			}
+		}
+		valid := true
+		for b, n := range short {
+			valid = valid && (n == 0 || n == 1 && sc.planned[b] == p.bd[b].rem)
+		}
+		if valid {
+			best = math.Max(best, sc.val)
+		}
 		k := len(sc.runs)
 		base := p.baseOf(sc, k)
 		prev := p.prevOf(sc, k)
 		for b := range p.Blocks {
-			lo := p.minFrames(b, sc.planned[b])
+			lo := 1 // short runs anywhere; rec keeps only valid plans
 			hi := p.maxFrames(b, sc.planned[b])
 			if hi <= 0 {
 				continue
@@ -965,8 +989,215 @@ func TestCancelAndStopReason(t *testing.T) {
 	if _, err := in.Problem(Options{Cancel: done}); !errors.Is(err, ErrCancelled) {
 		t.Errorf("preparing with a closed Cancel: %v, want ErrCancelled", err)
 	}
-	q.Options.Cancel, q.Options.Budget = nil, 20*time.Millisecond
+	q.Options.Cancel, q.Options.Budget, q.Options.ConvergeIterations = nil, 20*time.Millisecond, 0
 	if pl := Solve(&q); pl.Stopped != StopBudget {
 		t.Errorf("budget: stopped %q", pl.Stopped)
+	}
+}
+
+// A search with no iteration or time limit to speak of stops when it has
+// converged (Plan.Stopped = StopConverged), deterministically for a seed,
+// and is as good as the default-length search it outlasts; a budget that
+// the pace shows to be binding clocks the annealing by time.
+func TestSearchConverges(t *testing.T) {
+	p := testProblem(t, GenSpec{Name: "cv", Seed: 5, Site: 0, Night: "2027-02-10", Blocks: 30, StepS: 60, Load: 2},
+		Options{Seed: 1, Iterations: 1 << 20, Budget: -1, ConvergeIterations: 300})
+	a, b := Solve(p), Solve(p)
+	if a.Stopped != StopConverged || a.Iterations >= 1<<20 {
+		t.Fatalf("stopped %q after %d iterations, want %q", a.Stopped, a.Iterations, StopConverged)
+	}
+	if a.Iterations != b.Iterations || a.Objective.Value != b.Objective.Value {
+		t.Errorf("not deterministic: %d iterations %v, then %d %v", a.Iterations, a.Objective.Value, b.Iterations, b.Objective.Value)
+	}
+	mustValidate(t, "converged", a, p)
+	q := *p
+	q.Options.Iterations = 300
+	if short := Solve(&q); a.Objective.Value < short.Objective.Value*(1-1e-9) {
+		t.Errorf("converged search %v below a 300-iteration one %v", a.Objective.Value, short.Objective.Value)
+	}
+	t.Logf("converged after %d iterations, objective %.0f", a.Iterations, a.Objective.Value)
+}
+
+// Cadence points are valued above their exposure (Options.CadenceWeight):
+// with the default weight the cadence blocks get at least as many points
+// as when a point is worth its frames only, the objective's Cadence part
+// is the points' value, and the plan reports every delivered point and
+// explains every skipped slot of each series. Rules of the model (package
+// doc), no outside source.
+func TestCadenceDelivers(t *testing.T) {
+	sp := GenSpec{Name: "cd", Seed: 1, Site: 0, Night: "2027-02-10", Blocks: 30, StepS: 60, Load: 3, Cadence: 0.15, Lookahead: 14}
+	count := func(pl *Plan, p *Problem) int {
+		n := 0
+		for _, a := range pl.Assignments {
+			if p.bd[a.Block].every > 0 {
+				n++
+			}
+		}
+		return n
+	}
+	flat := testOpts(1)
+	flat.CadenceWeight = -1
+	pf := testProblem(t, sp, flat)
+	p := testProblem(t, sp, testOpts(1))
+	plf, pl := Solve(pf), Solve(p)
+	mustValidate(t, "flat", plf, pf)
+	mustValidate(t, "points", pl, p)
+	nf, n := count(plf, pf), count(pl, p)
+	if n < nf || n == 0 {
+		t.Errorf("%d cadence points with CadenceWeight %v, %d with points worth their frames", n, p.Options.CadenceWeight, nf)
+	}
+	if plf.Objective.Cadence != 0 {
+		t.Errorf("points worth their frames only, yet Cadence = %v", plf.Objective.Cadence)
+	}
+	reported := 0
+	for _, c := range pl.Cadence {
+		reported += c.Delivered
+		for _, s := range c.Skipped {
+			if s.Why < SlotNotObservable || s.Why > SlotPast {
+				t.Errorf("%s: slot at %v without a reason", c.ID, s.At)
+			}
+		}
+		d := &p.bd[c.Block]
+		if want := float64(c.Delivered) * d.point; want <= 0 {
+			t.Errorf("%s: %d points worth %v", c.ID, c.Delivered, want)
+		}
+	}
+	if reported != n {
+		t.Errorf("cadence reports count %d points, the plan has %d", reported, n)
+	}
+	var pts float64
+	for _, a := range pl.Assignments {
+		pts += p.bd[a.Block].point
+	}
+	if math.Abs(pts-pl.Objective.Cadence) > 1e-9*math.Max(1, pts) {
+		t.Errorf("objective's cadence part %v, points give %v", pl.Objective.Cadence, pts)
+	}
+	t.Logf("cadence points: %d (weight %v), %d (frames only); objective %.0f of which points %.0f",
+		n, p.Options.CadenceWeight, nf, pl.Objective.Value, pl.Objective.Cadence)
+}
+
+// Programs on a shared telescope: of two blocks alike in everything but
+// their program (same target, filter, priority), the block of the program
+// under its allocation gets the night's time before the one over it, and
+// the time the plan charges to programs adds up to the plan's exposure
+// plus overheads. Rules of the model (package doc), no outside source.
+func TestProgramsFairShare(t *testing.T) {
+	in, err := GenerateInstance(GenSpec{Name: "pg", Seed: 4, Site: 0, Night: "2027-02-10", Blocks: 3, StepS: 60, Load: 1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	site, _ := in.SiteOf()
+	blocks, _ := in.BlocksOf()
+	day, _ := in.Date()
+	g, err := NightGrid(site.Site, day.Year(), day.Month(), day.Day(), WeakestDarkness(blocks), time.Minute, constraints.Options{NoSkyBrightness: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	// Block 0 twice, each wanting far more frames than the night holds;
+	// the others keep their own programs out.
+	over, under := blocks[0], blocks[0]
+	over.ID, over.Program, over.FramesWanted, over.FramesDone, over.MaxRun = "over", "club", 10000, 0, 0
+	under.ID, under.Program, under.FramesWanted, under.FramesDone, under.MaxRun = "under", "student", 10000, 0, 0
+	bs := []Block{over, under, blocks[1], blocks[2]}
+	progs := []Program{{Name: "club", Allocation: 10 * time.Hour, Used: 15 * time.Hour}, {Name: "student", Allocation: 10 * time.Hour, Used: 2 * time.Hour}}
+	p, err := NewProblem(Input{Site: site, Grid: g, Blocks: bs, Programs: progs, Options: testOpts(1)})
+	if err != nil {
+		t.Fatal(err)
+	}
+	pl := Solve(p)
+	mustValidate(t, "programs", pl, p)
+	frames := map[string]int{}
+	for _, a := range pl.Assignments {
+		frames[a.ID] += a.Frames
+	}
+	if frames["under"] == 0 || frames["under"] <= frames["over"] {
+		t.Errorf("under its allocation %d frames, over it %d (shares %v)", frames["under"], frames["over"], p.Share)
+	}
+	var exp, oh time.Duration
+	for _, c := range pl.Charged {
+		exp += c.Exposure
+		oh += c.Overheads
+	}
+	// A nanosecond per assignment: instants are rounded to the nanosecond.
+	tol := time.Duration(len(pl.Assignments)+1) * time.Nanosecond
+	if d := exp - secs(pl.Objective.ExposureS); d > tol || d < -tol {
+		t.Errorf("charged exposure %v, plan %v s", exp, pl.Objective.ExposureS)
+	}
+	if d := oh - secs(pl.Objective.OverheadS); d > tol || d < -tol {
+		t.Errorf("charged overheads %v, plan %v s", oh, pl.Objective.OverheadS)
+	}
+	// Independently: the setups before the runs and the gaps inside them.
+	var want time.Duration
+	for _, a := range pl.Assignments {
+		s := a.Spent
+		want += a.End.Sub(a.Start) + s.Slew + s.Settle + s.FilterChange + s.Focus + s.Acquisition
+	}
+	if d := exp + oh - want; d > tol || d < -tol {
+		t.Errorf("charged %v in all, runs and setups give %v", exp+oh, want)
+	}
+	t.Logf("frames: under %d, over %d; charged %+v", frames["under"], frames["over"], pl.Charged)
+}
+
+// A setup toward or from a pointing that is not a number never fits: the
+// NaN slew becomes +Inf, so startOK, earliest and Validate refuse it
+// instead of letting NaN comparisons pass. Rule of the model, no outside
+// source.
+func TestNaNSetupNeverFits(t *testing.T) {
+	p := testProblem(t, GenSpec{Name: "nan", Seed: 3, Site: 0, Night: "2027-02-10", Blocks: 4, StepS: 60, Load: 1}, testOpts(1))
+	q := *p
+	q.Tracks = append([]*constraints.Track(nil), p.Tracks...)
+	tr := *q.Tracks[1]
+	tr.HA = append([]float32(nil), tr.HA...)
+	tr.Dec = append([]float32(nil), tr.Dec...)
+	for i := range tr.HA {
+		tr.HA[i], tr.Dec[i] = float32(math.NaN()), float32(math.NaN())
+	}
+	q.Tracks[1] = &tr
+	q.ax = nil // axes from the tracks, not the precomputed table
+	prev := prevState{block: 0, filter: -1, focused: true}
+	s := q.ivNext(1, q.tFrom)
+	if s >= q.tEnd {
+		t.Skip("block 1 is never observable on this night")
+	}
+	s = q.ceilQ(s + 3600)
+	su := q.setup(prev, 1, s)
+	if !math.IsInf(su.slew, 1) {
+		t.Errorf("slew toward a NaN pointing = %v, want +Inf", su.slew)
+	}
+	if _, ok := q.startOK(prev, 1, 0, s); ok {
+		t.Error("a run after a NaN setup may start")
+	}
+	if _, _, ok := q.earliest(prev, 1, 0, 0); ok {
+		t.Error("earliest found a start after a NaN setup")
+	}
+}
+
+// A search that the time budget ends is clocked by time and ends cold
+// (late in its last cooling cycle); one that the
+// iteration count ends is clocked by iterations. Rule of the search
+// (package doc), no outside source.
+func TestAnnealingEndsCold(t *testing.T) {
+	p := testProblem(t, GenSpec{Name: "ac", Seed: 5, Site: 0, Night: "2027-02-10", Blocks: 40, StepS: 60, Load: 3}, testOpts(1))
+	q := *p
+	q.Options.Iterations, q.Options.Budget, q.Options.ConvergeIterations = 1<<30, 150*time.Millisecond, 0
+	last, timed := 1.0, false
+	q.annealHook = func(temp float64, tm bool) { last, timed = temp, tm }
+	if pl := Solve(&q); pl.Stopped != StopBudget {
+		t.Fatalf("stopped %q, want %q", pl.Stopped, StopBudget)
+	}
+	// coldFrac: the last iteration lies in the second half of the last
+	// cooling cycle (temperature below 10^(-3 x 0.5) of the cycle's
+	// start; loose for a loaded machine: an iteration-clocked search with
+	// this iteration cap would end at about 1).
+	const coldFrac = 0.032
+	if !timed || last > coldFrac {
+		t.Errorf("budget-ended search: timed %v, last temperature %.3g of t0 (want <= %v)", timed, last, coldFrac)
+	}
+	r := *p
+	r.Options.Iterations, r.Options.Budget = 90, -1
+	timed = true
+	r.annealHook = func(temp float64, tm bool) { last, timed = temp, tm }
+	if pl := Solve(&r); pl.Stopped != StopIterations || timed {
+		t.Errorf("iteration-ended search: stopped %q, timed %v", pl.Stopped, timed)
 	}
 }

@@ -52,7 +52,7 @@ func Validate(pl *Plan, p *Problem) error {
 	short := make([]int, len(p.Blocks))
 	prev := prevState{block: -1, filter: -1}
 	prevEnd := p.tFrom
-	var weighted float64
+	var weighted, cadence float64
 	for k := range pl.Assignments {
 		a := &pl.Assignments[k]
 		if a.Block < 0 || a.Block >= len(p.Blocks) || p.Blocks[a.Block].ID != a.ID {
@@ -106,7 +106,7 @@ func Validate(pl *Plan, p *Problem) error {
 		if !a.Flip.IsZero() && (!gem || west || d.avoidFlip || a.FlipBefore < 1 || a.FlipBefore >= a.Frames) {
 			return bad(k, "flip before frame %d not allowed here", a.FlipBefore)
 		}
-		val := 0.0
+		val := d.point // a cadence point's value, whatever its frames
 		for j := 0; j < a.Frames; j++ {
 			t := p.rel(a.FrameStarts[j])
 			if j > 0 {
@@ -154,7 +154,8 @@ func Validate(pl *Plan, p *Problem) error {
 		if math.Abs(val-a.Value) > validateRelTol*math.Max(1, val) {
 			return bad(k, "value %v, frames give %v", a.Value, val)
 		}
-		weighted += val
+		weighted += val - d.point
+		cadence += d.point
 		// Run length (a run shorter than MinRun must be the one remainder
 		// run of a block that the plan completes; checked below).
 		if a.Frames > d.maxRun {
@@ -183,6 +184,9 @@ func Validate(pl *Plan, p *Problem) error {
 	if math.Abs(weighted-pl.Objective.Weighted) > validateRelTol*math.Max(1, weighted) {
 		return fmt.Errorf("%w: objective says %v weighted, assignments give %v", ErrInvalidPlan, pl.Objective.Weighted, weighted)
 	}
+	if math.Abs(cadence-pl.Objective.Cadence) > validateRelTol*math.Max(1, cadence) {
+		return fmt.Errorf("%w: objective says %v for cadence points, assignments give %v", ErrInvalidPlan, pl.Objective.Cadence, cadence)
+	}
 	bonus := 0.0
 	for b := range p.Blocks {
 		d := &p.bd[b]
@@ -191,7 +195,7 @@ func Validate(pl *Plan, p *Problem) error {
 		}
 	}
 	if math.Abs(bonus-pl.Objective.Bonus) > validateRelTol*math.Max(1, bonus) ||
-		math.Abs(pl.Objective.Value-pl.Objective.Weighted-pl.Objective.Bonus) > validateRelTol*math.Max(1, pl.Objective.Value) {
+		math.Abs(pl.Objective.Value-pl.Objective.Weighted-pl.Objective.Cadence-pl.Objective.Bonus) > validateRelTol*math.Max(1, pl.Objective.Value) {
 		return fmt.Errorf("%w: objective bonus %v (value %v), assignments give %v", ErrInvalidPlan, pl.Objective.Bonus, pl.Objective.Value, bonus)
 	}
 	return nil
@@ -206,15 +210,15 @@ func sideOf(a *Assignment) int8 {
 }
 
 // recordSeries checks a cadence block's spacing; it reports false when the
-// run at s is not Every +- Tolerance after the previous one.
+// run at s is not a whole number of Every (+- Tolerance) after the
+// previous one (a series may skip slots).
 func recordSeries(d *bdat, s float64, lastStart []float64, n []int, b int) bool {
 	if d.every <= 0 {
 		return true
 	}
 	ok := true
 	if n[b] > 0 {
-		g := s - lastStart[b]
-		ok = g >= d.every-d.tol-validateTimeTol && g <= d.every+d.tol+validateTimeTol
+		ok = onSlot(s-lastStart[b], d.every, d.tol, validateTimeTol)
 	}
 	n[b]++
 	lastStart[b] = s

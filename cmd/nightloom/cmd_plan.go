@@ -364,8 +364,12 @@ func runPlanReplan(args []string, stdout, stderr io.Writer) error {
 	if err != nil {
 		return err
 	}
-	fmt.Fprintf(stdout, "replanned from %s: of the old plan's assignments after that, %d kept unchanged and %d changed\n\n",
+	fmt.Fprintf(stdout, "replanned from %s: of the old plan's assignments after that, %d kept unchanged and %d changed\n",
 		pc.clock.full(resp.GetPlan().GetReplanFrom()), resp.GetAssignmentsKept(), resp.GetAssignmentsChanged())
+	if err := printRunChanges(stdout, pc.clock, resp); err != nil {
+		return err
+	}
+	fmt.Fprintln(stdout)
 	var after *time.Time
 	if !*all && resp.GetPlan().GetReplanFrom() != nil {
 		t := resp.GetPlan().GetReplanFrom().AsTime()
@@ -676,14 +680,72 @@ func printPlan(w io.Writer, p *pb.Plan, pc *planContext, after *time.Time) error
 			return err
 		}
 	}
+	if len(p.GetCadence()) > 0 {
+		fmt.Fprintf(w, "\ncadence series (%d):\n", len(p.GetCadence()))
+		tw = newTable(w)
+		fmt.Fprintln(tw, "block\ttarget\tevery\truns\tskipped slots (local time: reason)")
+		for _, cs := range p.GetCadence() {
+			b := pc.blocks[cs.GetBlockId()]
+			name := pc.names[b.GetTargetId()]
+			if name == "" {
+				name = "?"
+			}
+			var sk []string
+			for _, s := range cs.GetSkipped() {
+				sk = append(sk, fmt.Sprintf("%s: %s", c.hm(s.GetAt()),
+					strings.ReplaceAll(enumName(s.GetReason().String(), "SLOT_REASON_"), "_", " ")))
+			}
+			if len(sk) == 0 {
+				sk = []string{"none"}
+			}
+			fmt.Fprintf(tw, "%s\t%s\t%s\t%d\t%s\n", cs.GetBlockId(), name, dur(cs.GetInterval()), cs.GetRunsDelivered(),
+				strings.Join(sk, "; "))
+		}
+		if err := tw.Flush(); err != nil {
+			return err
+		}
+	}
 	if o := p.GetObjective(); o != nil {
-		fmt.Fprintf(w, "\nexposure %s, overheads %s, idle %s; objective %.0f (weighted exposure %.0f + completion bonus %.0f)\n",
+		fmt.Fprintf(w, "\nexposure %s, overheads %s, idle %s; objective %.0f (weighted exposure %.0f + cadence points %.0f + completion bonus %.0f)\n",
 			dur(o.GetExposureTime()), dur(o.GetOverheadTime()), dur(o.GetIdleTime()), o.GetTotal(), o.GetWeightedExposure(),
-			o.GetCompletionBonus())
+			o.GetCadencePoints(), o.GetCompletionBonus())
 	}
 	if s := p.GetSolver(); s != nil {
-		fmt.Fprintf(w, "solver %s: %s, %d iterations, seed %d, %d blocks on %d steps of %s\n", s.GetAlgorithm(),
-			dur(s.GetSolveTime()), s.GetIterations(), s.GetSeed(), s.GetBlocksConsidered(), s.GetGridSteps(), dur(s.GetGridStep()))
+		stop := ""
+		if r := s.GetStopReason(); r != "" {
+			stop = ", stopped: " + r
+		}
+		fmt.Fprintf(w, "solver %s: %s, %d iterations%s, seed %d, %d blocks on %d steps of %s\n", s.GetAlgorithm(),
+			dur(s.GetSolveTime()), s.GetIterations(), stop, s.GetSeed(), s.GetBlocksConsidered(), s.GetGridSteps(), dur(s.GetGridStep()))
 	}
 	return nil
+}
+
+// printRunChanges lists what a replan did to the old plan's runs that it
+// did not keep, and how many of the still-feasible ones it kept.
+func printRunChanges(w io.Writer, c clock, resp *pb.ReplanResponse) error {
+	kept := 0
+	for _, rc := range resp.GetRunChanges() {
+		if rc.GetChange() == pb.RunChangeKind_RUN_CHANGE_KIND_KEPT {
+			kept++
+		}
+	}
+	if len(resp.GetRunChanges()) == 0 {
+		return nil
+	}
+	fmt.Fprintf(w, "of the old runs starting after it, %d of %d still feasible kept; the others:\n", kept, resp.GetAssignmentsFeasible())
+	tw := newTable(w)
+	fmt.Fprintln(tw, "block\told start\tframes\tchange\tnew start\tframes\twhy")
+	for _, rc := range resp.GetRunChanges() {
+		if rc.GetChange() == pb.RunChangeKind_RUN_CHANGE_KIND_KEPT {
+			continue
+		}
+		ns := "-"
+		if rc.GetNewStart() != nil {
+			ns = c.hm(rc.GetNewStart())
+		}
+		fmt.Fprintf(tw, "%s\t%s\t%d\t%s\t%s\t%d\t%s\n", rc.GetBlockId(), c.hm(rc.GetStart()), rc.GetFrames(),
+			strings.ToLower(enumName(rc.GetChange().String(), "RUN_CHANGE_KIND_")), ns, rc.GetNewFrames(), rc.GetReason())
+	}
+	return tw.Flush()
 }

@@ -188,11 +188,15 @@ func demo(stdout, stderr io.Writer, outDir string, verbose bool, budget time.Dur
 	if err != nil {
 		return a.callErr("Replan", err)
 	}
-	fmt.Fprintf(stdout, "\n5. Replanned from %s: of the old plan's assignments after that, %d kept unchanged and %d changed\n\n",
+	fmt.Fprintf(stdout, "\n5. Replanned from %s: of the old plan's assignments after that, %d kept unchanged and %d changed\n",
 		mid.In(c.loc).Format("15:04 MST"), rr.GetAssignmentsKept(), rr.GetAssignmentsChanged())
 	if pc, err = a.loadPlanContext(site.GetId()); err != nil {
 		return err
 	}
+	if err := printRunChanges(stdout, pc.clock, rr); err != nil {
+		return err
+	}
+	fmt.Fprintln(stdout)
 	if err := printPlan(stdout, rr.GetPlan(), pc, &mid); err != nil {
 		return err
 	}

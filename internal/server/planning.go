@@ -59,6 +59,9 @@ type planJob struct {
 	previous   []*nightloomv1.Assignment // replans: the old version's runs after from, the starting timeline
 	args       planArgs
 	origin     nightloomv1.PlanOrigin
+	// report is set by the planner for a replan: what became of each of
+	// the old version's runs after from.
+	report *scheduler.ReplanReport
 }
 
 // schedulerPlanner is the planner of the daemon: scheduler.Solve (adaptive
@@ -206,10 +209,12 @@ func (schedulerPlanner) plan(ctx context.Context, job *planJob) (*nightloomv1.Pl
 			old.Assignments = append(old.Assignments, scheduler.Assignment{Block: i, ID: a.GetBlockId(),
 				Start: a.GetStart().AsTime(), End: a.GetEnd().AsTime(), Frames: int(a.GetFrames())})
 		}
-		sp, _, err = scheduler.Replan(prob, old, scheduler.State{Now: from, Executed: executed, Closures: closures})
+		var rep scheduler.ReplanReport
+		sp, rep, err = scheduler.Replan(prob, old, scheduler.State{Now: from, Executed: executed, Closures: closures})
 		if err != nil {
 			return nil, fmt.Errorf("server: replan: %w", err)
 		}
+		job.report = &rep
 	} else {
 		sp = scheduler.Solve(prob)
 	}
@@ -248,7 +253,58 @@ func (schedulerPlanner) plan(ctx context.Context, job *planJob) (*nightloomv1.Pl
 		Iterations: int64(sp.Iterations), Seed: job.args.seed, GridStep: durationpb.New(job.args.gridStep),
 		GridSteps: int32(grid.N), BlocksConsidered: int32(len(blocks)), StopReason: sp.Stopped}
 	body.Objective = objectiveOf(job, body, &sp.Objective)
+	for _, c := range sp.Cadence {
+		cs := &nightloomv1.CadenceSeries{BlockId: c.ID, Interval: durationpb.New(c.Every), RunsDelivered: int32(c.Delivered)}
+		for _, s := range c.Skipped {
+			cs.Skipped = append(cs.Skipped, &nightloomv1.SkippedSlot{At: timestamppb.New(s.At), Reason: slotReasonOf(s.Why)})
+		}
+		body.Cadence = append(body.Cadence, cs)
+	}
 	return body, nil
+}
+
+// slotReasonOf converts why a cadence slot was skipped.
+func slotReasonOf(w scheduler.SlotWhy) nightloomv1.SlotReason {
+	switch w {
+	case scheduler.SlotNotObservable:
+		return nightloomv1.SlotReason_SLOT_REASON_NOT_OBSERVABLE
+	case scheduler.SlotClosed:
+		return nightloomv1.SlotReason_SLOT_REASON_CLOSURE
+	case scheduler.SlotNoFrames:
+		return nightloomv1.SlotReason_SLOT_REASON_NO_FRAMES_LEFT
+	case scheduler.SlotLostToHigherValue:
+		return nightloomv1.SlotReason_SLOT_REASON_LOST_TO_HIGHER_VALUE
+	case scheduler.SlotPast:
+		return nightloomv1.SlotReason_SLOT_REASON_BEFORE_PLAN
+	}
+	return nightloomv1.SlotReason_SLOT_REASON_UNSPECIFIED
+}
+
+// runChangesOf converts a replan's per-run changes.
+func runChangesOf(rep *scheduler.ReplanReport) []*nightloomv1.RunChange {
+	if rep == nil {
+		return nil
+	}
+	var out []*nightloomv1.RunChange
+	for _, c := range rep.Runs {
+		rc := &nightloomv1.RunChange{BlockId: c.ID, Start: timestamppb.New(c.Start), Frames: int32(c.Frames),
+			NewFrames: int32(c.NewFrames), Reason: c.Why}
+		if !c.NewStart.IsZero() {
+			rc.NewStart = timestamppb.New(c.NewStart)
+		}
+		switch c.Change {
+		case scheduler.RunKept:
+			rc.Change = nightloomv1.RunChangeKind_RUN_CHANGE_KIND_KEPT
+		case scheduler.RunInfeasible:
+			rc.Change = nightloomv1.RunChangeKind_RUN_CHANGE_KIND_INFEASIBLE
+		case scheduler.RunMoved:
+			rc.Change = nightloomv1.RunChangeKind_RUN_CHANGE_KIND_MOVED
+		case scheduler.RunDropped:
+			rc.Change = nightloomv1.RunChangeKind_RUN_CHANGE_KIND_DROPPED
+		}
+		out = append(out, rc)
+	}
+	return out
 }
 
 // assignmentsOf turns one scheduler assignment into the API's: one, or
@@ -365,7 +421,7 @@ func objectiveOf(job *planJob, body *nightloomv1.Plan, o *scheduler.Objective) *
 		from = job.start
 	}
 	idle := job.end.Sub(from) - busy - closedTime(job.closures, from, job.end)
-	return &nightloomv1.ObjectiveParts{Total: o.Value, WeightedExposure: o.Weighted, CompletionBonus: o.Bonus,
+	return &nightloomv1.ObjectiveParts{Total: o.Value, WeightedExposure: o.Weighted, CompletionBonus: o.Bonus, CadencePoints: o.Cadence,
 		ExposureTime: durationpb.New(exposure), OverheadTime: durationpb.New(overhead), IdleTime: durationpb.New(max(0, idle))}
 }
 

@@ -17,6 +17,7 @@ import (
 	"github.com/nightloom/nightloom/constraints"
 	"github.com/nightloom/nightloom/internal/store"
 	nightloomv1 "github.com/nightloom/nightloom/proto/nightloom/v1"
+	"github.com/nightloom/nightloom/scheduler"
 )
 
 // planService implements PlanService (plan.proto). This file holds the
@@ -493,30 +494,37 @@ func (x *planService) Replan(ctx context.Context, req *nightloomv1.ReplanRequest
 	if gs := old.GetSolver().GetGridStep(); gs != nil && gs.AsDuration() >= MinGridStep && gs.AsDuration() <= MaxGridStep {
 		args.gridStep = gs.AsDuration()
 	}
-	p, kept, changed, err := s.replanLocked(ctx, site, old, from, req.GetClosures(), args, nightloomv1.PlanOrigin_PLAN_ORIGIN_REPLAN)
+	p, out, err := s.replanLocked(ctx, site, old, from, req.GetClosures(), args, nightloomv1.PlanOrigin_PLAN_ORIGIN_REPLAN)
 	if err != nil {
 		return nil, err
 	}
-	return &nightloomv1.ReplanResponse{Plan: p, AssignmentsKept: int32(kept), AssignmentsChanged: int32(changed)}, nil
+	return &nightloomv1.ReplanResponse{Plan: p, AssignmentsKept: int32(out.kept), AssignmentsChanged: int32(out.changed),
+		AssignmentsFeasible: int32(out.feasible), RunChanges: runChangesOf(out.report)}, nil
+}
+
+// replanOutcome is what a replan did to the old version's runs after from.
+type replanOutcome struct {
+	kept, changed, feasible int
+	report                  *scheduler.ReplanReport
 }
 
 // replanLocked plans old again from `from` with extra closures and stores
 // the result as a new version; the caller holds the site's lock and has
 // checked that old is the latest for its interval and from lies in it.
 func (s *Server) replanLocked(ctx context.Context, site *siteModel, old *nightloomv1.Plan, from time.Time,
-	extra []*nightloomv1.Closure, args planArgs, origin nightloomv1.PlanOrigin) (*nightloomv1.Plan, int, int, error) {
+	extra []*nightloomv1.Closure, args planArgs, origin nightloomv1.PlanOrigin) (*nightloomv1.Plan, replanOutcome, error) {
 	cls := mergeClosures(append(append([]*nightloomv1.Closure(nil), old.GetClosures()...), extra...))
 	if len(cls) > MaxClosuresPerPlan {
-		return nil, 0, 0, fieldError("closures", "the plan would carry %d closures, at most %d", len(cls), MaxClosuresPerPlan)
+		return nil, replanOutcome{}, fieldError("closures", "the plan would carry %d closures, at most %d", len(cls), MaxClosuresPerPlan)
 	}
 	start, end := old.GetInterval().GetStart().AsTime(), old.GetInterval().GetEnd().AsTime()
 	blocks, err := s.openBlocks(ctx, site)
 	if err != nil {
-		return nil, 0, 0, err
+		return nil, replanOutcome{}, err
 	}
 	steps := int64((end.Sub(start) + args.gridStep - 1) / args.gridStep)
 	if bs := steps * int64(len(blocks)); bs > MaxBlockSteps {
-		return nil, 0, 0, failedPrecondition("%d open blocks x %d grid steps exceed %d block-steps", len(blocks), steps, MaxBlockSteps)
+		return nil, replanOutcome{}, failedPrecondition("%d open blocks x %d grid steps exceed %d block-steps", len(blocks), steps, MaxBlockSteps)
 	}
 
 	// What stays: runs over before `from`, as their progress reports say
@@ -526,7 +534,7 @@ func (s *Server) replanLocked(ctx context.Context, site *siteModel, old *nightlo
 	// fit, its conditions recomputed).
 	reports, err := s.db.ReportsEndingAfter(ctx, site.pb.GetId(), start)
 	if err != nil {
-		return nil, 0, 0, err
+		return nil, replanOutcome{}, err
 	}
 	targets := map[string]*constraints.Target{}
 	for _, b := range blocks {
@@ -565,7 +573,7 @@ func (s *Server) replanLocked(ctx context.Context, site *siteModel, old *nightlo
 			}
 			t, err := targetOf(a.GetBlockId())
 			if err != nil {
-				return nil, 0, 0, err
+				return nil, replanOutcome{}, err
 			}
 			kept = append(kept, asReported(site, a, t, rep))
 			continue
@@ -586,7 +594,7 @@ func (s *Server) replanLocked(ctx context.Context, site *siteModel, old *nightlo
 		} else {
 			t, err := targetOf(a.GetBlockId())
 			if err != nil {
-				return nil, 0, 0, err
+				return nil, replanOutcome{}, err
 			}
 			inProgress = truncateAssignment(site, a, t, cut)
 		}
@@ -610,13 +618,13 @@ func (s *Server) replanLocked(ctx context.Context, site *siteModel, old *nightlo
 	body, err := s.planner.plan(ctx, job)
 	s.metrics.observeSolve(strings.ToLower(strings.TrimPrefix(origin.String(), "PLAN_ORIGIN_")), time.Since(began))
 	if err != nil {
-		return nil, 0, 0, err
+		return nil, replanOutcome{}, err
 	}
 	body.SiteId, body.Origin, body.PreviousPlanId = site.pb.GetId(), origin, old.GetId()
 	body.ReplanFrom, body.Night, body.Closures = timestamppb.New(from), old.GetNight(), cls
 	stored, err := s.storePlan(ctx, body)
 	if err != nil {
-		return nil, 0, 0, err
+		return nil, replanOutcome{}, err
 	}
 	// Old runs after `from`, kept unchanged or not.
 	type key struct {
@@ -639,7 +647,11 @@ func (s *Server) replanLocked(ctx context.Context, site *siteModel, old *nightlo
 			changedN++
 		}
 	}
-	return stored, keptN, changedN, nil
+	out := replanOutcome{kept: keptN, changed: changedN, report: job.report}
+	if job.report != nil {
+		out.feasible = job.report.Feasible
+	}
+	return stored, out, nil
 }
 
 // reportSlack is how early before an assignment's preparations a report's
@@ -941,7 +953,7 @@ func (s *Server) replanForQueued(ctx context.Context, siteID string) error {
 	if gs := old.GetSolver().GetGridStep(); gs != nil && gs.AsDuration() >= MinGridStep && gs.AsDuration() <= MaxGridStep {
 		args.gridStep = gs.AsDuration()
 	}
-	p, _, _, err := s.replanLocked(ctx, site, old, from, nil, args, nightloomv1.PlanOrigin_PLAN_ORIGIN_QUEUED_BLOCK)
+	p, _, err := s.replanLocked(ctx, site, old, from, nil, args, nightloomv1.PlanOrigin_PLAN_ORIGIN_QUEUED_BLOCK)
 	if err != nil {
 		return err
 	}

@@ -399,6 +399,22 @@ func TestPlanLifecycle(t *testing.T) {
 	if rp.GetAssignmentsKept()+rp.GetAssignmentsChanged() == 0 {
 		t.Errorf("replan counted no old assignment after from")
 	}
+	// Every old run starting after from is explained, with a reason unless
+	// kept; the kept ones are among the feasible ones.
+	keptRuns := 0
+	for _, rc := range rp.GetRunChanges() {
+		switch {
+		case rc.GetChange() == nightloomv1.RunChangeKind_RUN_CHANGE_KIND_UNSPECIFIED:
+			t.Errorf("run change without a kind: %v", rc)
+		case rc.GetChange() == nightloomv1.RunChangeKind_RUN_CHANGE_KIND_KEPT:
+			keptRuns++
+		case rc.GetReason() == "":
+			t.Errorf("run change without a reason: %v", rc)
+		}
+	}
+	if keptRuns > int(rp.GetAssignmentsFeasible()) {
+		t.Errorf("%d runs kept of %d feasible", keptRuns, rp.GetAssignmentsFeasible())
+	}
 	// Replanning the superseded version is refused.
 	_, err = e.plans.Replan(op, &nightloomv1.ReplanRequest{SiteId: site, PlanId: p1.GetId(), From: ts(from)})
 	wantCode(t, err, codes.FailedPrecondition, "Replan of a superseded plan")
@@ -732,6 +748,21 @@ func TestPlanFlipCadenceDither(t *testing.T) {
 	}
 	if cadRuns < 2 {
 		t.Errorf("cadence block ran %d times", cadRuns)
+	}
+	// The plan reports the series: the runs delivered, and a reason for
+	// every skipped slot.
+	if len(p.GetCadence()) != 1 || p.GetCadence()[0].GetBlockId() != cadID || int(p.GetCadence()[0].GetRunsDelivered()) != cadRuns {
+		t.Errorf("cadence series %v, want %s with %d runs", p.GetCadence(), cadID, cadRuns)
+	}
+	for _, cs := range p.GetCadence() {
+		for _, s := range cs.GetSkipped() {
+			if s.GetReason() == nightloomv1.SlotReason_SLOT_REASON_UNSPECIFIED || s.GetAt() == nil {
+				t.Errorf("skipped slot without a reason: %v", s)
+			}
+		}
+	}
+	if o := p.GetObjective(); o.GetCadencePoints() <= 0 {
+		t.Errorf("objective without cadence points: %v", o)
 	}
 }
 

@@ -26,6 +26,72 @@ const (
 	_ = protoimpl.EnforceVersion(protoimpl.MaxVersion - 20)
 )
 
+// Why a slot of a cadence series has no run.
+type SlotReason int32
+
+const (
+	// Not known.
+	SlotReason_SLOT_REASON_UNSPECIFIED SlotReason = 0
+	// No run of the block's shortest length fits in its observable time
+	// within the slot's tolerance.
+	SlotReason_SLOT_REASON_NOT_OBSERVABLE SlotReason = 1
+	// A closure covers the slot.
+	SlotReason_SLOT_REASON_CLOSURE SlotReason = 2
+	// The block's frames are all planned.
+	SlotReason_SLOT_REASON_NO_FRAMES_LEFT SlotReason = 3
+	// A run would fit, but the time went to runs worth more than the point.
+	SlotReason_SLOT_REASON_LOST_TO_HIGHER_VALUE SlotReason = 4
+	// The slot lies before the plan's start.
+	SlotReason_SLOT_REASON_BEFORE_PLAN SlotReason = 5
+)
+
+// Enum value maps for SlotReason.
+var (
+	SlotReason_name = map[int32]string{
+		0: "SLOT_REASON_UNSPECIFIED",
+		1: "SLOT_REASON_NOT_OBSERVABLE",
+		2: "SLOT_REASON_CLOSURE",
+		3: "SLOT_REASON_NO_FRAMES_LEFT",
+		4: "SLOT_REASON_LOST_TO_HIGHER_VALUE",
+		5: "SLOT_REASON_BEFORE_PLAN",
+	}
+	SlotReason_value = map[string]int32{
+		"SLOT_REASON_UNSPECIFIED":          0,
+		"SLOT_REASON_NOT_OBSERVABLE":       1,
+		"SLOT_REASON_CLOSURE":              2,
+		"SLOT_REASON_NO_FRAMES_LEFT":       3,
+		"SLOT_REASON_LOST_TO_HIGHER_VALUE": 4,
+		"SLOT_REASON_BEFORE_PLAN":          5,
+	}
+)
+
+func (x SlotReason) Enum() *SlotReason {
+	p := new(SlotReason)
+	*p = x
+	return p
+}
+
+func (x SlotReason) String() string {
+	return protoimpl.X.EnumStringOf(x.Descriptor(), protoreflect.EnumNumber(x))
+}
+
+func (SlotReason) Descriptor() protoreflect.EnumDescriptor {
+	return file_nightloom_v1_plan_proto_enumTypes[0].Descriptor()
+}
+
+func (SlotReason) Type() protoreflect.EnumType {
+	return &file_nightloom_v1_plan_proto_enumTypes[0]
+}
+
+func (x SlotReason) Number() protoreflect.EnumNumber {
+	return protoreflect.EnumNumber(x)
+}
+
+// Deprecated: Use SlotReason.Descriptor instead.
+func (SlotReason) EnumDescriptor() ([]byte, []int) {
+	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{0}
+}
+
 // What made a plan version.
 type PlanOrigin int32
 
@@ -67,11 +133,11 @@ func (x PlanOrigin) String() string {
 }
 
 func (PlanOrigin) Descriptor() protoreflect.EnumDescriptor {
-	return file_nightloom_v1_plan_proto_enumTypes[0].Descriptor()
+	return file_nightloom_v1_plan_proto_enumTypes[1].Descriptor()
 }
 
 func (PlanOrigin) Type() protoreflect.EnumType {
-	return &file_nightloom_v1_plan_proto_enumTypes[0]
+	return &file_nightloom_v1_plan_proto_enumTypes[1]
 }
 
 func (x PlanOrigin) Number() protoreflect.EnumNumber {
@@ -80,7 +146,71 @@ func (x PlanOrigin) Number() protoreflect.EnumNumber {
 
 // Deprecated: Use PlanOrigin.Descriptor instead.
 func (PlanOrigin) EnumDescriptor() ([]byte, []int) {
-	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{0}
+	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{1}
+}
+
+// What a replan did to one old assignment.
+type RunChangeKind int32
+
+const (
+	// Not known.
+	RunChangeKind_RUN_CHANGE_KIND_UNSPECIFIED RunChangeKind = 0
+	// Kept: same block, start and frames.
+	RunChangeKind_RUN_CHANGE_KIND_KEPT RunChangeKind = 1
+	// No longer feasible: a closure, frames reported done, the runs before
+	// it or a cadence series changed.
+	RunChangeKind_RUN_CHANGE_KIND_INFEASIBLE RunChangeKind = 2
+	// Still feasible, but the block runs at another time or with other
+	// frames: the gain is worth more than the stability term.
+	RunChangeKind_RUN_CHANGE_KIND_MOVED RunChangeKind = 3
+	// Still feasible, but the block has no run left: its time went to runs
+	// worth more.
+	RunChangeKind_RUN_CHANGE_KIND_DROPPED RunChangeKind = 4
+)
+
+// Enum value maps for RunChangeKind.
+var (
+	RunChangeKind_name = map[int32]string{
+		0: "RUN_CHANGE_KIND_UNSPECIFIED",
+		1: "RUN_CHANGE_KIND_KEPT",
+		2: "RUN_CHANGE_KIND_INFEASIBLE",
+		3: "RUN_CHANGE_KIND_MOVED",
+		4: "RUN_CHANGE_KIND_DROPPED",
+	}
+	RunChangeKind_value = map[string]int32{
+		"RUN_CHANGE_KIND_UNSPECIFIED": 0,
+		"RUN_CHANGE_KIND_KEPT":        1,
+		"RUN_CHANGE_KIND_INFEASIBLE":  2,
+		"RUN_CHANGE_KIND_MOVED":       3,
+		"RUN_CHANGE_KIND_DROPPED":     4,
+	}
+)
+
+func (x RunChangeKind) Enum() *RunChangeKind {
+	p := new(RunChangeKind)
+	*p = x
+	return p
+}
+
+func (x RunChangeKind) String() string {
+	return protoimpl.X.EnumStringOf(x.Descriptor(), protoreflect.EnumNumber(x))
+}
+
+func (RunChangeKind) Descriptor() protoreflect.EnumDescriptor {
+	return file_nightloom_v1_plan_proto_enumTypes[2].Descriptor()
+}
+
+func (RunChangeKind) Type() protoreflect.EnumType {
+	return &file_nightloom_v1_plan_proto_enumTypes[2]
+}
+
+func (x RunChangeKind) Number() protoreflect.EnumNumber {
+	return protoreflect.EnumNumber(x)
+}
+
+// Deprecated: Use RunChangeKind.Descriptor instead.
+func (RunChangeKind) EnumDescriptor() ([]byte, []int) {
+	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{2}
 }
 
 // An interval in which the site cannot observe.
@@ -616,7 +746,9 @@ type SolverStats struct {
 	// Open blocks considered.
 	BlocksConsidered int32 `protobuf:"varint,7,opt,name=blocks_considered,json=blocksConsidered,proto3" json:"blocks_considered,omitempty"`
 	// What ended the search: "iterations" (its iteration count), "time
-	// budget" (time_budget ran out); empty for plans stored before this field.
+	// budget" (time_budget ran out), "converged" (no improvement worth
+	// keeping for a stretch of the search: the budget is a ceiling);
+	// empty for plans stored before this field.
 	StopReason    string `protobuf:"bytes,8,opt,name=stop_reason,json=stopReason,proto3" json:"stop_reason,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
@@ -712,7 +844,7 @@ func (x *SolverStats) GetStopReason() string {
 // scheduler package doc).
 type ObjectiveParts struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
-	// Objective value: weighted_exposure + completion_bonus.
+	// Objective value: weighted_exposure + cadence_points + completion_bonus.
 	Total float64 `protobuf:"fixed64,1,opt,name=total,proto3" json:"total,omitempty"`
 	// Useful exposure time in seconds, each second weighted by its block's
 	// priority, the quality of the instant and the block's urgency from the
@@ -726,7 +858,11 @@ type ObjectiveParts struct {
 	// readout and dithers).
 	OverheadTime *durationpb.Duration `protobuf:"bytes,5,opt,name=overhead_time,json=overheadTime,proto3" json:"overhead_time,omitempty"`
 	// Time in the interval when nothing runs and the site is not closed.
-	IdleTime      *durationpb.Duration `protobuf:"bytes,6,opt,name=idle_time,json=idleTime,proto3" json:"idle_time,omitempty"`
+	IdleTime *durationpb.Duration `protobuf:"bytes,6,opt,name=idle_time,json=idleTime,proto3" json:"idle_time,omitempty"`
+	// Value of the cadence points delivered (each run of a cadence block,
+	// valued above its exposure so that a missed slot costs more than its
+	// seconds), in the same unit.
+	CadencePoints float64 `protobuf:"fixed64,7,opt,name=cadence_points,json=cadencePoints,proto3" json:"cadence_points,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -803,6 +939,141 @@ func (x *ObjectiveParts) GetIdleTime() *durationpb.Duration {
 	return nil
 }
 
+func (x *ObjectiveParts) GetCadencePoints() float64 {
+	if x != nil {
+		return x.CadencePoints
+	}
+	return 0
+}
+
+// A slot of a cadence series without a run.
+type SkippedSlot struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Centre of the slot: a whole number of intervals from a delivered run.
+	At *timestamppb.Timestamp `protobuf:"bytes,1,opt,name=at,proto3" json:"at,omitempty"`
+	// Why the slot has no run.
+	Reason        SlotReason `protobuf:"varint,2,opt,name=reason,proto3,enum=nightloom.v1.SlotReason" json:"reason,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *SkippedSlot) Reset() {
+	*x = SkippedSlot{}
+	mi := &file_nightloom_v1_plan_proto_msgTypes[7]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *SkippedSlot) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*SkippedSlot) ProtoMessage() {}
+
+func (x *SkippedSlot) ProtoReflect() protoreflect.Message {
+	mi := &file_nightloom_v1_plan_proto_msgTypes[7]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use SkippedSlot.ProtoReflect.Descriptor instead.
+func (*SkippedSlot) Descriptor() ([]byte, []int) {
+	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{7}
+}
+
+func (x *SkippedSlot) GetAt() *timestamppb.Timestamp {
+	if x != nil {
+		return x.At
+	}
+	return nil
+}
+
+func (x *SkippedSlot) GetReason() SlotReason {
+	if x != nil {
+		return x.Reason
+	}
+	return SlotReason_SLOT_REASON_UNSPECIFIED
+}
+
+// What a plan delivers of one cadence block's series in the night.
+type CadenceSeries struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Id of the block.
+	BlockId string `protobuf:"bytes,1,opt,name=block_id,json=blockId,proto3" json:"block_id,omitempty"`
+	// The cadence interval.
+	Interval *durationpb.Duration `protobuf:"bytes,2,opt,name=interval,proto3" json:"interval,omitempty"`
+	// Runs (points) delivered, executed ones included.
+	RunsDelivered int32 `protobuf:"varint,3,opt,name=runs_delivered,json=runsDelivered,proto3" json:"runs_delivered,omitempty"`
+	// Every slot of the series without a run, in time order.
+	Skipped       []*SkippedSlot `protobuf:"bytes,4,rep,name=skipped,proto3" json:"skipped,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *CadenceSeries) Reset() {
+	*x = CadenceSeries{}
+	mi := &file_nightloom_v1_plan_proto_msgTypes[8]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *CadenceSeries) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*CadenceSeries) ProtoMessage() {}
+
+func (x *CadenceSeries) ProtoReflect() protoreflect.Message {
+	mi := &file_nightloom_v1_plan_proto_msgTypes[8]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use CadenceSeries.ProtoReflect.Descriptor instead.
+func (*CadenceSeries) Descriptor() ([]byte, []int) {
+	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{8}
+}
+
+func (x *CadenceSeries) GetBlockId() string {
+	if x != nil {
+		return x.BlockId
+	}
+	return ""
+}
+
+func (x *CadenceSeries) GetInterval() *durationpb.Duration {
+	if x != nil {
+		return x.Interval
+	}
+	return nil
+}
+
+func (x *CadenceSeries) GetRunsDelivered() int32 {
+	if x != nil {
+		return x.RunsDelivered
+	}
+	return 0
+}
+
+func (x *CadenceSeries) GetSkipped() []*SkippedSlot {
+	if x != nil {
+		return x.Skipped
+	}
+	return nil
+}
+
 // One version of the schedule of one site over one interval.
 type Plan struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
@@ -839,13 +1110,15 @@ type Plan struct {
 	AssignmentCount int32 `protobuf:"varint,15,opt,name=assignment_count,json=assignmentCount,proto3" json:"assignment_count,omitempty"`
 	// Number of unplaced blocks (set also in ListPlans summaries).
 	UnplacedCount int32 `protobuf:"varint,16,opt,name=unplaced_count,json=unplacedCount,proto3" json:"unplaced_count,omitempty"`
+	// Per cadence block with a run: points delivered and skipped slots.
+	Cadence       []*CadenceSeries `protobuf:"bytes,17,rep,name=cadence,proto3" json:"cadence,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
 
 func (x *Plan) Reset() {
 	*x = Plan{}
-	mi := &file_nightloom_v1_plan_proto_msgTypes[7]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[9]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -857,7 +1130,7 @@ func (x *Plan) String() string {
 func (*Plan) ProtoMessage() {}
 
 func (x *Plan) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_plan_proto_msgTypes[7]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[9]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -870,7 +1143,7 @@ func (x *Plan) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use Plan.ProtoReflect.Descriptor instead.
 func (*Plan) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{7}
+	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{9}
 }
 
 func (x *Plan) GetId() string {
@@ -985,6 +1258,13 @@ func (x *Plan) GetUnplacedCount() int32 {
 	return 0
 }
 
+func (x *Plan) GetCadence() []*CadenceSeries {
+	if x != nil {
+		return x.Cadence
+	}
+	return nil
+}
+
 // Request of MakePlan.
 type MakePlanRequest struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
@@ -1020,7 +1300,7 @@ type MakePlanRequest struct {
 
 func (x *MakePlanRequest) Reset() {
 	*x = MakePlanRequest{}
-	mi := &file_nightloom_v1_plan_proto_msgTypes[8]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[10]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1032,7 +1312,7 @@ func (x *MakePlanRequest) String() string {
 func (*MakePlanRequest) ProtoMessage() {}
 
 func (x *MakePlanRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_plan_proto_msgTypes[8]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[10]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1045,7 +1325,7 @@ func (x *MakePlanRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use MakePlanRequest.ProtoReflect.Descriptor instead.
 func (*MakePlanRequest) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{8}
+	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{10}
 }
 
 func (x *MakePlanRequest) GetSiteId() string {
@@ -1154,7 +1434,7 @@ type MakePlanResponse struct {
 
 func (x *MakePlanResponse) Reset() {
 	*x = MakePlanResponse{}
-	mi := &file_nightloom_v1_plan_proto_msgTypes[9]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[11]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1166,7 +1446,7 @@ func (x *MakePlanResponse) String() string {
 func (*MakePlanResponse) ProtoMessage() {}
 
 func (x *MakePlanResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_plan_proto_msgTypes[9]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[11]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1179,7 +1459,7 @@ func (x *MakePlanResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use MakePlanResponse.ProtoReflect.Descriptor instead.
 func (*MakePlanResponse) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{9}
+	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{11}
 }
 
 func (x *MakePlanResponse) GetPlans() []*Plan {
@@ -1200,7 +1480,7 @@ type GetPlanRequest struct {
 
 func (x *GetPlanRequest) Reset() {
 	*x = GetPlanRequest{}
-	mi := &file_nightloom_v1_plan_proto_msgTypes[10]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[12]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1212,7 +1492,7 @@ func (x *GetPlanRequest) String() string {
 func (*GetPlanRequest) ProtoMessage() {}
 
 func (x *GetPlanRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_plan_proto_msgTypes[10]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[12]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1225,7 +1505,7 @@ func (x *GetPlanRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use GetPlanRequest.ProtoReflect.Descriptor instead.
 func (*GetPlanRequest) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{10}
+	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{12}
 }
 
 func (x *GetPlanRequest) GetPlanId() string {
@@ -1246,7 +1526,7 @@ type GetPlanResponse struct {
 
 func (x *GetPlanResponse) Reset() {
 	*x = GetPlanResponse{}
-	mi := &file_nightloom_v1_plan_proto_msgTypes[11]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[13]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1258,7 +1538,7 @@ func (x *GetPlanResponse) String() string {
 func (*GetPlanResponse) ProtoMessage() {}
 
 func (x *GetPlanResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_plan_proto_msgTypes[11]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[13]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1271,7 +1551,7 @@ func (x *GetPlanResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use GetPlanResponse.ProtoReflect.Descriptor instead.
 func (*GetPlanResponse) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{11}
+	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{13}
 }
 
 func (x *GetPlanResponse) GetPlan() *Plan {
@@ -1298,7 +1578,7 @@ type ListPlansRequest struct {
 
 func (x *ListPlansRequest) Reset() {
 	*x = ListPlansRequest{}
-	mi := &file_nightloom_v1_plan_proto_msgTypes[12]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[14]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1310,7 +1590,7 @@ func (x *ListPlansRequest) String() string {
 func (*ListPlansRequest) ProtoMessage() {}
 
 func (x *ListPlansRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_plan_proto_msgTypes[12]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[14]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1323,7 +1603,7 @@ func (x *ListPlansRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ListPlansRequest.ProtoReflect.Descriptor instead.
 func (*ListPlansRequest) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{12}
+	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{14}
 }
 
 func (x *ListPlansRequest) GetSiteId() string {
@@ -1367,7 +1647,7 @@ type ListPlansResponse struct {
 
 func (x *ListPlansResponse) Reset() {
 	*x = ListPlansResponse{}
-	mi := &file_nightloom_v1_plan_proto_msgTypes[13]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[15]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1379,7 +1659,7 @@ func (x *ListPlansResponse) String() string {
 func (*ListPlansResponse) ProtoMessage() {}
 
 func (x *ListPlansResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_plan_proto_msgTypes[13]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[15]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1392,7 +1672,7 @@ func (x *ListPlansResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ListPlansResponse.ProtoReflect.Descriptor instead.
 func (*ListPlansResponse) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{13}
+	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{15}
 }
 
 func (x *ListPlansResponse) GetPlans() []*Plan {
@@ -1434,7 +1714,7 @@ type ReplanRequest struct {
 
 func (x *ReplanRequest) Reset() {
 	*x = ReplanRequest{}
-	mi := &file_nightloom_v1_plan_proto_msgTypes[14]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[16]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1446,7 +1726,7 @@ func (x *ReplanRequest) String() string {
 func (*ReplanRequest) ProtoMessage() {}
 
 func (x *ReplanRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_plan_proto_msgTypes[14]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[16]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1459,7 +1739,7 @@ func (x *ReplanRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ReplanRequest.ProtoReflect.Descriptor instead.
 func (*ReplanRequest) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{14}
+	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{16}
 }
 
 func (x *ReplanRequest) GetSiteId() string {
@@ -1513,13 +1793,19 @@ type ReplanResponse struct {
 	AssignmentsKept int32 `protobuf:"varint,2,opt,name=assignments_kept,json=assignmentsKept,proto3" json:"assignments_kept,omitempty"`
 	// Assignments of the old plan after `from` moved, shortened or dropped.
 	AssignmentsChanged int32 `protobuf:"varint,3,opt,name=assignments_changed,json=assignmentsChanged,proto3" json:"assignments_changed,omitempty"`
-	unknownFields      protoimpl.UnknownFields
-	sizeCache          protoimpl.SizeCache
+	// Assignments of the old plan starting after `from` that were still
+	// feasible in the new state (the ones the replan could keep).
+	AssignmentsFeasible int32 `protobuf:"varint,4,opt,name=assignments_feasible,json=assignmentsFeasible,proto3" json:"assignments_feasible,omitempty"`
+	// What the replan did to each assignment of the old plan starting after
+	// `from`, and why.
+	RunChanges    []*RunChange `protobuf:"bytes,5,rep,name=run_changes,json=runChanges,proto3" json:"run_changes,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
 }
 
 func (x *ReplanResponse) Reset() {
 	*x = ReplanResponse{}
-	mi := &file_nightloom_v1_plan_proto_msgTypes[15]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[17]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1531,7 +1817,7 @@ func (x *ReplanResponse) String() string {
 func (*ReplanResponse) ProtoMessage() {}
 
 func (x *ReplanResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_plan_proto_msgTypes[15]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[17]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1544,7 +1830,7 @@ func (x *ReplanResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ReplanResponse.ProtoReflect.Descriptor instead.
 func (*ReplanResponse) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{15}
+	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{17}
 }
 
 func (x *ReplanResponse) GetPlan() *Plan {
@@ -1568,6 +1854,120 @@ func (x *ReplanResponse) GetAssignmentsChanged() int32 {
 	return 0
 }
 
+func (x *ReplanResponse) GetAssignmentsFeasible() int32 {
+	if x != nil {
+		return x.AssignmentsFeasible
+	}
+	return 0
+}
+
+func (x *ReplanResponse) GetRunChanges() []*RunChange {
+	if x != nil {
+		return x.RunChanges
+	}
+	return nil
+}
+
+// One old assignment in a replan.
+type RunChange struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Id of the block.
+	BlockId string `protobuf:"bytes,1,opt,name=block_id,json=blockId,proto3" json:"block_id,omitempty"`
+	// The old start (first exposure).
+	Start *timestamppb.Timestamp `protobuf:"bytes,2,opt,name=start,proto3" json:"start,omitempty"`
+	// The old frames.
+	Frames int32 `protobuf:"varint,3,opt,name=frames,proto3" json:"frames,omitempty"`
+	// What happened to it.
+	Change RunChangeKind `protobuf:"varint,4,opt,name=change,proto3,enum=nightloom.v1.RunChangeKind" json:"change,omitempty"`
+	// The block's new run nearest to the old start; unset when none.
+	NewStart *timestamppb.Timestamp `protobuf:"bytes,5,opt,name=new_start,json=newStart,proto3" json:"new_start,omitempty"`
+	// Frames of that new run; 0 when none.
+	NewFrames int32 `protobuf:"varint,6,opt,name=new_frames,json=newFrames,proto3" json:"new_frames,omitempty"`
+	// Why, in words; empty when kept.
+	Reason        string `protobuf:"bytes,7,opt,name=reason,proto3" json:"reason,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *RunChange) Reset() {
+	*x = RunChange{}
+	mi := &file_nightloom_v1_plan_proto_msgTypes[18]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *RunChange) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*RunChange) ProtoMessage() {}
+
+func (x *RunChange) ProtoReflect() protoreflect.Message {
+	mi := &file_nightloom_v1_plan_proto_msgTypes[18]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use RunChange.ProtoReflect.Descriptor instead.
+func (*RunChange) Descriptor() ([]byte, []int) {
+	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{18}
+}
+
+func (x *RunChange) GetBlockId() string {
+	if x != nil {
+		return x.BlockId
+	}
+	return ""
+}
+
+func (x *RunChange) GetStart() *timestamppb.Timestamp {
+	if x != nil {
+		return x.Start
+	}
+	return nil
+}
+
+func (x *RunChange) GetFrames() int32 {
+	if x != nil {
+		return x.Frames
+	}
+	return 0
+}
+
+func (x *RunChange) GetChange() RunChangeKind {
+	if x != nil {
+		return x.Change
+	}
+	return RunChangeKind_RUN_CHANGE_KIND_UNSPECIFIED
+}
+
+func (x *RunChange) GetNewStart() *timestamppb.Timestamp {
+	if x != nil {
+		return x.NewStart
+	}
+	return nil
+}
+
+func (x *RunChange) GetNewFrames() int32 {
+	if x != nil {
+		return x.NewFrames
+	}
+	return 0
+}
+
+func (x *RunChange) GetReason() string {
+	if x != nil {
+		return x.Reason
+	}
+	return ""
+}
+
 // The telescope's position in horizontal coordinates.
 type HorizontalPosition struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
@@ -1581,7 +1981,7 @@ type HorizontalPosition struct {
 
 func (x *HorizontalPosition) Reset() {
 	*x = HorizontalPosition{}
-	mi := &file_nightloom_v1_plan_proto_msgTypes[16]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[19]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1593,7 +1993,7 @@ func (x *HorizontalPosition) String() string {
 func (*HorizontalPosition) ProtoMessage() {}
 
 func (x *HorizontalPosition) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_plan_proto_msgTypes[16]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[19]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1606,7 +2006,7 @@ func (x *HorizontalPosition) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use HorizontalPosition.ProtoReflect.Descriptor instead.
 func (*HorizontalPosition) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{16}
+	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{19}
 }
 
 func (x *HorizontalPosition) GetAltitudeDeg() float64 {
@@ -1639,7 +2039,7 @@ type TelescopeState struct {
 
 func (x *TelescopeState) Reset() {
 	*x = TelescopeState{}
-	mi := &file_nightloom_v1_plan_proto_msgTypes[17]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[20]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1651,7 +2051,7 @@ func (x *TelescopeState) String() string {
 func (*TelescopeState) ProtoMessage() {}
 
 func (x *TelescopeState) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_plan_proto_msgTypes[17]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[20]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1664,7 +2064,7 @@ func (x *TelescopeState) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use TelescopeState.ProtoReflect.Descriptor instead.
 func (*TelescopeState) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{17}
+	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{20}
 }
 
 func (x *TelescopeState) GetPosition() *HorizontalPosition {
@@ -1703,7 +2103,7 @@ type NextAssignmentRequest struct {
 
 func (x *NextAssignmentRequest) Reset() {
 	*x = NextAssignmentRequest{}
-	mi := &file_nightloom_v1_plan_proto_msgTypes[18]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[21]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1715,7 +2115,7 @@ func (x *NextAssignmentRequest) String() string {
 func (*NextAssignmentRequest) ProtoMessage() {}
 
 func (x *NextAssignmentRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_plan_proto_msgTypes[18]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[21]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1728,7 +2128,7 @@ func (x *NextAssignmentRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use NextAssignmentRequest.ProtoReflect.Descriptor instead.
 func (*NextAssignmentRequest) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{18}
+	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{21}
 }
 
 func (x *NextAssignmentRequest) GetSiteId() string {
@@ -1772,7 +2172,7 @@ type NextAssignmentResponse struct {
 
 func (x *NextAssignmentResponse) Reset() {
 	*x = NextAssignmentResponse{}
-	mi := &file_nightloom_v1_plan_proto_msgTypes[19]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[22]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1784,7 +2184,7 @@ func (x *NextAssignmentResponse) String() string {
 func (*NextAssignmentResponse) ProtoMessage() {}
 
 func (x *NextAssignmentResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_plan_proto_msgTypes[19]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[22]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1797,7 +2197,7 @@ func (x *NextAssignmentResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use NextAssignmentResponse.ProtoReflect.Descriptor instead.
 func (*NextAssignmentResponse) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{19}
+	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{22}
 }
 
 func (x *NextAssignmentResponse) GetAssignment() *Assignment {
@@ -1841,7 +2241,7 @@ type WatchPlansRequest struct {
 
 func (x *WatchPlansRequest) Reset() {
 	*x = WatchPlansRequest{}
-	mi := &file_nightloom_v1_plan_proto_msgTypes[20]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[23]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1853,7 +2253,7 @@ func (x *WatchPlansRequest) String() string {
 func (*WatchPlansRequest) ProtoMessage() {}
 
 func (x *WatchPlansRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_plan_proto_msgTypes[20]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[23]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1866,7 +2266,7 @@ func (x *WatchPlansRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use WatchPlansRequest.ProtoReflect.Descriptor instead.
 func (*WatchPlansRequest) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{20}
+	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{23}
 }
 
 func (x *WatchPlansRequest) GetSiteId() string {
@@ -1894,7 +2294,7 @@ type WatchPlansResponse struct {
 
 func (x *WatchPlansResponse) Reset() {
 	*x = WatchPlansResponse{}
-	mi := &file_nightloom_v1_plan_proto_msgTypes[21]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[24]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1906,7 +2306,7 @@ func (x *WatchPlansResponse) String() string {
 func (*WatchPlansResponse) ProtoMessage() {}
 
 func (x *WatchPlansResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_plan_proto_msgTypes[21]
+	mi := &file_nightloom_v1_plan_proto_msgTypes[24]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1919,7 +2319,7 @@ func (x *WatchPlansResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use WatchPlansResponse.ProtoReflect.Descriptor instead.
 func (*WatchPlansResponse) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{21}
+	return file_nightloom_v1_plan_proto_rawDescGZIP(), []int{24}
 }
 
 func (x *WatchPlansResponse) GetPlan() *Plan {
@@ -1994,14 +2394,23 @@ const file_nightloom_v1_plan_proto_rawDesc = "" +
 	"grid_steps\x18\x06 \x01(\x05R\tgridSteps\x12+\n" +
 	"\x11blocks_considered\x18\a \x01(\x05R\x10blocksConsidered\x12\x1f\n" +
 	"\vstop_reason\x18\b \x01(\tR\n" +
-	"stopReason\"\xb6\x02\n" +
+	"stopReason\"\xdd\x02\n" +
 	"\x0eObjectiveParts\x12\x14\n" +
 	"\x05total\x18\x01 \x01(\x01R\x05total\x12+\n" +
 	"\x11weighted_exposure\x18\x02 \x01(\x01R\x10weightedExposure\x12)\n" +
 	"\x10completion_bonus\x18\x03 \x01(\x01R\x0fcompletionBonus\x12>\n" +
 	"\rexposure_time\x18\x04 \x01(\v2\x19.google.protobuf.DurationR\fexposureTime\x12>\n" +
 	"\roverhead_time\x18\x05 \x01(\v2\x19.google.protobuf.DurationR\foverheadTime\x126\n" +
-	"\tidle_time\x18\x06 \x01(\v2\x19.google.protobuf.DurationR\bidleTime\"\xea\x05\n" +
+	"\tidle_time\x18\x06 \x01(\v2\x19.google.protobuf.DurationR\bidleTime\x12%\n" +
+	"\x0ecadence_points\x18\a \x01(\x01R\rcadencePoints\"k\n" +
+	"\vSkippedSlot\x12*\n" +
+	"\x02at\x18\x01 \x01(\v2\x1a.google.protobuf.TimestampR\x02at\x120\n" +
+	"\x06reason\x18\x02 \x01(\x0e2\x18.nightloom.v1.SlotReasonR\x06reason\"\xbd\x01\n" +
+	"\rCadenceSeries\x12\x19\n" +
+	"\bblock_id\x18\x01 \x01(\tR\ablockId\x125\n" +
+	"\binterval\x18\x02 \x01(\v2\x19.google.protobuf.DurationR\binterval\x12%\n" +
+	"\x0eruns_delivered\x18\x03 \x01(\x05R\rrunsDelivered\x123\n" +
+	"\askipped\x18\x04 \x03(\v2\x19.nightloom.v1.SkippedSlotR\askipped\"\xa1\x06\n" +
 	"\x04Plan\x12\x0e\n" +
 	"\x02id\x18\x01 \x01(\tR\x02id\x12\x17\n" +
 	"\asite_id\x18\x02 \x01(\tR\x06siteId\x12\x18\n" +
@@ -2021,7 +2430,8 @@ const file_nightloom_v1_plan_proto_rawDesc = "" +
 	"\x06solver\x18\r \x01(\v2\x19.nightloom.v1.SolverStatsR\x06solver\x12:\n" +
 	"\tobjective\x18\x0e \x01(\v2\x1c.nightloom.v1.ObjectivePartsR\tobjective\x12)\n" +
 	"\x10assignment_count\x18\x0f \x01(\x05R\x0fassignmentCount\x12%\n" +
-	"\x0eunplaced_count\x18\x10 \x01(\x05R\runplacedCount\"\xb5\x03\n" +
+	"\x0eunplaced_count\x18\x10 \x01(\x05R\runplacedCount\x125\n" +
+	"\acadence\x18\x11 \x03(\v2\x1b.nightloom.v1.CadenceSeriesR\acadence\"\xb5\x03\n" +
 	"\x0fMakePlanRequest\x12\x17\n" +
 	"\asite_id\x18\x01 \x01(\tR\x06siteId\x12/\n" +
 	"\x05night\x18\x02 \x01(\v2\x17.nightloom.v1.LocalDateH\x00R\x05night\x128\n" +
@@ -2057,11 +2467,23 @@ const file_nightloom_v1_plan_proto_rawDesc = "" +
 	"\bclosures\x18\x04 \x03(\v2\x15.nightloom.v1.ClosureR\bclosures\x12:\n" +
 	"\vtime_budget\x18\x05 \x01(\v2\x19.google.protobuf.DurationR\n" +
 	"timeBudget\x12\x12\n" +
-	"\x04seed\x18\x06 \x01(\x03R\x04seed\"\x94\x01\n" +
+	"\x04seed\x18\x06 \x01(\x03R\x04seed\"\x81\x02\n" +
 	"\x0eReplanResponse\x12&\n" +
 	"\x04plan\x18\x01 \x01(\v2\x12.nightloom.v1.PlanR\x04plan\x12)\n" +
 	"\x10assignments_kept\x18\x02 \x01(\x05R\x0fassignmentsKept\x12/\n" +
-	"\x13assignments_changed\x18\x03 \x01(\x05R\x12assignmentsChanged\"X\n" +
+	"\x13assignments_changed\x18\x03 \x01(\x05R\x12assignmentsChanged\x121\n" +
+	"\x14assignments_feasible\x18\x04 \x01(\x05R\x13assignmentsFeasible\x128\n" +
+	"\vrun_changes\x18\x05 \x03(\v2\x17.nightloom.v1.RunChangeR\n" +
+	"runChanges\"\x95\x02\n" +
+	"\tRunChange\x12\x19\n" +
+	"\bblock_id\x18\x01 \x01(\tR\ablockId\x120\n" +
+	"\x05start\x18\x02 \x01(\v2\x1a.google.protobuf.TimestampR\x05start\x12\x16\n" +
+	"\x06frames\x18\x03 \x01(\x05R\x06frames\x123\n" +
+	"\x06change\x18\x04 \x01(\x0e2\x1b.nightloom.v1.RunChangeKindR\x06change\x127\n" +
+	"\tnew_start\x18\x05 \x01(\v2\x1a.google.protobuf.TimestampR\bnewStart\x12\x1d\n" +
+	"\n" +
+	"new_frames\x18\x06 \x01(\x05R\tnewFrames\x12\x16\n" +
+	"\x06reason\x18\a \x01(\tR\x06reason\"X\n" +
 	"\x12HorizontalPosition\x12!\n" +
 	"\faltitude_deg\x18\x01 \x01(\x01R\valtitudeDeg\x12\x1f\n" +
 	"\vazimuth_deg\x18\x02 \x01(\x01R\n" +
@@ -2086,13 +2508,27 @@ const file_nightloom_v1_plan_proto_rawDesc = "" +
 	"\asite_id\x18\x01 \x01(\tR\x06siteId\x12!\n" +
 	"\fsend_current\x18\x02 \x01(\bR\vsendCurrent\"<\n" +
 	"\x12WatchPlansResponse\x12&\n" +
-	"\x04plan\x18\x01 \x01(\v2\x12.nightloom.v1.PlanR\x04plan*z\n" +
+	"\x04plan\x18\x01 \x01(\v2\x12.nightloom.v1.PlanR\x04plan*\xc5\x01\n" +
+	"\n" +
+	"SlotReason\x12\x1b\n" +
+	"\x17SLOT_REASON_UNSPECIFIED\x10\x00\x12\x1e\n" +
+	"\x1aSLOT_REASON_NOT_OBSERVABLE\x10\x01\x12\x17\n" +
+	"\x13SLOT_REASON_CLOSURE\x10\x02\x12\x1e\n" +
+	"\x1aSLOT_REASON_NO_FRAMES_LEFT\x10\x03\x12$\n" +
+	" SLOT_REASON_LOST_TO_HIGHER_VALUE\x10\x04\x12\x1b\n" +
+	"\x17SLOT_REASON_BEFORE_PLAN\x10\x05*z\n" +
 	"\n" +
 	"PlanOrigin\x12\x1b\n" +
 	"\x17PLAN_ORIGIN_UNSPECIFIED\x10\x00\x12\x19\n" +
 	"\x15PLAN_ORIGIN_MAKE_PLAN\x10\x01\x12\x16\n" +
 	"\x12PLAN_ORIGIN_REPLAN\x10\x02\x12\x1c\n" +
-	"\x18PLAN_ORIGIN_QUEUED_BLOCK\x10\x032\xe3\x03\n" +
+	"\x18PLAN_ORIGIN_QUEUED_BLOCK\x10\x03*\xa2\x01\n" +
+	"\rRunChangeKind\x12\x1f\n" +
+	"\x1bRUN_CHANGE_KIND_UNSPECIFIED\x10\x00\x12\x18\n" +
+	"\x14RUN_CHANGE_KIND_KEPT\x10\x01\x12\x1e\n" +
+	"\x1aRUN_CHANGE_KIND_INFEASIBLE\x10\x02\x12\x19\n" +
+	"\x15RUN_CHANGE_KIND_MOVED\x10\x03\x12\x1b\n" +
+	"\x17RUN_CHANGE_KIND_DROPPED\x10\x042\xe3\x03\n" +
 	"\vPlanService\x12I\n" +
 	"\bMakePlan\x12\x1d.nightloom.v1.MakePlanRequest\x1a\x1e.nightloom.v1.MakePlanResponse\x12F\n" +
 	"\aGetPlan\x12\x1c.nightloom.v1.GetPlanRequest\x1a\x1d.nightloom.v1.GetPlanResponse\x12L\n" +
@@ -2114,109 +2550,123 @@ func file_nightloom_v1_plan_proto_rawDescGZIP() []byte {
 	return file_nightloom_v1_plan_proto_rawDescData
 }
 
-var file_nightloom_v1_plan_proto_enumTypes = make([]protoimpl.EnumInfo, 1)
-var file_nightloom_v1_plan_proto_msgTypes = make([]protoimpl.MessageInfo, 22)
+var file_nightloom_v1_plan_proto_enumTypes = make([]protoimpl.EnumInfo, 3)
+var file_nightloom_v1_plan_proto_msgTypes = make([]protoimpl.MessageInfo, 25)
 var file_nightloom_v1_plan_proto_goTypes = []any{
-	(PlanOrigin)(0),                // 0: nightloom.v1.PlanOrigin
-	(*Closure)(nil),                // 1: nightloom.v1.Closure
-	(*Overheads)(nil),              // 2: nightloom.v1.Overheads
-	(*PredictedConditions)(nil),    // 3: nightloom.v1.PredictedConditions
-	(*Assignment)(nil),             // 4: nightloom.v1.Assignment
-	(*Unplaced)(nil),               // 5: nightloom.v1.Unplaced
-	(*SolverStats)(nil),            // 6: nightloom.v1.SolverStats
-	(*ObjectiveParts)(nil),         // 7: nightloom.v1.ObjectiveParts
-	(*Plan)(nil),                   // 8: nightloom.v1.Plan
-	(*MakePlanRequest)(nil),        // 9: nightloom.v1.MakePlanRequest
-	(*MakePlanResponse)(nil),       // 10: nightloom.v1.MakePlanResponse
-	(*GetPlanRequest)(nil),         // 11: nightloom.v1.GetPlanRequest
-	(*GetPlanResponse)(nil),        // 12: nightloom.v1.GetPlanResponse
-	(*ListPlansRequest)(nil),       // 13: nightloom.v1.ListPlansRequest
-	(*ListPlansResponse)(nil),      // 14: nightloom.v1.ListPlansResponse
-	(*ReplanRequest)(nil),          // 15: nightloom.v1.ReplanRequest
-	(*ReplanResponse)(nil),         // 16: nightloom.v1.ReplanResponse
-	(*HorizontalPosition)(nil),     // 17: nightloom.v1.HorizontalPosition
-	(*TelescopeState)(nil),         // 18: nightloom.v1.TelescopeState
-	(*NextAssignmentRequest)(nil),  // 19: nightloom.v1.NextAssignmentRequest
-	(*NextAssignmentResponse)(nil), // 20: nightloom.v1.NextAssignmentResponse
-	(*WatchPlansRequest)(nil),      // 21: nightloom.v1.WatchPlansRequest
-	(*WatchPlansResponse)(nil),     // 22: nightloom.v1.WatchPlansResponse
-	(*TimeInterval)(nil),           // 23: nightloom.v1.TimeInterval
-	(*durationpb.Duration)(nil),    // 24: google.protobuf.Duration
-	(*timestamppb.Timestamp)(nil),  // 25: google.protobuf.Timestamp
-	(*Pointing)(nil),               // 26: nightloom.v1.Pointing
-	(*NonSiderealRate)(nil),        // 27: nightloom.v1.NonSiderealRate
-	(Reason)(0),                    // 28: nightloom.v1.Reason
-	(*LocalDate)(nil),              // 29: nightloom.v1.LocalDate
+	(SlotReason)(0),                // 0: nightloom.v1.SlotReason
+	(PlanOrigin)(0),                // 1: nightloom.v1.PlanOrigin
+	(RunChangeKind)(0),             // 2: nightloom.v1.RunChangeKind
+	(*Closure)(nil),                // 3: nightloom.v1.Closure
+	(*Overheads)(nil),              // 4: nightloom.v1.Overheads
+	(*PredictedConditions)(nil),    // 5: nightloom.v1.PredictedConditions
+	(*Assignment)(nil),             // 6: nightloom.v1.Assignment
+	(*Unplaced)(nil),               // 7: nightloom.v1.Unplaced
+	(*SolverStats)(nil),            // 8: nightloom.v1.SolverStats
+	(*ObjectiveParts)(nil),         // 9: nightloom.v1.ObjectiveParts
+	(*SkippedSlot)(nil),            // 10: nightloom.v1.SkippedSlot
+	(*CadenceSeries)(nil),          // 11: nightloom.v1.CadenceSeries
+	(*Plan)(nil),                   // 12: nightloom.v1.Plan
+	(*MakePlanRequest)(nil),        // 13: nightloom.v1.MakePlanRequest
+	(*MakePlanResponse)(nil),       // 14: nightloom.v1.MakePlanResponse
+	(*GetPlanRequest)(nil),         // 15: nightloom.v1.GetPlanRequest
+	(*GetPlanResponse)(nil),        // 16: nightloom.v1.GetPlanResponse
+	(*ListPlansRequest)(nil),       // 17: nightloom.v1.ListPlansRequest
+	(*ListPlansResponse)(nil),      // 18: nightloom.v1.ListPlansResponse
+	(*ReplanRequest)(nil),          // 19: nightloom.v1.ReplanRequest
+	(*ReplanResponse)(nil),         // 20: nightloom.v1.ReplanResponse
+	(*RunChange)(nil),              // 21: nightloom.v1.RunChange
+	(*HorizontalPosition)(nil),     // 22: nightloom.v1.HorizontalPosition
+	(*TelescopeState)(nil),         // 23: nightloom.v1.TelescopeState
+	(*NextAssignmentRequest)(nil),  // 24: nightloom.v1.NextAssignmentRequest
+	(*NextAssignmentResponse)(nil), // 25: nightloom.v1.NextAssignmentResponse
+	(*WatchPlansRequest)(nil),      // 26: nightloom.v1.WatchPlansRequest
+	(*WatchPlansResponse)(nil),     // 27: nightloom.v1.WatchPlansResponse
+	(*TimeInterval)(nil),           // 28: nightloom.v1.TimeInterval
+	(*durationpb.Duration)(nil),    // 29: google.protobuf.Duration
+	(*timestamppb.Timestamp)(nil),  // 30: google.protobuf.Timestamp
+	(*Pointing)(nil),               // 31: nightloom.v1.Pointing
+	(*NonSiderealRate)(nil),        // 32: nightloom.v1.NonSiderealRate
+	(Reason)(0),                    // 33: nightloom.v1.Reason
+	(*LocalDate)(nil),              // 34: nightloom.v1.LocalDate
 }
 var file_nightloom_v1_plan_proto_depIdxs = []int32{
-	23, // 0: nightloom.v1.Closure.interval:type_name -> nightloom.v1.TimeInterval
-	24, // 1: nightloom.v1.Overheads.slew:type_name -> google.protobuf.Duration
-	24, // 2: nightloom.v1.Overheads.settle:type_name -> google.protobuf.Duration
-	24, // 3: nightloom.v1.Overheads.acquisition:type_name -> google.protobuf.Duration
-	24, // 4: nightloom.v1.Overheads.filter_change:type_name -> google.protobuf.Duration
-	24, // 5: nightloom.v1.Overheads.focus:type_name -> google.protobuf.Duration
-	24, // 6: nightloom.v1.Overheads.meridian_flip:type_name -> google.protobuf.Duration
-	25, // 7: nightloom.v1.Assignment.prepare_start:type_name -> google.protobuf.Timestamp
-	25, // 8: nightloom.v1.Assignment.start:type_name -> google.protobuf.Timestamp
-	25, // 9: nightloom.v1.Assignment.end:type_name -> google.protobuf.Timestamp
-	24, // 10: nightloom.v1.Assignment.exposure:type_name -> google.protobuf.Duration
-	26, // 11: nightloom.v1.Assignment.pointing:type_name -> nightloom.v1.Pointing
-	27, // 12: nightloom.v1.Assignment.rate:type_name -> nightloom.v1.NonSiderealRate
-	2,  // 13: nightloom.v1.Assignment.overheads:type_name -> nightloom.v1.Overheads
-	3,  // 14: nightloom.v1.Assignment.conditions_at_start:type_name -> nightloom.v1.PredictedConditions
-	3,  // 15: nightloom.v1.Assignment.conditions_at_end:type_name -> nightloom.v1.PredictedConditions
-	28, // 16: nightloom.v1.Unplaced.reason:type_name -> nightloom.v1.Reason
-	24, // 17: nightloom.v1.SolverStats.solve_time:type_name -> google.protobuf.Duration
-	24, // 18: nightloom.v1.SolverStats.grid_step:type_name -> google.protobuf.Duration
-	24, // 19: nightloom.v1.ObjectiveParts.exposure_time:type_name -> google.protobuf.Duration
-	24, // 20: nightloom.v1.ObjectiveParts.overhead_time:type_name -> google.protobuf.Duration
-	24, // 21: nightloom.v1.ObjectiveParts.idle_time:type_name -> google.protobuf.Duration
-	23, // 22: nightloom.v1.Plan.interval:type_name -> nightloom.v1.TimeInterval
-	29, // 23: nightloom.v1.Plan.night:type_name -> nightloom.v1.LocalDate
-	0,  // 24: nightloom.v1.Plan.origin:type_name -> nightloom.v1.PlanOrigin
-	25, // 25: nightloom.v1.Plan.replan_from:type_name -> google.protobuf.Timestamp
-	25, // 26: nightloom.v1.Plan.create_time:type_name -> google.protobuf.Timestamp
-	4,  // 27: nightloom.v1.Plan.assignments:type_name -> nightloom.v1.Assignment
-	5,  // 28: nightloom.v1.Plan.unplaced:type_name -> nightloom.v1.Unplaced
-	1,  // 29: nightloom.v1.Plan.closures:type_name -> nightloom.v1.Closure
-	6,  // 30: nightloom.v1.Plan.solver:type_name -> nightloom.v1.SolverStats
-	7,  // 31: nightloom.v1.Plan.objective:type_name -> nightloom.v1.ObjectiveParts
-	29, // 32: nightloom.v1.MakePlanRequest.night:type_name -> nightloom.v1.LocalDate
-	23, // 33: nightloom.v1.MakePlanRequest.interval:type_name -> nightloom.v1.TimeInterval
-	24, // 34: nightloom.v1.MakePlanRequest.grid_step:type_name -> google.protobuf.Duration
-	24, // 35: nightloom.v1.MakePlanRequest.time_budget:type_name -> google.protobuf.Duration
-	1,  // 36: nightloom.v1.MakePlanRequest.closures:type_name -> nightloom.v1.Closure
-	8,  // 37: nightloom.v1.MakePlanResponse.plans:type_name -> nightloom.v1.Plan
-	8,  // 38: nightloom.v1.GetPlanResponse.plan:type_name -> nightloom.v1.Plan
-	29, // 39: nightloom.v1.ListPlansRequest.night:type_name -> nightloom.v1.LocalDate
-	8,  // 40: nightloom.v1.ListPlansResponse.plans:type_name -> nightloom.v1.Plan
-	25, // 41: nightloom.v1.ReplanRequest.from:type_name -> google.protobuf.Timestamp
-	1,  // 42: nightloom.v1.ReplanRequest.closures:type_name -> nightloom.v1.Closure
-	24, // 43: nightloom.v1.ReplanRequest.time_budget:type_name -> google.protobuf.Duration
-	8,  // 44: nightloom.v1.ReplanResponse.plan:type_name -> nightloom.v1.Plan
-	17, // 45: nightloom.v1.TelescopeState.position:type_name -> nightloom.v1.HorizontalPosition
-	25, // 46: nightloom.v1.TelescopeState.last_focus_time:type_name -> google.protobuf.Timestamp
-	25, // 47: nightloom.v1.NextAssignmentRequest.now:type_name -> google.protobuf.Timestamp
-	18, // 48: nightloom.v1.NextAssignmentRequest.state:type_name -> nightloom.v1.TelescopeState
-	4,  // 49: nightloom.v1.NextAssignmentResponse.assignment:type_name -> nightloom.v1.Assignment
-	8,  // 50: nightloom.v1.WatchPlansResponse.plan:type_name -> nightloom.v1.Plan
-	9,  // 51: nightloom.v1.PlanService.MakePlan:input_type -> nightloom.v1.MakePlanRequest
-	11, // 52: nightloom.v1.PlanService.GetPlan:input_type -> nightloom.v1.GetPlanRequest
-	13, // 53: nightloom.v1.PlanService.ListPlans:input_type -> nightloom.v1.ListPlansRequest
-	15, // 54: nightloom.v1.PlanService.Replan:input_type -> nightloom.v1.ReplanRequest
-	19, // 55: nightloom.v1.PlanService.NextAssignment:input_type -> nightloom.v1.NextAssignmentRequest
-	21, // 56: nightloom.v1.PlanService.WatchPlans:input_type -> nightloom.v1.WatchPlansRequest
-	10, // 57: nightloom.v1.PlanService.MakePlan:output_type -> nightloom.v1.MakePlanResponse
-	12, // 58: nightloom.v1.PlanService.GetPlan:output_type -> nightloom.v1.GetPlanResponse
-	14, // 59: nightloom.v1.PlanService.ListPlans:output_type -> nightloom.v1.ListPlansResponse
-	16, // 60: nightloom.v1.PlanService.Replan:output_type -> nightloom.v1.ReplanResponse
-	20, // 61: nightloom.v1.PlanService.NextAssignment:output_type -> nightloom.v1.NextAssignmentResponse
-	22, // 62: nightloom.v1.PlanService.WatchPlans:output_type -> nightloom.v1.WatchPlansResponse
-	57, // [57:63] is the sub-list for method output_type
-	51, // [51:57] is the sub-list for method input_type
-	51, // [51:51] is the sub-list for extension type_name
-	51, // [51:51] is the sub-list for extension extendee
-	0,  // [0:51] is the sub-list for field type_name
+	28, // 0: nightloom.v1.Closure.interval:type_name -> nightloom.v1.TimeInterval
+	29, // 1: nightloom.v1.Overheads.slew:type_name -> google.protobuf.Duration
+	29, // 2: nightloom.v1.Overheads.settle:type_name -> google.protobuf.Duration
+	29, // 3: nightloom.v1.Overheads.acquisition:type_name -> google.protobuf.Duration
+	29, // 4: nightloom.v1.Overheads.filter_change:type_name -> google.protobuf.Duration
+	29, // 5: nightloom.v1.Overheads.focus:type_name -> google.protobuf.Duration
+	29, // 6: nightloom.v1.Overheads.meridian_flip:type_name -> google.protobuf.Duration
+	30, // 7: nightloom.v1.Assignment.prepare_start:type_name -> google.protobuf.Timestamp
+	30, // 8: nightloom.v1.Assignment.start:type_name -> google.protobuf.Timestamp
+	30, // 9: nightloom.v1.Assignment.end:type_name -> google.protobuf.Timestamp
+	29, // 10: nightloom.v1.Assignment.exposure:type_name -> google.protobuf.Duration
+	31, // 11: nightloom.v1.Assignment.pointing:type_name -> nightloom.v1.Pointing
+	32, // 12: nightloom.v1.Assignment.rate:type_name -> nightloom.v1.NonSiderealRate
+	4,  // 13: nightloom.v1.Assignment.overheads:type_name -> nightloom.v1.Overheads
+	5,  // 14: nightloom.v1.Assignment.conditions_at_start:type_name -> nightloom.v1.PredictedConditions
+	5,  // 15: nightloom.v1.Assignment.conditions_at_end:type_name -> nightloom.v1.PredictedConditions
+	33, // 16: nightloom.v1.Unplaced.reason:type_name -> nightloom.v1.Reason
+	29, // 17: nightloom.v1.SolverStats.solve_time:type_name -> google.protobuf.Duration
+	29, // 18: nightloom.v1.SolverStats.grid_step:type_name -> google.protobuf.Duration
+	29, // 19: nightloom.v1.ObjectiveParts.exposure_time:type_name -> google.protobuf.Duration
+	29, // 20: nightloom.v1.ObjectiveParts.overhead_time:type_name -> google.protobuf.Duration
+	29, // 21: nightloom.v1.ObjectiveParts.idle_time:type_name -> google.protobuf.Duration
+	30, // 22: nightloom.v1.SkippedSlot.at:type_name -> google.protobuf.Timestamp
+	0,  // 23: nightloom.v1.SkippedSlot.reason:type_name -> nightloom.v1.SlotReason
+	29, // 24: nightloom.v1.CadenceSeries.interval:type_name -> google.protobuf.Duration
+	10, // 25: nightloom.v1.CadenceSeries.skipped:type_name -> nightloom.v1.SkippedSlot
+	28, // 26: nightloom.v1.Plan.interval:type_name -> nightloom.v1.TimeInterval
+	34, // 27: nightloom.v1.Plan.night:type_name -> nightloom.v1.LocalDate
+	1,  // 28: nightloom.v1.Plan.origin:type_name -> nightloom.v1.PlanOrigin
+	30, // 29: nightloom.v1.Plan.replan_from:type_name -> google.protobuf.Timestamp
+	30, // 30: nightloom.v1.Plan.create_time:type_name -> google.protobuf.Timestamp
+	6,  // 31: nightloom.v1.Plan.assignments:type_name -> nightloom.v1.Assignment
+	7,  // 32: nightloom.v1.Plan.unplaced:type_name -> nightloom.v1.Unplaced
+	3,  // 33: nightloom.v1.Plan.closures:type_name -> nightloom.v1.Closure
+	8,  // 34: nightloom.v1.Plan.solver:type_name -> nightloom.v1.SolverStats
+	9,  // 35: nightloom.v1.Plan.objective:type_name -> nightloom.v1.ObjectiveParts
+	11, // 36: nightloom.v1.Plan.cadence:type_name -> nightloom.v1.CadenceSeries
+	34, // 37: nightloom.v1.MakePlanRequest.night:type_name -> nightloom.v1.LocalDate
+	28, // 38: nightloom.v1.MakePlanRequest.interval:type_name -> nightloom.v1.TimeInterval
+	29, // 39: nightloom.v1.MakePlanRequest.grid_step:type_name -> google.protobuf.Duration
+	29, // 40: nightloom.v1.MakePlanRequest.time_budget:type_name -> google.protobuf.Duration
+	3,  // 41: nightloom.v1.MakePlanRequest.closures:type_name -> nightloom.v1.Closure
+	12, // 42: nightloom.v1.MakePlanResponse.plans:type_name -> nightloom.v1.Plan
+	12, // 43: nightloom.v1.GetPlanResponse.plan:type_name -> nightloom.v1.Plan
+	34, // 44: nightloom.v1.ListPlansRequest.night:type_name -> nightloom.v1.LocalDate
+	12, // 45: nightloom.v1.ListPlansResponse.plans:type_name -> nightloom.v1.Plan
+	30, // 46: nightloom.v1.ReplanRequest.from:type_name -> google.protobuf.Timestamp
+	3,  // 47: nightloom.v1.ReplanRequest.closures:type_name -> nightloom.v1.Closure
+	29, // 48: nightloom.v1.ReplanRequest.time_budget:type_name -> google.protobuf.Duration
+	12, // 49: nightloom.v1.ReplanResponse.plan:type_name -> nightloom.v1.Plan
+	21, // 50: nightloom.v1.ReplanResponse.run_changes:type_name -> nightloom.v1.RunChange
+	30, // 51: nightloom.v1.RunChange.start:type_name -> google.protobuf.Timestamp
+	2,  // 52: nightloom.v1.RunChange.change:type_name -> nightloom.v1.RunChangeKind
+	30, // 53: nightloom.v1.RunChange.new_start:type_name -> google.protobuf.Timestamp
+	22, // 54: nightloom.v1.TelescopeState.position:type_name -> nightloom.v1.HorizontalPosition
+	30, // 55: nightloom.v1.TelescopeState.last_focus_time:type_name -> google.protobuf.Timestamp
+	30, // 56: nightloom.v1.NextAssignmentRequest.now:type_name -> google.protobuf.Timestamp
+	23, // 57: nightloom.v1.NextAssignmentRequest.state:type_name -> nightloom.v1.TelescopeState
+	6,  // 58: nightloom.v1.NextAssignmentResponse.assignment:type_name -> nightloom.v1.Assignment
+	12, // 59: nightloom.v1.WatchPlansResponse.plan:type_name -> nightloom.v1.Plan
+	13, // 60: nightloom.v1.PlanService.MakePlan:input_type -> nightloom.v1.MakePlanRequest
+	15, // 61: nightloom.v1.PlanService.GetPlan:input_type -> nightloom.v1.GetPlanRequest
+	17, // 62: nightloom.v1.PlanService.ListPlans:input_type -> nightloom.v1.ListPlansRequest
+	19, // 63: nightloom.v1.PlanService.Replan:input_type -> nightloom.v1.ReplanRequest
+	24, // 64: nightloom.v1.PlanService.NextAssignment:input_type -> nightloom.v1.NextAssignmentRequest
+	26, // 65: nightloom.v1.PlanService.WatchPlans:input_type -> nightloom.v1.WatchPlansRequest
+	14, // 66: nightloom.v1.PlanService.MakePlan:output_type -> nightloom.v1.MakePlanResponse
+	16, // 67: nightloom.v1.PlanService.GetPlan:output_type -> nightloom.v1.GetPlanResponse
+	18, // 68: nightloom.v1.PlanService.ListPlans:output_type -> nightloom.v1.ListPlansResponse
+	20, // 69: nightloom.v1.PlanService.Replan:output_type -> nightloom.v1.ReplanResponse
+	25, // 70: nightloom.v1.PlanService.NextAssignment:output_type -> nightloom.v1.NextAssignmentResponse
+	27, // 71: nightloom.v1.PlanService.WatchPlans:output_type -> nightloom.v1.WatchPlansResponse
+	66, // [66:72] is the sub-list for method output_type
+	60, // [60:66] is the sub-list for method input_type
+	60, // [60:60] is the sub-list for extension type_name
+	60, // [60:60] is the sub-list for extension extendee
+	0,  // [0:60] is the sub-list for field type_name
 }
 
 func init() { file_nightloom_v1_plan_proto_init() }
@@ -2226,7 +2676,7 @@ func file_nightloom_v1_plan_proto_init() {
 	}
 	file_nightloom_v1_common_proto_init()
 	file_nightloom_v1_plan_proto_msgTypes[2].OneofWrappers = []any{}
-	file_nightloom_v1_plan_proto_msgTypes[8].OneofWrappers = []any{
+	file_nightloom_v1_plan_proto_msgTypes[10].OneofWrappers = []any{
 		(*MakePlanRequest_Night)(nil),
 		(*MakePlanRequest_Interval)(nil),
 	}
@@ -2235,8 +2685,8 @@ func file_nightloom_v1_plan_proto_init() {
 		File: protoimpl.DescBuilder{
 			GoPackagePath: reflect.TypeOf(x{}).PkgPath(),
 			RawDescriptor: unsafe.Slice(unsafe.StringData(file_nightloom_v1_plan_proto_rawDesc), len(file_nightloom_v1_plan_proto_rawDesc)),
-			NumEnums:      1,
-			NumMessages:   22,
+			NumEnums:      3,
+			NumMessages:   25,
 			NumExtensions: 0,
 			NumServices:   1,
 		},
