@@ -47,6 +47,7 @@ func (g *Grid) Evaluate(tr *Track, req Request) *Visibility {
 	k := site.Sky.ExtinctionV
 	dark := site.Sky.ZenithMag
 	v.TrailLimit = l.trailLimit
+	hTop := site.Horizon.top // cheapest exact test first: above every point, no lookup
 
 	for i := 0; i < n; i++ {
 		r := OK
@@ -61,7 +62,7 @@ func (g *Grid) Evaluate(tr *Track, req Request) *Visibility {
 			r = ReasonClosure
 		case !c.Darkness.Allows(g.Dark[i]):
 			r = ReasonDaylight
-		case alt < site.Horizon.AltitudeAt(float64(tr.Az[i])):
+		case alt < hTop && alt < site.Horizon.AltitudeAt(float64(tr.Az[i])):
 			r = ReasonBelowHorizon
 		case alt < minAlt:
 			r = ReasonAltitudeLow

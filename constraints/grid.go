@@ -50,9 +50,16 @@ type Grid struct {
 	Closed []bool
 
 	sunHD, moonHD []ephem.Vec3 // Sun and Moon in the local hour-angle frame
-	sky           []SkyStep
-	clock         []time.Duration // local time of day at each step
-	localDay      []time.Time     // local civil date at each step (midnight, UTC location)
+	// Per-step quantities hoisted out of the per-target loops, one array
+	// each (structure of arrays): cos and sin of the local apparent
+	// sidereal time, and the Sun's and Moon's hour-angle-frame unit vectors
+	// by component.
+	last, cosLAST, sinLAST []float64
+	sunX, sunY, sunZ       []float64
+	moonX, moonY, moonZ    []float64
+	sky                    []SkyStep
+	clock                  []time.Duration // local time of day at each step
+	localDay               []time.Time     // local civil date at each step (midnight, UTC location)
 }
 
 // NewGrid samples [start, end) every step (instants start + i*step).
@@ -82,6 +89,11 @@ func NewGrid(site *Site, start, end time.Time, step time.Duration, opts Options)
 	if !opts.NoSkyBrightness {
 		g.sky = make([]SkyStep, n)
 	}
+	soa := make([]float64, 9*n)
+	g.last = soa[8*n : 9*n : 9*n]
+	g.cosLAST, g.sinLAST = soa[0:n:n], soa[n:2*n:2*n]
+	g.sunX, g.sunY, g.sunZ = soa[2*n:3*n:3*n], soa[3*n:4*n:4*n], soa[4*n:5*n:5*n]
+	g.moonX, g.moonY, g.moonZ = soa[5*n:6*n:6*n], soa[6*n:7*n:7*n], soa[7*n:8*n:8*n]
 	loc := site.Location
 	if loc == nil {
 		loc = time.UTC
@@ -96,6 +108,10 @@ func NewGrid(site *Site, start, end time.Time, step time.Duration, opts Options)
 		g.MoonAlt[i], g.MoonAz[i], g.MoonDir[i] = moon.AltApparent, moon.Az, moon.OfDate
 		g.sunHD[i] = l.OfDateToHADec.MulVec(sun.OfDate)
 		g.moonHD[i] = l.OfDateToHADec.MulVec(moon.OfDate)
+		g.last[i] = l.LAST
+		g.sinLAST[i], g.cosLAST[i] = math.Sincos(l.LAST)
+		g.sunX[i], g.sunY[i], g.sunZ[i] = g.sunHD[i][0], g.sunHD[i][1], g.sunHD[i][2]
+		g.moonX[i], g.moonY[i], g.moonZ[i] = g.moonHD[i][0], g.moonHD[i][1], g.moonHD[i][2]
 		g.MoonIllum[i], _ = l.MoonIllumination()
 		g.MoonPhase[i] = math.Acos(clamp(2*g.MoonIllum[i]-1, -1, 1))
 		g.MoonDistKm[i] = l.MoonOfDate().Norm()

@@ -359,7 +359,12 @@ func (s *SkyStep) At(alt, az, moonSep, sunSep float64) float64 {
 	if alt < 0 {
 		alt = 0
 	}
-	sa := math.Sin(alt)
+	return s.atSin(math.Sin(alt), moonSep, sunSep)
+}
+
+// atSin is At for a target whose apparent altitude has the sine sa >= 0
+// (the grid has it already).
+func (s *SkyStep) atSin(sa, moonSep, sunSep float64) float64 {
 	x := 1 / math.Sqrt(1-ksAirmassCoeff+ksAirmassCoeff*sa*sa)
 	t := math.Exp(-s.extRate * x) // 10^(-0.4 k X)
 	b := s.darkC * x * t
