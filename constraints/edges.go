@@ -2,6 +2,7 @@ package constraints
 
 import (
 	"math"
+	"sync"
 	"time"
 
 	"github.com/nightloom/nightloom/ephem"
@@ -258,7 +259,7 @@ func (g *Grid) CheckAt(target *Target, req Request, t time.Time) Reason {
 }
 
 func (g *Grid) checkAt(target *Target, req Request, t time.Time) (Reason, *Grid, *Track) {
-	pg, err := NewGrid(g.Site, t, t.Add(MinStep), MinStep, g.Opts)
+	pg, err := g.pointGrid(t)
 	if err != nil {
 		return ReasonDate, nil, nil
 	}
@@ -414,4 +415,47 @@ func (c *certifier) estRate(x []float32, j int, floor float64) float64 {
 		}
 	}
 	return 3*m/c.h + floor
+}
+
+// maxPointGrids bounds the one-step grids a grid keeps (about 3 KB each).
+const maxPointGrids = 8192
+
+// pointCache keeps the one-step grids (the Sun, the Moon and the Earth's
+// orientation at one instant) that edge refinement evaluates, shared by
+// every block of the grid: blocks whose windows share an edge (twilight,
+// moonrise, a closure) bisect through the same instants, so each instant's
+// sky is computed once. Safe for concurrent use.
+type pointCache struct {
+	mu sync.Mutex
+	m  map[int64]*Grid
+}
+
+// pointGrid returns the one-step grid at t, from the cache when it has it.
+// A one-step grid is never modified after it is made.
+func (g *Grid) pointGrid(t time.Time) (*Grid, error) {
+	pc := g.points
+	if pc == nil {
+		return NewGrid(g.Site, t, t.Add(MinStep), MinStep, g.Opts)
+	}
+	key := t.UnixNano()
+	pc.mu.Lock()
+	pg := pc.m[key]
+	pc.mu.Unlock()
+	if pg != nil {
+		return pg, nil
+	}
+	pg, err := NewGrid(g.Site, t, t.Add(MinStep), MinStep, g.Opts)
+	if err != nil {
+		return nil, err
+	}
+	pg.points = nil // a point grid refines nothing itself
+	pc.mu.Lock()
+	if pc.m == nil {
+		pc.m = make(map[int64]*Grid)
+	}
+	if len(pc.m) < maxPointGrids {
+		pc.m[key] = pg
+	}
+	pc.mu.Unlock()
+	return pg, nil
 }

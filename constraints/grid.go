@@ -60,6 +60,7 @@ type Grid struct {
 	sky                    []SkyStep
 	clock                  []time.Duration // local time of day at each step
 	localDay               []time.Time     // local civil date at each step (midnight, UTC location)
+	points                 *pointCache     // one-step grids for edge refinement (Intervals)
 }
 
 // NewGrid samples [start, end) every step (instants start + i*step).
@@ -85,7 +86,7 @@ func NewGrid(site *Site, start, end time.Time, step time.Duration, opts Options)
 		MoonDir: make([]ephem.Vec3, n), MoonAlt: make([]float64, n), MoonAz: make([]float64, n),
 		MoonIllum: make([]float64, n), MoonPhase: make([]float64, n), MoonDistKm: make([]float64, n),
 		Dark: make([]Darkness, n), sunHD: make([]ephem.Vec3, n), moonHD: make([]ephem.Vec3, n), Closed: make([]bool, n), clock: make([]time.Duration, n),
-		localDay: make([]time.Time, n)}
+		localDay: make([]time.Time, n), points: &pointCache{}}
 	if !opts.NoSkyBrightness {
 		g.sky = make([]SkyStep, n)
 	}
