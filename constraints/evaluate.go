@@ -106,14 +106,14 @@ func quality(x, sky, k, dark float64, useSky bool) float64 {
 	if !(x >= 1) {
 		x = 1
 	}
-	e := -0.8*k*(x-1)*math.Ln10 - 1.2*math.Log(x)
+	e := -0.8*k*(x-1)*math.Ln10 - 1.2*logFast(x)
 	if useSky && sky < dark {
 		e -= 0.4 * (dark - sky) * math.Ln10
 	}
 	if math.IsInf(x, 1) {
 		return 1e-4
 	}
-	return clamp(math.Exp(e), 1e-4, 1)
+	return clamp(expFast(e), 1e-4, 1)
 }
 
 // moonSkipAlt: a Moon more than this far below the horizon (radians) does

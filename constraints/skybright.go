@@ -366,7 +366,7 @@ func (s *SkyStep) At(alt, az, moonSep, sunSep float64) float64 {
 // (the grid has it already).
 func (s *SkyStep) atSin(sa, moonSep, sunSep float64) float64 {
 	x := 1 / math.Sqrt(1-ksAirmassCoeff+ksAirmassCoeff*sa*sa)
-	t := math.Exp(-s.extRate * x) // 10^(-0.4 k X)
+	t := expFast(-s.extRate * x) // 10^(-0.4 k X)
 	b := s.darkC * x * t
 	if s.moonC != 0 {
 		b += s.moonC * ksScatterFast(moonSep) * (1 - t)
@@ -378,5 +378,5 @@ func (s *SkyStep) atSin(sa, moonSep, sunSep float64) float64 {
 		}
 		b += s.twiC * ksScatterFast(sunSep) * path
 	}
-	return NanolambertsToMag(b)
+	return (ksMagAt1NL - logFast(b)) * (1 / ksNLSlope) // NanolambertsToMag
 }
