@@ -65,6 +65,15 @@ type Grid struct {
 
 // NewGrid samples [start, end) every step (instants start + i*step).
 func NewGrid(site *Site, start, end time.Time, step time.Duration, opts Options) (*Grid, error) {
+	return newGrid(site, start, end, step, opts, nil)
+}
+
+// newGrid is NewGrid with the snapshot of each instant from snap (nil:
+// ephem.Prepare).
+func newGrid(site *Site, start, end time.Time, step time.Duration, opts Options, snap func(ephem.Instant) ephem.Snapshot) (*Grid, error) {
+	if snap == nil {
+		snap = ephem.Prepare
+	}
 	if err := site.Validate(); err != nil {
 		return nil, err
 	}
@@ -101,7 +110,7 @@ func NewGrid(site *Site, start, end time.Time, step time.Duration, opts Options)
 	}
 	for i := 0; i < n; i++ {
 		t := g.Time(i)
-		g.Snap[i] = ephem.Prepare(ephem.NewInstant(t))
+		g.Snap[i] = snap(ephem.NewInstant(t))
 		g.Local[i] = g.Snap[i].Local(&site.Observer)
 		l := &g.Local[i]
 		sun, moon := l.SunPlace(), l.MoonPlace()
