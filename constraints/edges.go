@@ -455,7 +455,6 @@ func (g *Grid) pointGrid(t time.Time) (*Grid, error) {
 	if err != nil {
 		return nil, err
 	}
-	pg.points = nil // a point grid refines nothing itself
 	pc.mu.Lock()
 	if pc.m == nil {
 		pc.m = make(map[int64]*Grid)

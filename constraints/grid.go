@@ -65,7 +65,12 @@ type Grid struct {
 
 // NewGrid samples [start, end) every step (instants start + i*step).
 func NewGrid(site *Site, start, end time.Time, step time.Duration, opts Options) (*Grid, error) {
-	return newGrid(site, start, end, step, opts, nil)
+	g, err := newGrid(site, start, end, step, opts, nil)
+	if err != nil {
+		return nil, err
+	}
+	g.points = &pointCache{}
+	return g, nil
 }
 
 // newGrid is NewGrid with the snapshot of each instant from snap (nil:
@@ -89,21 +94,23 @@ func newGrid(site *Site, start, end time.Time, step time.Duration, opts Options,
 		return nil, fmt.Errorf("%w: %d steps, at most %d (coarser step or shorter interval)", ErrGrid, n64, MaxGridSteps)
 	}
 	n := int(n64)
+	// One allocation per element type: a one-step grid (edge refinement
+	// makes thousands) costs a handful of allocations, not two dozen.
+	f := make([]float64, 16*n)
+	col := func(k int) []float64 { return f[k*n : (k+1)*n : (k+1)*n] }
+	v := make([]ephem.Vec3, 4*n)
+	vcol := func(k int) []ephem.Vec3 { return v[k*n : (k+1)*n : (k+1)*n] }
 	g := &Grid{Site: site, Start: start.UTC(), Step: step, N: n, Opts: opts,
 		Snap: make([]ephem.Snapshot, n), Local: make([]ephem.Local, n),
-		SunAlt: make([]float64, n), SunAz: make([]float64, n), SunDir: make([]ephem.Vec3, n),
-		MoonDir: make([]ephem.Vec3, n), MoonAlt: make([]float64, n), MoonAz: make([]float64, n),
-		MoonIllum: make([]float64, n), MoonPhase: make([]float64, n), MoonDistKm: make([]float64, n),
-		Dark: make([]Darkness, n), sunHD: make([]ephem.Vec3, n), moonHD: make([]ephem.Vec3, n), Closed: make([]bool, n), clock: make([]time.Duration, n),
-		localDay: make([]time.Time, n), points: &pointCache{}}
+		SunAlt: col(0), SunAz: col(1), SunDir: vcol(0), MoonDir: vcol(1), MoonAlt: col(2), MoonAz: col(3),
+		MoonIllum: col(4), MoonPhase: col(5), MoonDistKm: col(6),
+		Dark: make([]Darkness, n), sunHD: vcol(2), moonHD: vcol(3), Closed: make([]bool, n), clock: make([]time.Duration, n),
+		localDay: make([]time.Time, n),
+		last:     col(7), cosLAST: col(8), sinLAST: col(9),
+		sunX: col(10), sunY: col(11), sunZ: col(12), moonX: col(13), moonY: col(14), moonZ: col(15)}
 	if !opts.NoSkyBrightness {
 		g.sky = make([]SkyStep, n)
 	}
-	soa := make([]float64, 9*n)
-	g.last = soa[8*n : 9*n : 9*n]
-	g.cosLAST, g.sinLAST = soa[0:n:n], soa[n:2*n:2*n]
-	g.sunX, g.sunY, g.sunZ = soa[2*n:3*n:3*n], soa[3*n:4*n:4*n], soa[4*n:5*n:5*n]
-	g.moonX, g.moonY, g.moonZ = soa[5*n:6*n:6*n], soa[6*n:7*n:7*n], soa[7*n:8*n:8*n]
 	loc := site.Location
 	if loc == nil {
 		loc = time.UTC

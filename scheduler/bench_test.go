@@ -114,9 +114,11 @@ func BenchmarkPlan200(b *testing.B) {
 	b.ReportAllocs()
 	b.ResetTimer()
 	var pl *Plan
+	c0 := processCPU()
 	for b.Loop() {
 		pl = Solve(r.p)
 	}
+	b.ReportMetric(float64((processCPU()-c0).Microseconds())/1e3/float64(b.N), "cpu-ms/op")
 	sinkPlan = pl
 	b.ReportMetric(pl.Objective.Value, "objective")
 	b.ReportMetric(pl.Objective.Value/r.greedy, "greedy-ratio")
@@ -194,12 +196,14 @@ func BenchmarkPrepare200(b *testing.B) {
 	b.ReportAllocs()
 	b.ResetTimer()
 	var p *Problem
+	c0 := processCPU()
 	for b.Loop() {
 		var err error
 		if p, err = in.Problem(Options{Seed: 1, LookaheadNights: 1}); err != nil {
 			b.Fatal(err)
 		}
 	}
+	b.ReportMetric(float64((processCPU()-c0).Microseconds())/1e3/float64(b.N), "cpu-ms/op")
 	sinkProblem = p
 }
 
@@ -225,6 +229,7 @@ func BenchmarkIntervals200(b *testing.B) {
 	}
 	b.ReportAllocs()
 	var n int
+	var cpu time.Duration
 	for b.Loop() {
 		b.StopTimer()
 		g, err := constraints.NewGrid(g0.Site, g0.Start, g0.End(), g0.Step, g0.Opts)
@@ -236,10 +241,13 @@ func BenchmarkIntervals200(b *testing.B) {
 			vis[i] = g.Evaluate(p.Tracks[i], reqs[i])
 		}
 		b.StartTimer()
+		c0 := processCPU()
 		n = 0
 		for i := range p.Blocks {
 			n += len(g.Intervals(p.Tracks[i], reqs[i], vis[i]))
 		}
+		cpu += processCPU() - c0
 	}
 	b.ReportMetric(float64(n), "intervals")
+	b.ReportMetric(float64(cpu.Microseconds())/1e3/float64(b.N), "cpu-ms/op")
 }
