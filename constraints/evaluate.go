@@ -47,7 +47,9 @@ func (g *Grid) Evaluate(tr *Track, req Request) *Visibility {
 	k := site.Sky.ExtinctionV
 	dark := site.Sky.ZenithMag
 	v.TrailLimit = l.trailLimit
-	hTop := site.Horizon.top // cheapest exact test first: above every point, no lookup
+	// Cheapest exact tests first: above every point of the horizon
+	// profile or under every one, no lookup.
+	hTop, hBottom := site.Horizon.top, site.Horizon.bottom
 
 	for i := 0; i < n; i++ {
 		r := OK
@@ -62,7 +64,7 @@ func (g *Grid) Evaluate(tr *Track, req Request) *Visibility {
 			r = ReasonClosure
 		case !c.Darkness.Allows(g.Dark[i]):
 			r = ReasonDaylight
-		case alt < hTop && alt < site.Horizon.AltitudeAt(float64(tr.Az[i])):
+		case alt < hBottom || alt < hTop && alt < site.Horizon.AltitudeAt(float64(tr.Az[i])):
 			r = ReasonBelowHorizon
 		case alt < minAlt:
 			r = ReasonAltitudeLow
