@@ -80,38 +80,24 @@ func atan2Fast(y, x float64) float64 {
 	return r
 }
 
-// expFast is math.Exp to 1e-14 relative for y in [-700, 700] (the grid's
-// arguments lie within [-20, 0]): y = n ln 2 + r with |r| <= ln 2 / 2 (ln 2
-// in two parts, Cody & Waite's reduction), e^r by its Taylor series to
-// r^11 (truncation under 1e-15), and 2^n put in the exponent bits.
-// Checked against math.Exp by TestExpLogFast.
+// expFast is math.Exp to 6e-9 relative for y in [-700, 700] (the grid's
+// arguments lie within [-20, 0]; its values are stored as float32, 6e-8):
+// y = n ln 2 + r with |r| <= ln 2 / 2 (ln 2 in two parts, Cody & Waite's
+// reduction), e^r by its Taylor series to r^7 (truncation under 6e-9), and
+// 2^n put in the exponent bits. Checked against math.Exp by
+// TestExpLogFast.
 func expFast(y float64) float64 {
-	if !(y > -700) { // also NaN: the callers never pass one
-		if y != y {
-			return y
-		}
-		return 0
-	}
-	if y > 700 {
-		return math.Inf(1)
+	if !(y > -700 && y < 700) {
+		return math.Exp(y) // 0, +Inf or NaN; never on the grid
 	}
 	const (
 		ln2Hi = 6.93147180369123816490e-01
 		ln2Lo = 1.90821492927058770002e-10
 		log2e = 1.44269504088896338700e+00
 	)
-	k := y * log2e
-	n := int64(k + 0.5)
-	if k < -0.5 {
-		n = int64(k - 0.5)
-	}
-	fn := float64(n)
+	fn := math.Floor(y*log2e + 0.5)
 	r := (y - fn*ln2Hi) - fn*ln2Lo
-	p := 1.0 / 39916800
-	p = p*r + 1.0/3628800
-	p = p*r + 1.0/362880
-	p = p*r + 1.0/40320
-	p = p*r + 1.0/5040
+	p := 1.0 / 5040
 	p = p*r + 1.0/720
 	p = p*r + 1.0/120
 	p = p*r + 1.0/24
@@ -119,35 +105,31 @@ func expFast(y float64) float64 {
 	p = p*r + 0.5
 	p = p*r + 1
 	p = p*r + 1
-	return p * math.Float64frombits(uint64(n+1023)<<52)
+	return p * math.Float64frombits(uint64(int64(fn)+1023)<<52)
 }
 
-// logFast is math.Log to 1e-15 absolute for positive normal x: x = m 2^e
+// logFast is math.Log to 1e-9 absolute for positive normal x: x = m 2^e
 // from the bits with m in [sqrt(1/2), sqrt(2)), ln m = 2 atanh(s) with
-// s = (m-1)/(m+1), |s| <= 0.172, by its series to s^17 (truncation under
-// 1e-15). Zero, negative, NaN and infinite x get math.Log's answers.
-// Checked against math.Log by TestExpLogFast.
+// s = (m-1)/(m+1), |s| <= 0.172, by its series to s^9 (truncation under
+// 7e-10). Zero, negative, NaN, infinite and subnormal x get math.Log's
+// answers. Checked against math.Log by TestExpLogFast.
 func logFast(x float64) float64 {
-	if !(x > 0) || x > math.MaxFloat64 || x < 0x1p-1022 {
+	if !(x >= 0x1p-1022 && x <= math.MaxFloat64) {
 		return math.Log(x)
 	}
 	bits := math.Float64bits(x)
-	e := int64(bits>>52) - 1023
+	e := float64(int64(bits>>52) - 1023)
 	m := math.Float64frombits(bits&(1<<52-1) | 1023<<52) // [1, 2)
 	if m > math.Sqrt2 {
-		m /= 2
+		m *= 0.5
 		e++
 	}
 	s := (m - 1) / (m + 1)
 	s2 := s * s
-	p := 1.0 / 17
-	p = p*s2 + 1.0/15
-	p = p*s2 + 1.0/13
-	p = p*s2 + 1.0/11
-	p = p*s2 + 1.0/9
+	p := 1.0 / 9
 	p = p*s2 + 1.0/7
 	p = p*s2 + 1.0/5
 	p = p*s2 + 1.0/3
 	p = p*s2 + 1
-	return float64(e)*math.Ln2 + 2*s*p
+	return e*math.Ln2 + 2*s*p
 }

@@ -194,7 +194,7 @@ func (g *Grid) trackStar(tr *Track, st *ephem.Star, refresh int) {
 				sky32[i] = nan
 				continue
 			}
-			sky32[i] = float32(sky[i].atSin(max(sinApp, 0), ms, ss))
+			sky32[i] = float32(sky[i].atSin(max(sinApp, 0), ms, ss, true))
 		}
 	}
 }
