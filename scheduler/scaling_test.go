@@ -53,7 +53,7 @@ func BenchmarkScaling(b *testing.B) {
 				day, _ := in.Date()
 				var out []NightPlan
 				var kept, alloc uint64
-				cpu0 := processCPU()
+				var cpu time.Duration
 				for b.Loop() {
 					var before, after runtime.MemStats
 					b.StopTimer()
@@ -61,11 +61,13 @@ func BenchmarkScaling(b *testing.B) {
 					runtime.GC()
 					runtime.ReadMemStats(&before)
 					b.StartTimer()
+					cpu0 := processCPU()
 					out, err = Horizon(HorizonInput{Site: site, Blocks: bl, First: day, Nights: nights,
 						Step: secs(step), Options: Options{Seed: 1}})
 					if err != nil {
 						b.Fatal(err)
 					}
+					cpu += processCPU() - cpu0
 					b.StopTimer()
 					runtime.GC()
 					runtime.ReadMemStats(&after)
@@ -73,7 +75,6 @@ func BenchmarkScaling(b *testing.B) {
 					alloc = after.TotalAlloc - before.TotalAlloc
 					b.StartTimer()
 				}
-				cpu := processCPU() - cpu0
 				sinkPlans = out
 				total := 0.0
 				for _, np := range out {
