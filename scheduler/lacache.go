@@ -37,8 +37,10 @@ type LookaheadCache struct {
 const DefaultLookaheadCacheNights = 150
 
 // maxSpecsPerNight bounds one night's cached block specs; past it the
-// night's specs are dropped and rebuilt.
-const maxSpecsPerNight = 20000
+// night's specs are dropped and rebuilt. With DefaultLookaheadCacheNights
+// the cache holds at most about 75 MB (a spec is a 32-byte digest and a
+// few window lengths).
+const maxSpecsPerNight = 5000
 
 type laNightKey struct {
 	site [sha256.Size]byte
@@ -52,8 +54,11 @@ type laNightKey struct {
 type laNight struct {
 	grid *constraints.Grid
 	mu   sync.Mutex
-	wins map[string][]int
+	wins map[specDigest][]int
 }
+
+// specDigest is the SHA-256 of a block's visibility spec (specKey).
+type specDigest [sha256.Size]byte
 
 // LookaheadStats counts the block-night evaluations a cache reused and
 // the ones it computed.
@@ -78,9 +83,9 @@ func (c *LookaheadCache) Lookahead(site *Site, blocks []Block, first time.Time, 
 	}
 	skey := siteKey(site.Site)
 	dark := WeakestDarkness(blocks)
-	specs := make([]string, len(blocks))
+	specs := make([]specDigest, len(blocks))
 	for i := range blocks {
-		specs[i] = specKey(&blocks[i])
+		specs[i] = sha256.Sum256([]byte(specKey(&blocks[i])))
 	}
 	errs := make([]error, nights)
 	parallel(nights, workers, func(k int) {
@@ -136,7 +141,7 @@ func (c *LookaheadCache) night(key laNightKey, mk func() *constraints.Grid) *laN
 		return nt
 	}
 	c.mu.Unlock()
-	nt := &laNight{grid: mk(), wins: map[string][]int{}}
+	nt := &laNight{grid: mk(), wins: map[specDigest][]int{}}
 	c.mu.Lock()
 	defer c.mu.Unlock()
 	if old, ok := c.nights[key]; ok { // made meanwhile by another call
@@ -160,12 +165,12 @@ func (c *LookaheadCache) night(key laNightKey, mk func() *constraints.Grid) *laN
 
 // windows returns every block's window lengths on the night, evaluating
 // only the specs the night has not cached (one track per distinct target).
-func (c *LookaheadCache) windows(nt *laNight, blocks []Block, specs []string, cancel <-chan struct{}) ([][]int, error) {
+func (c *LookaheadCache) windows(nt *laNight, blocks []Block, specs []specDigest, cancel <-chan struct{}) ([][]int, error) {
 	out := make([][]int, len(blocks))
 	var missing []Block
 	var missIdx []int
 	nt.mu.Lock()
-	seen := map[string]bool{}
+	seen := map[specDigest]bool{}
 	for i, s := range specs {
 		if w, ok := nt.wins[s]; ok {
 			out[i] = w
@@ -187,7 +192,7 @@ func (c *LookaheadCache) windows(nt *laNight, blocks []Block, specs []string, ca
 		}
 		nt.mu.Lock()
 		if len(nt.wins)+len(missing) > maxSpecsPerNight {
-			nt.wins = map[string][]int{}
+			nt.wins = map[specDigest][]int{}
 		}
 		for j := range missing {
 			if tracks[j] == nil {
