@@ -8,24 +8,11 @@ import "math"
 // TestAcosFast). Tracks store float32 radians (1e-7), so this costs nothing
 // in precision and a third of the grid's time in speed.
 func acosFast(x float64) float64 {
-	neg := x < 0
-	if neg {
-		x = -x
-	}
-	if x > 1 {
-		x = 1
-	}
-	p := -0.0012624911
-	p = p*x + 0.0066700901
-	p = p*x - 0.0170881256
-	p = p*x + 0.0308918810
-	p = p*x - 0.0501743046
-	p = p*x + 0.0889789874
-	p = p*x - 0.2145988016
-	p = p*x + 1.5707963050
-	r := math.Sqrt(1-x) * p
-	if neg {
-		return math.Pi - r
+	a := min(math.Abs(x), 1) // |x|, rounding past 1 clipped
+	r := math.Sqrt(1-a) * (((((((-0.0012624911*a+0.0066700901)*a-0.0170881256)*a+0.0308918810)*a-
+		0.0501743046)*a+0.0889789874)*a-0.2145988016)*a + 1.5707963050)
+	if x < 0 {
+		r = math.Pi - r
 	}
 	return r
 }
