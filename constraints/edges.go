@@ -2,6 +2,7 @@ package constraints
 
 import (
 	"math"
+	"sync"
 	"time"
 
 	"github.com/nightloom/nightloom/ephem"
@@ -24,7 +25,9 @@ const EdgeResolution = time.Second
 //
 // Method. Each window of observable samples is widened or narrowed to the
 // true crossings on either side by bisection on a direct evaluation at the
-// instant (a one-step grid: Sun, Moon and the target computed afresh), to
+// instant (a one-step grid: the target and the Earth's rotation computed
+// afresh, the Sun, the Moon and nutation interpolated between the grid's
+// exact samples by ephem.Between, under 0.003 arcsec), to
 // EdgeResolution. Between two observable instants a and b the constraints
 // are then certified, not assumed: every constraint c has a margin m_c
 // (how far it is from failing) and a bound L_c on how fast that margin can
@@ -259,15 +262,17 @@ func (c *certifier) point(x float64) (Reason, taus) {
 }
 
 // CheckAt evaluates a request at one instant directly, on a one-step grid
-// of the same site and options (the Sun, the Moon and the target computed
-// afresh at t): OK or the first failing reason.
+// of the same site and options (the target and the Earth's rotation
+// computed afresh at t; the Sun, the Moon and nutation from ephem.Between
+// when t lies between two of g's samples, else ephem.Prepare): OK or the
+// first failing reason.
 func (g *Grid) CheckAt(target *Target, req Request, t time.Time) Reason {
 	r, _, _ := g.checkAt(target, req, t)
 	return r
 }
 
 func (g *Grid) checkAt(target *Target, req Request, t time.Time) (Reason, *Grid, *Track) {
-	pg, err := NewGrid(g.Site, t, t.Add(MinStep), MinStep, g.Opts)
+	pg, err := g.pointGrid(t)
 	if err != nil {
 		return ReasonDate, nil, nil
 	}
@@ -507,4 +512,59 @@ func (c *certifier) estRate(x []float32, j int, floor float64) float64 {
 		}
 	}
 	return 3*m/c.h + floor
+}
+
+// maxPointGrids bounds the one-step grids a grid keeps (about 3 KB each).
+const maxPointGrids = 8192
+
+// pointCache keeps the one-step grids (the Sun, the Moon and the Earth's
+// orientation at one instant) that edge refinement evaluates, shared by
+// every block of the grid: blocks whose windows share an edge (twilight,
+// moonrise, a closure) bisect through the same instants, so each instant's
+// sky is computed once. Safe for concurrent use.
+type pointCache struct {
+	mu sync.Mutex
+	m  map[int64]*Grid
+}
+
+// pointGrid returns the one-step grid at t, from the cache when it has it.
+// A one-step grid is never modified after it is made. Between two of the
+// grid's samples at most ephem.MaxBetweenSpan apart, its snapshot comes
+// from ephem.Between (the Earth's rotation at t, the slowly changing rest
+// interpolated: under 0.003 arcsec); elsewhere from ephem.Prepare.
+func (g *Grid) pointGrid(t time.Time) (*Grid, error) {
+	pc := g.points
+	if pc == nil {
+		return g.newPointGrid(t)
+	}
+	key := t.UnixNano()
+	pc.mu.Lock()
+	pg := pc.m[key]
+	pc.mu.Unlock()
+	if pg != nil {
+		return pg, nil
+	}
+	pg, err := g.newPointGrid(t)
+	if err != nil {
+		return nil, err
+	}
+	pc.mu.Lock()
+	if pc.m == nil {
+		pc.m = make(map[int64]*Grid)
+	}
+	if len(pc.m) < maxPointGrids {
+		pc.m[key] = pg
+	}
+	pc.mu.Unlock()
+	return pg, nil
+}
+
+func (g *Grid) newPointGrid(t time.Time) (*Grid, error) {
+	var snap func(ephem.Instant) ephem.Snapshot
+	if k := int(t.Sub(g.Start) / g.Step); !t.Before(g.Start) && k+1 < g.N &&
+		g.Step.Seconds() <= ephem.MaxBetweenSpan*86400-1 {
+		a, b := &g.Snap[k], &g.Snap[k+1]
+		snap = func(in ephem.Instant) ephem.Snapshot { return ephem.Between(a, b, in) }
+	}
+	return newGrid(g.Site, t, t.Add(MinStep), MinStep, g.Opts, snap)
 }

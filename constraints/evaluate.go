@@ -47,52 +47,77 @@ func (g *Grid) Evaluate(tr *Track, req Request) *Visibility {
 	k := site.Sky.ExtinctionV
 	dark := site.Sky.ZenithMag
 	v.TrailLimit = l.trailLimit
+	// Cheapest exact tests first: above every point of the horizon
+	// profile or under every one, no lookup.
+	hTop, hBottom := site.Horizon.top, site.Horizon.bottom
+
+	// The set's fields and the slices in locals, so that the loop reads
+	// registers and arrays only.
+	checkEarliest, checkLatest := !c.Earliest.IsZero(), !c.Latest.IsZero()
+	var dayFrom, dayTo time.Time
+	if checkEarliest {
+		dayFrom = dateOnly(c.Earliest)
+	}
+	if checkLatest {
+		dayTo = dateOnly(c.Latest)
+	}
+	checkClock, clockFrom, clockTo := c.LocalStart != 0 || c.LocalEnd != 0, c.LocalStart, c.LocalEnd
+	darkness := c.Darkness
+	maxIllum, illumWhenUp := c.MaxMoonIllum, c.MoonIllumWhenUp
+	minSky := c.MinSkyMag
+	checkSky := useSky && minSky != 0
+	faintest := c.FaintestMag
+	checkMag := faintest != 0 && tr.Mag != nil
+	horizon := &site.Horizon
+	reason, qual := v.Reason[:n], v.Quality[:n]
+	alts, azs, xs, has := tr.Alt[:n], tr.Az[:n], tr.Airmass[:n], tr.HA[:n]
+	suns, moons, skies := tr.SunSep[:n], tr.MoonSep[:n], tr.Sky[:n]
+	closed, darks, moonAlt, moonIllum := g.Closed[:n], g.Dark[:n], g.MoonAlt[:n], g.MoonIllum[:n]
 
 	for i := 0; i < n; i++ {
 		r := OK
-		alt := float64(tr.Alt[i])
+		alt := float64(alts[i])
 		switch {
-		case !c.Earliest.IsZero() && g.localDay[i].Before(dateOnly(c.Earliest)),
-			!c.Latest.IsZero() && g.localDay[i].After(dateOnly(c.Latest)):
+		case checkEarliest && g.localDay[i].Before(dayFrom), checkLatest && g.localDay[i].After(dayTo):
 			r = ReasonDate
-		case (c.LocalStart != 0 || c.LocalEnd != 0) && !inClock(g.clock[i], c.LocalStart, c.LocalEnd):
+		case checkClock && !inClock(g.clock[i], clockFrom, clockTo):
 			r = ReasonLocalTime
-		case g.Closed[i]:
+		case closed[i]:
 			r = ReasonClosure
-		case !c.Darkness.Allows(g.Dark[i]):
+		case !darkness.Allows(darks[i]):
 			r = ReasonDaylight
-		case alt < site.Horizon.AltitudeAt(float64(tr.Az[i])):
+		case alt < hBottom || alt < hTop && alt < horizon.AltitudeAt(float64(azs[i])):
 			r = ReasonBelowHorizon
 		case alt < minAlt:
 			r = ReasonAltitudeLow
 		case alt > maxAlt:
 			r = ReasonAltitudeHigh
-		case float64(tr.Airmass[i]) > maxX:
+		case float64(xs[i]) > maxX:
 			r = ReasonAirmass
-		case math.Abs(float64(tr.HA[i])) > maxHA:
+		case math.Abs(float64(has[i])) > maxHA:
 			r = ReasonHourAngle
-		case float64(tr.SunSep[i]) < floor:
+		case float64(suns[i]) < floor:
 			r = ReasonSolarAvoidance
-		case float64(tr.SunSep[i]) < minElong:
+		case float64(suns[i]) < minElong:
 			r = ReasonSolarElongation
-		case float64(tr.MoonSep[i]) < minMoon && g.MoonAlt[i] > -moonSkipAlt:
+		case float64(moons[i]) < minMoon && moonAlt[i] > -moonSkipAlt:
 			r = ReasonMoonSeparation
-		case c.MaxMoonIllum != 0 && g.MoonIllum[i] > c.MaxMoonIllum && (!c.MoonIllumWhenUp || g.MoonAlt[i] > 0):
+		case maxIllum != 0 && moonIllum[i] > maxIllum && (!illumWhenUp || moonAlt[i] > 0):
 			r = ReasonMoonIllumination
-		case useSky && c.MinSkyMag != 0 && !(float64(tr.Sky[i]) >= c.MinSkyMag):
+		case checkSky && !(float64(skies[i]) >= minSky):
 			r = ReasonSkyBrightness
-		case c.FaintestMag != 0 && tr.Mag != nil && !(float64(tr.Mag[i]) <= c.FaintestMag):
+		case checkMag && !(float64(tr.Mag[i]) <= faintest):
 			r = ReasonTooFaint
 		case trailing && math.Hypot(float64(tr.RateRA[i]), float64(tr.RateDec[i])) > maxRateOK:
 			r = ReasonTrailing
-		case checkFlip && float64(tr.HA[i]) >= flip0 && float64(tr.HA[i]) <= flip1:
+		case checkFlip && float64(has[i]) >= flip0 && float64(has[i]) <= flip1:
 			r = ReasonFlipZone
 		}
-		v.Reason[i] = r
+		reason[i] = r
 		if r != OK {
 			continue
 		}
-		v.Quality[i] = float32(quality(float64(tr.Airmass[i]), float64(tr.Sky[i]), k, dark, useSky))
+		qual[i] = float32(quality(float64(xs[i]), float64(skies[i]), k, dark, useSky))
 	}
 	v.Windows = windows(v.Reason)
 	return v
@@ -105,14 +130,14 @@ func quality(x, sky, k, dark float64, useSky bool) float64 {
 	if !(x >= 1) {
 		x = 1
 	}
-	e := -0.8*k*(x-1)*math.Ln10 - 1.2*math.Log(x)
+	e := -0.8*k*(x-1)*math.Ln10 - 1.2*logFast(x)
 	if useSky && sky < dark {
 		e -= 0.4 * (dark - sky) * math.Ln10
 	}
 	if math.IsInf(x, 1) {
 		return 1e-4
 	}
-	return clamp(math.Exp(e), 1e-4, 1)
+	return clamp(expFast(e), 1e-4, 1)
 }
 
 // moonSkipAlt: a Moon more than this far below the horizon (radians) does

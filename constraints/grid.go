@@ -50,13 +50,35 @@ type Grid struct {
 	Closed []bool
 
 	sunHD, moonHD []ephem.Vec3 // Sun and Moon in the local hour-angle frame
-	sky           []SkyStep
-	clock         []time.Duration // local time of day at each step
-	localDay      []time.Time     // local civil date at each step (midnight, UTC location)
+	// Per-step quantities hoisted out of the per-target loops, one array
+	// each (structure of arrays): cos and sin of the local apparent
+	// sidereal time, and the Sun's and Moon's hour-angle-frame unit vectors
+	// by component.
+	last, cosLAST, sinLAST []float64
+	sunX, sunY, sunZ       []float64
+	moonX, moonY, moonZ    []float64
+	sky                    []SkyStep
+	clock                  []time.Duration // local time of day at each step
+	localDay               []time.Time     // local civil date at each step (midnight, UTC location)
+	points                 *pointCache     // one-step grids for edge refinement (Intervals)
 }
 
 // NewGrid samples [start, end) every step (instants start + i*step).
 func NewGrid(site *Site, start, end time.Time, step time.Duration, opts Options) (*Grid, error) {
+	g, err := newGrid(site, start, end, step, opts, nil)
+	if err != nil {
+		return nil, err
+	}
+	g.points = &pointCache{}
+	return g, nil
+}
+
+// newGrid is NewGrid with the snapshot of each instant from snap (nil:
+// ephem.Prepare).
+func newGrid(site *Site, start, end time.Time, step time.Duration, opts Options, snap func(ephem.Instant) ephem.Snapshot) (*Grid, error) {
+	if snap == nil {
+		snap = ephem.Prepare
+	}
 	if err := site.Validate(); err != nil {
 		return nil, err
 	}
@@ -72,13 +94,20 @@ func NewGrid(site *Site, start, end time.Time, step time.Duration, opts Options)
 		return nil, fmt.Errorf("%w: %d steps, at most %d (coarser step or shorter interval)", ErrGrid, n64, MaxGridSteps)
 	}
 	n := int(n64)
+	// One allocation per element type: a one-step grid (edge refinement
+	// makes thousands) costs a handful of allocations, not two dozen.
+	f := make([]float64, 16*n)
+	col := func(k int) []float64 { return f[k*n : (k+1)*n : (k+1)*n] }
+	v := make([]ephem.Vec3, 4*n)
+	vcol := func(k int) []ephem.Vec3 { return v[k*n : (k+1)*n : (k+1)*n] }
 	g := &Grid{Site: site, Start: start.UTC(), Step: step, N: n, Opts: opts,
 		Snap: make([]ephem.Snapshot, n), Local: make([]ephem.Local, n),
-		SunAlt: make([]float64, n), SunAz: make([]float64, n), SunDir: make([]ephem.Vec3, n),
-		MoonDir: make([]ephem.Vec3, n), MoonAlt: make([]float64, n), MoonAz: make([]float64, n),
-		MoonIllum: make([]float64, n), MoonPhase: make([]float64, n), MoonDistKm: make([]float64, n),
-		Dark: make([]Darkness, n), sunHD: make([]ephem.Vec3, n), moonHD: make([]ephem.Vec3, n), Closed: make([]bool, n), clock: make([]time.Duration, n),
-		localDay: make([]time.Time, n)}
+		SunAlt: col(0), SunAz: col(1), SunDir: vcol(0), MoonDir: vcol(1), MoonAlt: col(2), MoonAz: col(3),
+		MoonIllum: col(4), MoonPhase: col(5), MoonDistKm: col(6),
+		Dark: make([]Darkness, n), sunHD: vcol(2), moonHD: vcol(3), Closed: make([]bool, n), clock: make([]time.Duration, n),
+		localDay: make([]time.Time, n),
+		last:     col(7), cosLAST: col(8), sinLAST: col(9),
+		sunX: col(10), sunY: col(11), sunZ: col(12), moonX: col(13), moonY: col(14), moonZ: col(15)}
 	if !opts.NoSkyBrightness {
 		g.sky = make([]SkyStep, n)
 	}
@@ -88,7 +117,7 @@ func NewGrid(site *Site, start, end time.Time, step time.Duration, opts Options)
 	}
 	for i := 0; i < n; i++ {
 		t := g.Time(i)
-		g.Snap[i] = ephem.Prepare(ephem.NewInstant(t))
+		g.Snap[i] = snap(ephem.NewInstant(t))
 		g.Local[i] = g.Snap[i].Local(&site.Observer)
 		l := &g.Local[i]
 		sun, moon := l.SunPlace(), l.MoonPlace()
@@ -96,6 +125,10 @@ func NewGrid(site *Site, start, end time.Time, step time.Duration, opts Options)
 		g.MoonAlt[i], g.MoonAz[i], g.MoonDir[i] = moon.AltApparent, moon.Az, moon.OfDate
 		g.sunHD[i] = l.OfDateToHADec.MulVec(sun.OfDate)
 		g.moonHD[i] = l.OfDateToHADec.MulVec(moon.OfDate)
+		g.last[i] = l.LAST
+		g.sinLAST[i], g.cosLAST[i] = math.Sincos(l.LAST)
+		g.sunX[i], g.sunY[i], g.sunZ[i] = g.sunHD[i][0], g.sunHD[i][1], g.sunHD[i][2]
+		g.moonX[i], g.moonY[i], g.moonZ[i] = g.moonHD[i][0], g.moonHD[i][1], g.moonHD[i][2]
 		g.MoonIllum[i], _ = l.MoonIllumination()
 		g.MoonPhase[i] = math.Acos(clamp(2*g.MoonIllum[i]-1, -1, 1))
 		g.MoonDistKm[i] = l.MoonOfDate().Norm()

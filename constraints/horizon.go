@@ -27,6 +27,12 @@ type Horizon struct {
 	// first[k] is the index of the first point with azimuth >= k/4 deg, so
 	// a lookup starts next to its answer instead of searching.
 	first []uint16
+	// top bounds every interpolated altitude from above (the highest point
+	// plus 1e-12 rad for rounding; 0 for an empty profile), so a target
+	// above it needs no lookup; bottom bounds them from below (the lowest
+	// point less 1e-12 rad; 0 for an empty profile), so a target under it
+	// is below the profile without a lookup.
+	top, bottom float64
 }
 
 // horizonBins is the number of azimuth bins of the lookup index (4 per deg).
@@ -57,7 +63,15 @@ func NewHorizon(points []HorizonPoint) (Horizon, error) {
 			return Horizon{}, fmt.Errorf("%w: azimuth %v given twice", ErrHorizon, p.AzDeg)
 		}
 		h.az[i], h.alt[i] = p.AzDeg*ephem.Deg2Rad, p.AltDeg*ephem.Deg2Rad
+		if i == 0 || h.alt[i] > h.top {
+			h.top = h.alt[i]
+		}
+		if i == 0 || h.alt[i] < h.bottom {
+			h.bottom = h.alt[i]
+		}
 	}
+	h.top += 1e-12
+	h.bottom -= 1e-12
 	if len(ps) > 1 {
 		h.first = make([]uint16, horizonBins+1)
 		j := 0

@@ -359,9 +359,21 @@ func (s *SkyStep) At(alt, az, moonSep, sunSep float64) float64 {
 	if alt < 0 {
 		alt = 0
 	}
-	sa := math.Sin(alt)
+	return s.atSin(math.Sin(alt), moonSep, sunSep, false)
+}
+
+// atSin is At for a target whose apparent altitude has the sine sa >= 0
+// (the grid has it already). fast takes e^x and ln x from expFast and
+// logFast (1e-8 mag, for the grid's float32 values) instead of package
+// math (At's 1e-12).
+func (s *SkyStep) atSin(sa, moonSep, sunSep float64, fast bool) float64 {
 	x := 1 / math.Sqrt(1-ksAirmassCoeff+ksAirmassCoeff*sa*sa)
-	t := math.Exp(-s.extRate * x) // 10^(-0.4 k X)
+	var t float64 // 10^(-0.4 k X)
+	if fast {
+		t = expFast(-s.extRate * x)
+	} else {
+		t = math.Exp(-s.extRate * x)
+	}
 	b := s.darkC * x * t
 	if s.moonC != 0 {
 		b += s.moonC * ksScatterFast(moonSep) * (1 - t)
@@ -372,6 +384,9 @@ func (s *SkyStep) At(alt, az, moonSep, sunSep float64) float64 {
 			path = x
 		}
 		b += s.twiC * ksScatterFast(sunSep) * path
+	}
+	if fast {
+		return (ksMagAt1NL - logFast(b)) * (1 / ksNLSlope) // NanolambertsToMag
 	}
 	return NanolambertsToMag(b)
 }

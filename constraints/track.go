@@ -58,10 +58,7 @@ func (g *Grid) Track(t *Target) (*Track, error) {
 		return nil, ErrTarget
 	}
 	n := g.N
-	refresh := int(starRefresh / g.Step)
-	if refresh < 1 {
-		refresh = 1
-	}
+	refresh := g.starRefreshSteps()
 	buf := make([]float32, 8*n)
 	tr := &Track{Target: t,
 		Alt: buf[0*n : 1*n], Az: buf[1*n : 2*n], HA: buf[2*n : 3*n], Dec: buf[3*n : 4*n],
@@ -70,16 +67,10 @@ func (g *Grid) Track(t *Target) (*Track, error) {
 		ob := make([]float32, 3*n)
 		tr.Mag, tr.RateRA, tr.RateDec = ob[:n], ob[n:2*n], ob[2*n:]
 	}
-	var u ephem.Vec3
 	if t.Star != nil {
-		// Proper motion over one grid is far below the float32 precision.
-		u = t.Star.Direction(g.Snap[n/2].TT)
+		g.trackStar(tr, t.Star, refresh)
+		return tr, nil
 	}
-	// A fixed target's apparent place of date (aberration, precession,
-	// nutation) drifts by under 0.02 arcsec in an hour, so it is refreshed
-	// every starRefresh of grid time and only the hour angle moves between.
-	var ra, sinDec, cosDec float64
-	next := 0
 	obs := &g.Site.Observer
 	k := g.Site.Sky.ExtinctionV
 	nan := float32(math.NaN())
@@ -87,22 +78,7 @@ func (g *Grid) Track(t *Target) (*Track, error) {
 		l := &g.Local[i]
 		var hd ephem.Vec3 // direction in the local hour-angle frame
 		var ha float64
-		if t.Star != nil {
-			if i >= next {
-				var dec float64
-				ra, dec, _ = ephem.VecToSpherical(l.StarOfDate(u))
-				sinDec, cosDec = math.Sincos(dec)
-				next = i + refresh
-			}
-			ha = l.LAST - ra
-			if ha > math.Pi {
-				ha -= 2 * math.Pi
-			} else if ha <= -math.Pi {
-				ha += 2 * math.Pi
-			}
-			sh, ch := math.Sincos(ha)
-			hd = ephem.Vec3{cosDec * ch, -cosDec * sh, sinDec}
-		} else {
+		{ // orbit targets: light time, aberration and parallax at every step
 			ofDate, view := l.OrbitView(t.Orbit)
 			hd = l.OfDateToHADec.MulVec(ofDate)
 			ha = math.Atan2(-hd[1], hd[0])
@@ -150,4 +126,82 @@ func (g *Grid) Track(t *Target) (*Track, error) {
 		tr.Sky[i] = float32(g.sky[i].At(math.Max(app, 0), az, ms, ss))
 	}
 	return tr, nil
+}
+
+// trackStar samples a fixed target. Its apparent place of date (aberration,
+// precession, nutation) drifts by under 0.02 arcsec in an hour, so it is
+// refreshed every refresh steps and only the hour angle moves between. The
+// hour angle's cosine and sine come from the grid's hoisted cos and sin of
+// the sidereal time by the angle-difference identities, so a step costs a
+// few products, two square roots and three short polynomials (altitude,
+// azimuth, separations), with no allocation and no call that does not
+// inline except the sky model and the tables of refraction and airmass.
+func (g *Grid) trackStar(tr *Track, st *ephem.Star, refresh int) {
+	n := g.N
+	// Proper motion over one grid is far below the float32 precision.
+	u := st.Direction(g.Snap[n/2].TT)
+	obs := &g.Site.Observer
+	sinLat, cosLat := math.Sincos(obs.LatRad)
+	nan := float32(math.NaN())
+	inf := float32(math.Inf(1))
+	last, cosL, sinL := g.last[:n], g.cosLAST[:n], g.sinLAST[:n]
+	mx, my, mz := g.moonX[:n], g.moonY[:n], g.moonZ[:n]
+	sx, sy, sz := g.sunX[:n], g.sunY[:n], g.sunZ[:n]
+	alt32, az32, ha32, dec32 := tr.Alt[:n], tr.Az[:n], tr.HA[:n], tr.Dec[:n]
+	x32, ms32, ss32, sky32 := tr.Airmass[:n], tr.MoonSep[:n], tr.SunSep[:n], tr.Sky[:n]
+	sky := g.sky
+	for i0 := 0; i0 < n; i0 += refresh {
+		i1 := min(i0+refresh, n)
+		ra, dec, _ := ephem.VecToSpherical(g.Local[i0].StarOfDate(u))
+		sinDec, cosDec := math.Sincos(dec)
+		sr, cr := math.Sincos(ra)
+		// cos d cos H = cL*a + sL*b and cos d sin H = sL*a - cL*b with
+		// H = LAST - ra, L = LAST.
+		a, b := cosDec*cr, cosDec*sr
+		zc, zs := cosLat*sinDec, sinLat*sinDec // the declination's share of h[0], h[2]
+		d32 := float32(dec)
+		for i := i0; i < i1; i++ {
+			hx := cosL[i]*a + sinL[i]*b    // cos d cos H
+			hy := -(sinL[i]*a - cosL[i]*b) // -cos d sin H
+			ha := last[i] - ra
+			if ha > math.Pi {
+				ha -= 2 * math.Pi
+			} else if ha <= -math.Pi {
+				ha += 2 * math.Pi
+			}
+			// Observer.HADecToHorizon, inlined: (north, east, up).
+			h0 := -sinLat*hx + zc
+			h2 := cosLat*hx + zs
+			alt := asinFast(clamp(h2, -1, 1))
+			az := atan2Fast(hy, h0)
+			if az < 0 {
+				az += 2 * math.Pi
+			}
+			az32[i], ha32[i], dec32[i] = float32(az), float32(ha), d32
+			if alt < belowHorizonSkip {
+				alt32[i], x32[i] = float32(alt), inf
+				ms32[i], ss32[i], sky32[i] = nan, nan, nan
+				continue
+			}
+			r := obs.RefractionFast(alt)
+			app := alt + r
+			cosAlt := math.Sqrt(h0*h0 + hy*hy)
+			sinApp := h2*(1-r*r/2) + cosAlt*r
+			x := ephem.AirmassSin(sinApp, app*ephem.Rad2Deg)
+			alt32[i], x32[i] = float32(app), float32(x)
+			ms := acosFast(hx*mx[i] + hy*my[i] + sinDec*mz[i])
+			ss := acosFast(hx*sx[i] + hy*sy[i] + sinDec*sz[i])
+			ms32[i], ss32[i] = float32(ms), float32(ss)
+			if sky == nil {
+				sky32[i] = nan
+				continue
+			}
+			sky32[i] = float32(sky[i].atSin(max(sinApp, 0), ms, ss, true))
+		}
+	}
+}
+
+// starRefreshSteps is starRefresh in grid steps (at least 1).
+func (g *Grid) starRefreshSteps() int {
+	return max(int(starRefresh/g.Step), 1)
 }

@@ -1,6 +1,7 @@
 package scheduler
 
 import (
+	"github.com/nightloom/nightloom/constraints"
 	"os"
 	"path/filepath"
 	"sync"
@@ -113,9 +114,11 @@ func BenchmarkPlan200(b *testing.B) {
 	b.ReportAllocs()
 	b.ResetTimer()
 	var pl *Plan
+	c0 := processCPU()
 	for b.Loop() {
 		pl = Solve(r.p)
 	}
+	b.ReportMetric(float64((processCPU()-c0).Microseconds())/1e3/float64(b.N), "cpu-ms/op")
 	sinkPlan = pl
 	b.ReportMetric(pl.Objective.Value, "objective")
 	b.ReportMetric(pl.Objective.Value/r.greedy, "greedy-ratio")
@@ -193,13 +196,58 @@ func BenchmarkPrepare200(b *testing.B) {
 	b.ReportAllocs()
 	b.ResetTimer()
 	var p *Problem
+	c0 := processCPU()
 	for b.Loop() {
 		var err error
 		if p, err = in.Problem(Options{Seed: 1, LookaheadNights: 1}); err != nil {
 			b.Fatal(err)
 		}
 	}
+	b.ReportMetric(float64((processCPU()-c0).Microseconds())/1e3/float64(b.N), "cpu-ms/op")
 	sinkProblem = p
 }
 
 var sinkProblem *Problem
+
+// BenchmarkIntervals200 is the exact-edges share of BenchmarkPrepare200:
+// every block's continuous intervals (Grid.Intervals: bisection to 1 s and
+// the Lipschitz certificate), one block after another, on a fresh grid
+// each time (so the per-instant cache of one-step grids starts empty, as
+// in a MakePlan). The rule of issue 10: at most 20 % of planning time
+// (BenchmarkPrepare200 + BenchmarkPlan200).
+func BenchmarkIntervals200(b *testing.B) {
+	in := loadInstance(b, "plan200")
+	p, err := in.Problem(Options{Seed: 1, LookaheadNights: 1})
+	if err != nil {
+		b.Fatal(err)
+	}
+	g0 := p.Grid
+	reqs := make([]constraints.Request, len(p.Blocks))
+	for i := range p.Blocks {
+		bl := &p.Blocks[i]
+		reqs[i] = constraints.Request{Set: bl.Set, Exposure: bl.Exposure, NonSidereal: bl.NonSidereal}
+	}
+	b.ReportAllocs()
+	var n int
+	var cpu time.Duration
+	for b.Loop() {
+		b.StopTimer()
+		g, err := constraints.NewGrid(g0.Site, g0.Start, g0.End(), g0.Step, g0.Opts)
+		if err != nil {
+			b.Fatal(err)
+		}
+		vis := make([]*constraints.Visibility, len(p.Blocks))
+		for i := range p.Blocks {
+			vis[i] = g.Evaluate(p.Tracks[i], reqs[i])
+		}
+		b.StartTimer()
+		c0 := processCPU()
+		n = 0
+		for i := range p.Blocks {
+			n += len(g.Intervals(p.Tracks[i], reqs[i], vis[i]))
+		}
+		cpu += processCPU() - c0
+	}
+	b.ReportMetric(float64(n), "intervals")
+	b.ReportMetric(float64(cpu.Microseconds())/1e3/float64(b.N), "cpu-ms/op")
+}

@@ -215,13 +215,18 @@ func visibilities(g *constraints.Grid, blocks []Block, workers int, cancel <-cha
 			uniq = append(uniq, i)
 		}
 	}
-	parallel(len(uniq), workers, func(k int) {
-		if cancelled(cancel) {
-			return
+	// One call: fixed targets' tracks share one allocation, targets split
+	// across the workers (constraints.Grid.TrackAll).
+	targets := make([]*constraints.Target, len(uniq))
+	for k, i := range uniq {
+		targets[k] = blocks[i].Target
+	}
+	if !cancelled(cancel) {
+		ts, _ := g.TrackAll(targets, workers)
+		for k, i := range uniq {
+			tracks[i] = ts[k]
 		}
-		i := uniq[k]
-		tracks[i], _ = g.Track(blocks[i].Target)
-	})
+	}
 	for i := range blocks {
 		tracks[i] = tracks[first[blocks[i].Target]]
 	}

@@ -75,6 +75,8 @@ func BenchmarkReportProgress(b *testing.B) {
 	ctx := as(RoleTelescope, e)
 	var seq atomic.Int64
 	t0 := time.Date(2031, 3, 15, 21, 0, 0, 0, time.UTC)
+	// Reports of the future are refused: the clock reads just after the run.
+	e.clock.Set(t0.Add(3 * time.Minute))
 	report := func() *nightloomv1.ReportProgressRequest {
 		n := seq.Add(1)
 		return &nightloomv1.ReportProgressRequest{Report: &nightloomv1.ProgressReport{

@@ -65,8 +65,12 @@ type planJob struct {
 }
 
 // schedulerPlanner is the planner of the daemon: scheduler.Solve (adaptive
-// large-neighbourhood search) on the night's constraint grid.
-type schedulerPlanner struct{}
+// large-neighbourhood search) on the night's constraint grid. lookahead
+// (nil: none) keeps the urgency lookahead per site and night across calls,
+// so that a replan does not recompute it.
+type schedulerPlanner struct {
+	lookahead *scheduler.LookaheadCache
+}
 
 // lookaheadStep is the coarse grid of the urgency lookahead.
 const lookaheadStep = scheduler.LookaheadStep
@@ -111,7 +115,7 @@ func schedBlock(b *planBlock, byNight bool) scheduler.Block {
 	return sb
 }
 
-func (schedulerPlanner) plan(ctx context.Context, job *planJob) (*nightloomv1.Plan, error) {
+func (sp0 schedulerPlanner) plan(ctx context.Context, job *planJob) (*nightloomv1.Plan, error) {
 	began := time.Now()
 	site := job.site.sched
 	body := &nightloomv1.Plan{Interval: &nightloomv1.TimeInterval{Start: timestamppb.New(job.start), End: timestamppb.New(job.end)}}
@@ -177,7 +181,12 @@ func (schedulerPlanner) plan(ctx context.Context, job *planJob) (*nightloomv1.Pl
 			first = civilOf(job.night)
 		}
 		first = time.Date(first.Year(), first.Month(), first.Day(), 0, 0, 0, 0, time.UTC)
-		la, err := scheduler.NewLookahead(site, blocks, first, job.args.lookahead, lookaheadStep, opts.Workers, opts.Cancel)
+		var la *scheduler.Lookahead
+		if sp0.lookahead != nil {
+			la, err = sp0.lookahead.Lookahead(site, blocks, first, job.args.lookahead, lookaheadStep, opts.Workers, opts.Cancel)
+		} else {
+			la, err = scheduler.NewLookahead(site, blocks, first, job.args.lookahead, lookaheadStep, opts.Workers, opts.Cancel)
+		}
 		if ctx.Err() != nil {
 			return nil, stopped()
 		}

@@ -25,6 +25,7 @@ import (
 
 	"github.com/nightloom/nightloom/internal/store"
 	nightloomv1 "github.com/nightloom/nightloom/proto/nightloom/v1"
+	"github.com/nightloom/nightloom/scheduler"
 
 	_ "time/tzdata" // IANA zones for sites, whatever the host has installed
 )
@@ -194,7 +195,7 @@ func Start(ctx context.Context, cfg Config) (*Server, error) {
 
 	s := &Server{cfg: cfg, log: cfg.Logger, now: cfg.Now, planner: cfg.planner, serveDone: make(chan error, 1)}
 	if s.planner == nil {
-		s.planner = schedulerPlanner{}
+		s.planner = schedulerPlanner{lookahead: &scheduler.LookaheadCache{}}
 	}
 	s.bgCtx, s.bgCancel = context.WithCancel(context.Background())
 	if cfg.Storage != nil {

@@ -826,3 +826,40 @@ func TestPlanningStopsAtDeadline(t *testing.T) {
 		t.Errorf("%d plans stored, %d calls succeeded", len(lp.GetPlans()), ok)
 	}
 }
+
+// TestReplanReusesLookahead: MakePlan computes the urgency lookahead once
+// (scheduler.LookaheadCache on the server); a Replan of the same night
+// with progress reported in between reuses every block-night of it.
+func TestReplanReusesLookahead(t *testing.T) {
+	e := newEnv(t, "")
+	f := e.seed(t, 12)
+	op := as(RoleOperator, e)
+	site := f.site.GetId()
+	mk, err := e.plans.MakePlan(op, &nightloomv1.MakePlanRequest{SiteId: site, Span: &nightloomv1.MakePlanRequest_Night{Night: testNight},
+		TimeBudget: dur(50 * time.Millisecond), Seed: 3}) // the default lookahead, as Replan's
+	if err != nil {
+		t.Fatal(err)
+	}
+	cache := e.srv.planner.(schedulerPlanner).lookahead
+	made := cache.Stats()
+	if made.Misses == 0 {
+		t.Fatalf("MakePlan computed no lookahead: %+v", made)
+	}
+	p1 := mk.GetPlans()[0]
+	if len(p1.GetAssignments()) == 0 {
+		t.Fatal("no assignments to replan from")
+	}
+	a := p1.GetAssignments()[0]
+	from := a.GetEnd().AsTime()
+	if _, err := e.plans.Replan(op, &nightloomv1.ReplanRequest{SiteId: site, PlanId: p1.GetId(), From: ts(from),
+		TimeBudget: dur(50 * time.Millisecond), Seed: 3}); err != nil {
+		t.Fatal(err)
+	}
+	after := cache.Stats()
+	if after.Misses != made.Misses {
+		t.Errorf("Replan recomputed %d block-nights of the lookahead (misses %d -> %d); want 0", after.Misses-made.Misses, made.Misses, after.Misses)
+	}
+	if after.Hits <= made.Hits {
+		t.Errorf("Replan reused no lookahead: hits %d -> %d", made.Hits, after.Hits)
+	}
+}

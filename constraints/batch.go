@@ -1,0 +1,118 @@
+package constraints
+
+import (
+	"runtime"
+	"sync"
+	"sync/atomic"
+)
+
+// batchChunk is how many targets a worker takes at a time: large enough
+// that the shared counter is touched rarely, small enough that two workers
+// finish together although targets below the horizon cost less.
+const batchChunk = 16
+
+// TrackAll samples every target on the grid, splitting the targets across
+// workers goroutines (runtime.GOMAXPROCS(0) when workers <= 0). The fixed
+// targets' tracks share one allocation. It returns the first error (a
+// target that is neither fixed nor orbit) with the tracks it could make.
+func (g *Grid) TrackAll(targets []*Target, workers int) ([]*Track, error) {
+	tracks := make([]*Track, len(targets))
+	n := g.N
+	stars := 0
+	for _, t := range targets {
+		if t != nil && t.Star != nil && t.Orbit == nil {
+			stars++
+		}
+	}
+	slab := make([]float32, 8*n*stars)
+	trs := make([]Track, stars)
+	k := 0
+	for i, t := range targets {
+		if t != nil && t.Star != nil && t.Orbit == nil {
+			buf := slab[8*n*k : 8*n*(k+1) : 8*n*(k+1)]
+			trs[k] = Track{Target: t,
+				Alt: buf[0*n : 1*n : 1*n], Az: buf[1*n : 2*n : 2*n], HA: buf[2*n : 3*n : 3*n], Dec: buf[3*n : 4*n : 4*n],
+				Airmass: buf[4*n : 5*n : 5*n], MoonSep: buf[5*n : 6*n : 6*n], SunSep: buf[6*n : 7*n : 7*n], Sky: buf[7*n : 8*n : 8*n]}
+			tracks[i] = &trs[k]
+			k++
+		}
+	}
+	var mu sync.Mutex
+	var first error
+	refresh := g.starRefreshSteps()
+	forChunks(len(targets), workers, func(i int) {
+		if tracks[i] != nil {
+			g.trackStar(tracks[i], targets[i].Star, refresh)
+			return
+		}
+		if targets[i] == nil {
+			mu.Lock()
+			if first == nil {
+				first = ErrTarget
+			}
+			mu.Unlock()
+			return
+		}
+		tr, err := g.Track(targets[i])
+		if err != nil {
+			mu.Lock()
+			if first == nil {
+				first = err
+			}
+			mu.Unlock()
+			return
+		}
+		tracks[i] = tr
+	})
+	return tracks, first
+}
+
+// EvaluateAll evaluates tracks[i] against reqs[i] on workers goroutines
+// (runtime.GOMAXPROCS(0) when workers <= 0); a nil track gives a nil
+// visibility. It panics if the slices differ in length (a programmer
+// error).
+func (g *Grid) EvaluateAll(tracks []*Track, reqs []Request, workers int) []*Visibility {
+	if len(tracks) != len(reqs) {
+		panic("constraints: EvaluateAll needs one request per track")
+	}
+	vis := make([]*Visibility, len(tracks))
+	forChunks(len(tracks), workers, func(i int) {
+		if tracks[i] != nil {
+			vis[i] = g.Evaluate(tracks[i], reqs[i])
+		}
+	})
+	return vis
+}
+
+// forChunks calls f(0..n-1) on at most workers goroutines, each taking
+// batchChunk consecutive indices at a time.
+func forChunks(n, workers int, f func(int)) {
+	if workers <= 0 {
+		workers = runtime.GOMAXPROCS(0)
+	}
+	workers = min(workers, (n+batchChunk-1)/batchChunk)
+	if workers <= 1 {
+		for i := 0; i < n; i++ {
+			f(i)
+		}
+		return
+	}
+	var next atomic.Int64
+	var wg sync.WaitGroup
+	for w := 0; w < workers; w++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for {
+				i0 := int(next.Add(batchChunk)) - batchChunk
+				if i0 >= n {
+					return
+				}
+				for i := i0; i < min(i0+batchChunk, n); i++ {
+					f(i)
+				}
+			}
+		}()
+	}
+	wg.Wait()
+}
