@@ -238,5 +238,5 @@ func specKey(b *Block) string {
 	if t.Star != nil {
 		return fmt.Sprintf("s%+v|%+v|%v|%v", *t.Star, set, b.Exposure, b.NonSidereal)
 	}
-	return fmt.Sprintf("o%+v|%+v|%v|%v", *t.Orbit, set, b.Exposure, b.NonSidereal)
+	return fmt.Sprintf("o%+v|%+v|%v|%v", t.Orbit, set, b.Exposure, b.NonSidereal) // a *Conic or a body prints its fields
 }
