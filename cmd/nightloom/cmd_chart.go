@@ -5,12 +5,20 @@ package main
 import (
 	"errors"
 	"fmt"
+	"image/color"
 	"io"
 	"math"
+	"os"
 	"path/filepath"
 	"sort"
 	"strings"
 	"time"
+
+	"gonum.org/v1/plot"
+	"gonum.org/v1/plot/vg"
+	"gonum.org/v1/plot/vg/draw"
+	"gonum.org/v1/plot/vg/vgimg"
+	"gonum.org/v1/plot/vg/vgsvg"
 
 	"github.com/nightloom/nightloom/constraints"
 	"github.com/nightloom/nightloom/ephem"
@@ -209,3 +217,25 @@ func writeChart(spec chart.Spec, path string) error {
 
 // chartDPI is the PNG resolution of every chart the client draws.
 const chartDPI = chart.DPI
+
+// savePlot draws p on a w x h canvas and writes it to path: SVG when the
+// name ends in .svg, else PNG at chartDPI on white.
+func savePlot(p *plot.Plot, w, h vg.Length, path string) error {
+	var canvas vg.CanvasWriterTo
+	if strings.ToLower(filepath.Ext(path)) == ".svg" {
+		canvas = vgsvg.New(w, h)
+	} else {
+		c := vgimg.NewWith(vgimg.UseWH(w, h), vgimg.UseDPI(chartDPI), vgimg.UseBackgroundColor(color.White))
+		canvas = vgimg.PngCanvas{Canvas: c}
+	}
+	p.Draw(draw.New(canvas))
+	f, err := os.Create(path)
+	if err != nil {
+		return err
+	}
+	if _, err := canvas.WriteTo(f); err != nil {
+		f.Close()
+		return err
+	}
+	return f.Close()
+}

@@ -8,7 +8,6 @@ import (
 	"image/color"
 	"io"
 	"math"
-	"os"
 	"path/filepath"
 	"strings"
 	"time"
@@ -16,9 +15,6 @@ import (
 	"gonum.org/v1/plot"
 	"gonum.org/v1/plot/plotter"
 	"gonum.org/v1/plot/vg"
-	"gonum.org/v1/plot/vg/draw"
-	"gonum.org/v1/plot/vg/vgimg"
-	"gonum.org/v1/plot/vg/vgsvg"
 	"google.golang.org/protobuf/types/known/timestamppb"
 
 	pb "github.com/nightloom/nightloom/proto/nightloom/v1"
@@ -254,24 +250,7 @@ func writeLightCurve(path, name string, f *pb.MagnitudeFit) error {
 	}
 	p.Y.Tick.Marker = negTicks{}
 	p.Add(plotter.NewGrid())
-	const w, h = 9 * vg.Inch, 5 * vg.Inch
-	var canvas vg.CanvasWriterTo
-	if strings.ToLower(filepath.Ext(path)) == ".svg" {
-		canvas = vgsvg.New(w, h)
-	} else {
-		c := vgimg.NewWith(vgimg.UseWH(w, h), vgimg.UseDPI(chartDPI), vgimg.UseBackgroundColor(color.White))
-		canvas = vgimg.PngCanvas{Canvas: c}
-	}
-	p.Draw(draw.New(canvas))
-	out, err := os.Create(path)
-	if err != nil {
-		return err
-	}
-	if _, err := canvas.WriteTo(out); err != nil {
-		out.Close()
-		return err
-	}
-	return out.Close()
+	return savePlot(p, 9*vg.Inch, 5*vg.Inch, path)
 }
 
 // negTicks labels a negated magnitude axis with the magnitudes themselves.

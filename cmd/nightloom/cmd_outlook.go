@@ -9,7 +9,6 @@ import (
 	"image/color"
 	"io"
 	"math"
-	"os"
 	"path/filepath"
 	"strings"
 	"time"
@@ -17,9 +16,6 @@ import (
 	"gonum.org/v1/plot"
 	"gonum.org/v1/plot/plotter"
 	"gonum.org/v1/plot/vg"
-	"gonum.org/v1/plot/vg/draw"
-	"gonum.org/v1/plot/vg/vgimg"
-	"gonum.org/v1/plot/vg/vgsvg"
 	"google.golang.org/protobuf/proto"
 	"google.golang.org/protobuf/types/known/durationpb"
 
@@ -245,22 +241,5 @@ func writeOutlookChart(path, name string, resp *pb.OutlookResponse) error {
 	p.Add(zero)
 	p.Add(plotter.NewGrid())
 	p.Legend.Left = true
-	const w, h = 10 * vg.Inch, 5.5 * vg.Inch
-	var canvas vg.CanvasWriterTo
-	if strings.ToLower(filepath.Ext(path)) == ".svg" {
-		canvas = vgsvg.New(w, h)
-	} else {
-		c := vgimg.NewWith(vgimg.UseWH(w, h), vgimg.UseDPI(chartDPI), vgimg.UseBackgroundColor(color.White))
-		canvas = vgimg.PngCanvas{Canvas: c}
-	}
-	p.Draw(draw.New(canvas))
-	f, err := os.Create(path)
-	if err != nil {
-		return err
-	}
-	if _, err := canvas.WriteTo(f); err != nil {
-		f.Close()
-		return err
-	}
-	return f.Close()
+	return savePlot(p, 10*vg.Inch, 5.5*vg.Inch, path)
 }
