@@ -71,7 +71,7 @@ var dimensionless = []string{
 	"magnitude", "observed_magnitude", "faintest_magnitude",
 	"m1", "k1", "h", "g",
 	"extinction_v",
-	"total", "weighted_exposure", "completion_bonus",
+	"total", "weighted_exposure", "completion_bonus", "cadence_points",
 	// magnitudes of a comet's light curve and the statistics of their fit
 	"fitted_magnitude", "prior_magnitude", "sigma_mag", "sigma_m1", "sigma_k1", "covariance_m1_k1", "chi2",
 }
