@@ -131,7 +131,7 @@ func TestRoleTable(t *testing.T) {
 	}{
 		{nightloomv1.SiteService_CreateSite_FullMethodName, []Role{RoleAdmin}},
 		{nightloomv1.TargetService_DeleteTarget_FullMethodName, []Role{RoleAdmin}},
-		{nightloomv1.SiteService_GetSite_FullMethodName, []Role{RoleViewer, RoleOperator, RoleAdmin}},
+		{nightloomv1.SiteService_GetSite_FullMethodName, []Role{RoleViewer, RoleOperator, RoleTelescope, RoleAdmin}},
 		{nightloomv1.QueueService_QueueBlocks_FullMethodName, []Role{RoleOperator, RoleAdmin}},
 		{nightloomv1.QueueService_ReportProgress_FullMethodName, []Role{RoleTelescope, RoleOperator, RoleAdmin}},
 		{nightloomv1.QueueService_GetBlock_FullMethodName, []Role{RoleViewer, RoleOperator, RoleTelescope, RoleAdmin}},

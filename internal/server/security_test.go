@@ -283,20 +283,21 @@ func validCalls(e *env, f fixture, plan *nightloomv1.Plan) map[string]validCall 
 // as auth.go states them (viewer reads sites, targets, the queue, plans and
 // the sky; operator also queues, withdraws and plans; telescope reads the
 // queue and plans, asks for the next assignment, watches and reports
-// progress; admin does everything), independently of methodRoles, so that
+// progress, and since issue 14 reads its site and the targets; admin does
+// everything), independently of methodRoles, so that
 // an edit of the table that widens or narrows a right fails here.
 var specRoles = func() map[string][]Role {
 	v, o, tel, a := RoleViewer, RoleOperator, RoleTelescope, RoleAdmin
 	read, queueRead, plan, report, admin := []Role{v, o, a}, []Role{v, o, tel, a}, []Role{o, a}, []Role{tel, o, a}, []Role{a}
 	return map[string][]Role{
 		nightloomv1.SiteService_CreateSite_FullMethodName:      admin,
-		nightloomv1.SiteService_GetSite_FullMethodName:         read,
+		nightloomv1.SiteService_GetSite_FullMethodName:         queueRead,
 		nightloomv1.SiteService_ListSites_FullMethodName:       read,
 		nightloomv1.SiteService_UpdateSite_FullMethodName:      admin,
 		nightloomv1.SiteService_DeleteSite_FullMethodName:      admin,
 		nightloomv1.TargetService_CreateTarget_FullMethodName:  admin,
-		nightloomv1.TargetService_GetTarget_FullMethodName:     read,
-		nightloomv1.TargetService_ListTargets_FullMethodName:   read,
+		nightloomv1.TargetService_GetTarget_FullMethodName:     queueRead,
+		nightloomv1.TargetService_ListTargets_FullMethodName:   queueRead,
 		nightloomv1.TargetService_UpdateTarget_FullMethodName:  admin,
 		nightloomv1.TargetService_DeleteTarget_FullMethodName:  admin,
 		nightloomv1.QueueService_QueueBlocks_FullMethodName:    plan,

@@ -153,6 +153,8 @@ type Server struct {
 	health  *health.Server
 	hub     *hub
 	metrics *metrics
+	guard   *tokenGuard
+	public  *publicStreams
 
 	lis        net.Listener
 	metricsLis net.Listener
@@ -192,6 +194,9 @@ func Start(ctx context.Context, cfg Config) (*Server, error) {
 	}
 
 	s := &Server{cfg: cfg, log: cfg.Logger, now: cfg.Now, planner: cfg.planner, serveDone: make(chan error, 1)}
+	if w := KeyFileWarning(cfg.TLSKeyFile); w != "" {
+		s.log.Warn(w)
+	}
 	if s.planner == nil {
 		s.planner = schedulerPlanner{}
 	}
@@ -206,6 +211,9 @@ func Start(ctx context.Context, cfg Config) (*Server, error) {
 		s.db, s.closeDB = db, db
 	}
 	fail := func(err error) (*Server, error) {
+		if s.guard != nil {
+			s.guard.close()
+		}
 		if s.lis != nil {
 			_ = s.lis.Close()
 		}
@@ -222,11 +230,13 @@ func Start(ctx context.Context, cfg Config) (*Server, error) {
 	s.metrics = newMetrics(func(ctx context.Context) (int, error) { return s.db.QueueSize(ctx, "") }, s.hub.count)
 
 	obs := &observer{log: s.log, metrics: s.metrics}
-	auth := &authenticator{tokens: s.db}
+	s.guard = newTokenGuard(s.db, s.log, tokenRecheckInterval)
+	s.public = newPublicStreams()
+	auth := &authenticator{tokens: s.db, guard: s.guard}
 	em := &errorMapper{log: s.log}
 	opts := []grpc.ServerOption{
-		grpc.ChainUnaryInterceptor(obs.unary, auth.unary, em.unary),
-		grpc.ChainStreamInterceptor(obs.stream, auth.stream, em.stream),
+		grpc.ChainUnaryInterceptor(obs.unary, auth.unary, em.unary, s.scopeUnary),
+		grpc.ChainStreamInterceptor(obs.stream, s.public.stream, auth.stream, em.stream, s.scopeStream),
 		grpc.MaxRecvMsgSize(cfg.MaxRecvBytes),
 		grpc.MaxSendMsgSize(MaxSendBytes),
 		grpc.MaxConcurrentStreams(MaxConcurrentStreams),
@@ -325,7 +335,8 @@ func (s *Server) CreateToken(ctx context.Context, role Role, label string) (stri
 	return CreateToken(ctx, s.db, role, label)
 }
 
-// Shutdown stops the daemon: health reports NOT_SERVING, watch streams end
+// Shutdown stops the daemon: health reports NOT_SERVING, health watchers and
+// reflection streams end at once (publicstreams.go), watch streams end
 // with UNAVAILABLE, new calls are refused, calls in flight may finish within
 // Config.ShutdownTimeout (or until ctx ends), then the rest are cancelled
 // (GracefulStop falling back to Stop), background replans are awaited and
@@ -334,6 +345,7 @@ func (s *Server) Shutdown(ctx context.Context) error {
 	s.stopOnce.Do(func() {
 		s.log.Info("nightloomd shutting down", "timeout", s.cfg.ShutdownTimeout)
 		s.health.Shutdown()
+		s.public.endAll() // health watchers and reflection clients first
 		s.hub.close()
 		ctx, cancel := context.WithTimeout(ctx, s.cfg.ShutdownTimeout)
 		defer cancel()
@@ -353,6 +365,7 @@ func (s *Server) Shutdown(ctx context.Context) error {
 		s.bgCancel()
 		s.bgMu.Unlock()
 		s.bg.Wait()
+		s.guard.close()
 		var errs []error
 		if s.metricsSrv != nil {
 			mctx, mcancel := context.WithTimeout(context.Background(), 2*time.Second)

@@ -142,7 +142,7 @@ func TestUpgradeFromEachVersion(t *testing.T) {
 				names = append(names, s)
 			}
 			rows.Close()
-			if got, want := strings.Join(names, ","), "1_init,2_plans,3_tokens"; got != want {
+			if got, want := strings.Join(names, ","), "1_init,2_plans,3_tokens,4_token_limits"; got != want {
 				t.Fatalf("schema_migrations: %s, want %s", got, want)
 			}
 			if err := db.IntegrityCheck(ctx); err != nil {
