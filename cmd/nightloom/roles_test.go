@@ -43,7 +43,7 @@ var commandRoles = map[string][]string{
 	"plan make": {rOperator, rAdmin}, "plan show": allRoles, "plan list": allRoles, "plan replan": {rOperator, rAdmin},
 	"plan next": allRoles, "plan watch": allRoles, "plan chart": allRoles,
 	"progress report": {rTelescope, rOperator, rAdmin},
-	"ephemeris": {rViewer, rOperator, rAdmin}, "visibility": {rViewer, rOperator, rAdmin}, "events": {rViewer, rOperator, rAdmin},
+	"ephemeris":       {rViewer, rOperator, rAdmin}, "visibility": {rViewer, rOperator, rAdmin}, "events": {rViewer, rOperator, rAdmin},
 }
 
 func TestCommandsByRole(t *testing.T) {
@@ -112,18 +112,22 @@ func TestCommandsByRole(t *testing.T) {
 		"site update": func(string) []string {
 			return []string{"site", "update", "--file", demoFile("update-site.json"), "--site", freshSite()}
 		},
-		"site delete":   func(string) []string { return []string{"site", "delete", "--site", freshSite()} },
-		"target create": func(r string) []string { return []string{"target", "create", "--name", "NLD role " + r, "--ra", "1", "--dec", "2"} },
-		"target get":    func(string) []string { return []string{"target", "get", "--target", targets[0].GetId()} },
-		"target list":   func(string) []string { return []string{"target", "list"} },
+		"site delete": func(string) []string { return []string{"site", "delete", "--site", freshSite()} },
+		"target create": func(r string) []string {
+			return []string{"target", "create", "--name", "NLD role " + r, "--ra", "1", "--dec", "2"}
+		},
+		"target get":  func(string) []string { return []string{"target", "get", "--target", targets[0].GetId()} },
+		"target list": func(string) []string { return []string{"target", "list"} },
 		"target update": func(string) []string {
 			return []string{"target", "update", "--file", demoFile("update-target.json"), "--target", freshTarget()}
 		},
-		"target delete":  func(string) []string { return []string{"target", "delete", "--target", freshTarget()} },
-		"block queue":    func(string) []string { return []string{"block", "queue", "--file", oneBlock, "--site", sid} },
-		"block get":      func(string) []string { return []string{"block", "get", "--block", runs[0].GetBlockId()} },
-		"block list":     func(string) []string { return []string{"block", "list", "--site", sid} },
-		"block withdraw": func(string) []string { return []string{"block", "withdraw", "--block", freshBlock(), "--reason", "role test"} },
+		"target delete": func(string) []string { return []string{"target", "delete", "--target", freshTarget()} },
+		"block queue":   func(string) []string { return []string{"block", "queue", "--file", oneBlock, "--site", sid} },
+		"block get":     func(string) []string { return []string{"block", "get", "--block", runs[0].GetBlockId()} },
+		"block list":    func(string) []string { return []string{"block", "list", "--site", sid} },
+		"block withdraw": func(string) []string {
+			return []string{"block", "withdraw", "--block", freshBlock(), "--reason", "role test"}
+		},
 		"plan make": func(string) []string {
 			return []string{"plan", "make", "--site", sid, "--night", "2027-01-15", "--budget", "100ms"}
 		},
@@ -145,9 +149,13 @@ func TestCommandsByRole(t *testing.T) {
 			return []string{"progress", "report", "--block", a.GetBlockId(), "--frames", "1", "--report-id", "role-" + r,
 				"--start", a.GetStart().AsTime().Format(time.RFC3339), "--end", a.GetEnd().AsTime().Format(time.RFC3339)}
 		},
-		"ephemeris":  func(string) []string { return []string{"ephemeris", "--file", demoFile("ephemeris.json"), "--site", sid} },
-		"visibility": func(string) []string { return []string{"visibility", "--file", demoFile("visibility.json"), "--site", sid} },
-		"events":     func(string) []string { return []string{"events", "--site", sid, "--date", "2027-01-14"} },
+		"ephemeris": func(string) []string {
+			return []string{"ephemeris", "--file", demoFile("ephemeris.json"), "--site", sid}
+		},
+		"visibility": func(string) []string {
+			return []string{"visibility", "--file", demoFile("visibility.json"), "--site", sid}
+		},
+		"events": func(string) []string { return []string{"events", "--site", sid, "--date", "2027-01-14"} },
 	}
 	// Every command of the client has a row (groups list their verbs).
 	for _, c := range commandsOfClient() {
