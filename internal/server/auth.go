@@ -81,6 +81,10 @@ var methodRoles = map[string][]Role{
 	nightloomv1.QueueService_ListBlocks_FullMethodName:     queueReaders,
 	nightloomv1.QueueService_WithdrawBlock_FullMethodName:  planners,
 	nightloomv1.QueueService_ReportProgress_FullMethodName: reporters,
+	nightloomv1.QueueService_UpdateBlock_FullMethodName:    planners,
+	nightloomv1.QueueService_WithdrawBlocks_FullMethodName: planners,
+
+	nightloomv1.ExportService_ExportPlan_FullMethodName: queueReaders,
 
 	nightloomv1.PlanService_MakePlan_FullMethodName:       planners,
 	nightloomv1.PlanService_GetPlan_FullMethodName:        queueReaders,

@@ -54,6 +54,19 @@ func (s *Server) checkScope(ctx context.Context, site string, req any) error {
 		}
 		return nil
 	}
+	planSite := func(id string) error {
+		if id == "" {
+			return nil
+		}
+		p, err := s.db.GetPlan(ctx, id)
+		if err != nil {
+			return err
+		}
+		if p.SiteID != site {
+			return scopeDenied(site, fmt.Sprintf("plan %q belongs to another site", id))
+		}
+		return nil
+	}
 	switch r := req.(type) {
 	case *nightloomv1.GetSiteRequest:
 		return same("site_id", r.GetSiteId())
@@ -84,6 +97,10 @@ func (s *Server) checkScope(ctx context.Context, site string, req any) error {
 		return blockSite(r.GetBlockId())
 	case *nightloomv1.ReportProgressRequest:
 		return blockSite(r.GetReport().GetBlockId())
+	case *nightloomv1.UpdateBlockRequest:
+		return blockSite(r.GetBlock().GetId())
+	case *nightloomv1.WithdrawBlocksRequest:
+		return same("site_id", r.GetSiteId())
 	case *nightloomv1.ListBlocksRequest:
 		if r.GetSiteId() == "" {
 			r.SiteId = site
@@ -104,17 +121,9 @@ func (s *Server) checkScope(ctx context.Context, site string, req any) error {
 		}
 		return same("site_id", r.GetSiteId())
 	case *nightloomv1.GetPlanRequest:
-		if r.GetPlanId() == "" {
-			return nil
-		}
-		p, err := s.db.GetPlan(ctx, r.GetPlanId())
-		if err != nil {
-			return err
-		}
-		if p.SiteID != site {
-			return scopeDenied(site, fmt.Sprintf("plan %q belongs to another site", r.GetPlanId()))
-		}
-		return nil
+		return planSite(r.GetPlanId())
+	case *nightloomv1.ExportPlanRequest:
+		return planSite(r.GetPlanId())
 
 	case *nightloomv1.NightRequest:
 		return same("site_id", r.GetSiteId())

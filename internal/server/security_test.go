@@ -210,6 +210,37 @@ func validCalls(e *env, f fixture, plan *nightloomv1.Plan) map[string]validCall 
 			_, err := e.queue.ListBlocks(ctx, &nightloomv1.ListBlocksRequest{SiteId: site})
 			return err
 		}),
+		nightloomv1.QueueService_UpdateBlock_FullMethodName: func(t *testing.T) func(ctx context.Context) error {
+			q, err := e.queue.QueueBlocks(adm, &nightloomv1.QueueBlocksRequest{Blocks: []*nightloomv1.Block{testBlock(site, tgt, "G", 8, 2)}})
+			if err != nil {
+				t.Fatal(err)
+			}
+			id := q.GetBlocks()[0].GetId()
+			return func(ctx context.Context) error {
+				_, err := e.queue.UpdateBlock(ctx, &nightloomv1.UpdateBlockRequest{Block: &nightloomv1.Block{Id: id, Priority: 3},
+					UpdateMask: &fieldmaskpb.FieldMask{Paths: []string{"priority"}}})
+				return err
+			}
+		},
+		nightloomv1.QueueService_WithdrawBlocks_FullMethodName: func(t *testing.T) func(ctx context.Context) error {
+			other, err := e.targets.CreateTarget(adm, &nightloomv1.CreateTargetRequest{Target: testFixed(fmt.Sprintf("Auth Withdraw %d", next()), 100, 20)})
+			if err != nil {
+				t.Fatal(err)
+			}
+			oid := other.GetTarget().GetId()
+			if _, err := e.queue.QueueBlocks(adm, &nightloomv1.QueueBlocksRequest{Blocks: []*nightloomv1.Block{testBlock(site, oid, "G", 8, 2)}}); err != nil {
+				t.Fatal(err)
+			}
+			return func(ctx context.Context) error {
+				_, err := e.queue.WithdrawBlocks(ctx, &nightloomv1.WithdrawBlocksRequest{SiteId: site, TargetId: oid, Reason: "auth test"})
+				return err
+			}
+		},
+		nightloomv1.ExportService_ExportPlan_FullMethodName: now(func(ctx context.Context) error {
+			_, err := nightloomv1.NewExportServiceClient(e.conn).ExportPlan(ctx, &nightloomv1.ExportPlanRequest{PlanId: plan.GetId(),
+				Format: nightloomv1.ExportFormat_EXPORT_FORMAT_CSV})
+			return err
+		}),
 		nightloomv1.QueueService_WithdrawBlock_FullMethodName: func(t *testing.T) func(ctx context.Context) error {
 			q, err := e.queue.QueueBlocks(adm, &nightloomv1.QueueBlocksRequest{Blocks: []*nightloomv1.Block{testBlock(site, tgt, "G", 8, 2)}})
 			if err != nil {
@@ -305,6 +336,9 @@ var specRoles = func() map[string][]Role {
 		nightloomv1.QueueService_ListBlocks_FullMethodName:     queueRead,
 		nightloomv1.QueueService_WithdrawBlock_FullMethodName:  plan,
 		nightloomv1.QueueService_ReportProgress_FullMethodName: report,
+		nightloomv1.QueueService_UpdateBlock_FullMethodName:    plan,
+		nightloomv1.QueueService_WithdrawBlocks_FullMethodName: plan,
+		nightloomv1.ExportService_ExportPlan_FullMethodName:    queueRead,
 		nightloomv1.PlanService_MakePlan_FullMethodName:        plan,
 		nightloomv1.PlanService_GetPlan_FullMethodName:         queueRead,
 		nightloomv1.PlanService_ListPlans_FullMethodName:       queueRead,

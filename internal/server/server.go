@@ -253,6 +253,7 @@ func Start(ctx context.Context, cfg Config) (*Server, error) {
 	nightloomv1.RegisterQueueServiceServer(s.grpc, &queueService{s: s})
 	nightloomv1.RegisterPlanServiceServer(s.grpc, &planService{s: s})
 	nightloomv1.RegisterSkyServiceServer(s.grpc, &skyService{s: s})
+	nightloomv1.RegisterExportServiceServer(s.grpc, &exportService{s: s})
 	s.health = health.NewServer()
 	healthpb.RegisterHealthServer(s.grpc, s.health)
 	reflection.Register(s.grpc)

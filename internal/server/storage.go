@@ -30,6 +30,8 @@ type Storage interface {
 	GetBlock(ctx context.Context, id string) (store.Block, error)
 	ListBlocks(ctx context.Context, f store.BlockFilter, p store.Page) ([]store.Block, string, error)
 	WithdrawBlock(ctx context.Context, id string) (store.Block, error)
+	UpdateBlock(ctx context.Context, b store.Block, actor, fields string) (store.Block, error)
+	WithdrawMatching(ctx context.Context, siteID, targetID, actor string, keep func(store.Block) bool) ([]store.Block, error)
 	QueueSize(ctx context.Context, siteID string) (int, error)
 	ReportProgress(ctx context.Context, r store.ProgressReport) (store.Block, bool, error)
 	GetProgressReport(ctx context.Context, reportID string) (store.ProgressReport, error)
