@@ -79,6 +79,8 @@ type api struct {
 	plans   pb.PlanServiceClient
 	sky     pb.SkyServiceClient
 	timeout time.Duration
+	// tlsOn and clientCert: how the connection was made (for messages).
+	tlsOn, clientCert bool
 }
 
 // bearer sends "authorization: Bearer TOKEN" with every call. It does not
@@ -126,7 +128,9 @@ func (c *connFlags) dial(stderr io.Writer) (*api, error) {
 	if err != nil {
 		return nil, flagError("server", "%v", err)
 	}
-	return newAPI(cc, c.timeout), nil
+	a := newAPI(cc, c.timeout)
+	a.tlsOn, a.clientCert = tlsOn, c.tlsCert != ""
+	return a, nil
 }
 
 // tlsConfig builds the client's TLS: the daemon's CA (--tls-ca, else the
@@ -213,13 +217,15 @@ type rpcError struct {
 	call   string
 	st     *status.Status
 	server string
+	// tlsOn and clientCert: how the client connected (for messages).
+	tlsOn, clientCert bool
 }
 
 func (e *rpcError) Error() string {
 	var b strings.Builder
 	switch e.st.Code() {
 	case codes.Unavailable:
-		if why := transportFailure(e.st.Message()); why != "" {
+		if why := transportFailure(e.st.Message(), e.tlsOn, e.clientCert); why != "" {
 			fmt.Fprintf(&b, "%s: %s: %s (%s)", e.call, e.server, why, e.st.Message())
 			return b.String()
 		}
@@ -265,11 +271,18 @@ func (e *rpcError) Error() string {
 // transportFailure says in words what a connection failure means, from the
 // texts Go's net and crypto/tls packages and grpc-go put in UNAVAILABLE
 // messages; "" when it is none of the known ones.
-func transportFailure(msg string) string {
+// tlsOn and clientCert say how the client connected: a connection the
+// daemon drops during a TLS handshake without a client certificate is a
+// daemon that wants one.
+func transportFailure(msg string, tlsOn, clientCert bool) string {
 	m := strings.ToLower(msg)
+	dropped := strings.Contains(m, "broken pipe") || strings.Contains(m, "connection reset") || strings.Contains(m, "eof") ||
+		strings.Contains(m, "error reading server preface")
 	switch {
+	case dropped && tlsOn && !clientCert:
+		return "the daemon dropped the TLS connection: it probably asks for a client certificate (--tls-cert and --tls-key)"
 	case strings.Contains(m, "connection refused"):
-		return "nothing listens there; is nightloomd running? set --server or " + envServer
+		return "cannot reach a daemon there: nothing listens; is nightloomd running? set --server or " + envServer
 	case strings.Contains(m, "certificate required"), strings.Contains(m, "bad certificate"),
 		strings.Contains(m, "unknown certificate authority") && !strings.Contains(m, "x509"):
 		return "the daemon refused the TLS handshake: it asks for a client certificate its CA signed (--tls-cert and --tls-key)"
@@ -281,8 +294,7 @@ func transportFailure(msg string) string {
 		return "the daemon's certificate has expired or is not yet valid"
 	case strings.Contains(m, "first record does not look like a tls handshake"):
 		return "the daemon speaks plaintext, not TLS: drop --tls-ca, --tls-cert and --tls-key"
-	case strings.Contains(m, "broken pipe"), strings.Contains(m, "connection reset"), strings.Contains(m, "eof"),
-		strings.Contains(m, "error reading server preface"):
+	case dropped && !tlsOn:
 		return "the daemon closed the connection at once: it probably speaks TLS (give --tls-ca, and --tls-cert/--tls-key if it asks for client certificates)"
 	}
 	return ""
@@ -336,7 +348,7 @@ func (a *api) callErr(call string, err error) error {
 	if !ok {
 		return fmt.Errorf("%s: %w", call, err)
 	}
-	return &rpcError{call: call, st: st, server: a.cc.Target()}
+	return &rpcError{call: call, st: st, server: a.cc.Target(), tlsOn: a.tlsOn, clientCert: a.clientCert}
 }
 
 // isCode reports whether err is a failed call with the given code.

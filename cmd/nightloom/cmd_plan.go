@@ -28,6 +28,7 @@ func planCommands() []command {
 		{name: "next", summary: "the run the telescope should start next", run: runPlanNext},
 		{name: "watch", summary: "print every new plan version of a site as it is stored", run: runPlanWatch},
 		{name: "chart", summary: "draw a plan's night as a PNG or SVG chart", run: runPlanChart},
+		{name: "export", summary: "a plan as CSV (one row per run) or iCalendar (one event per run)", run: runPlanExport},
 	}
 }
 

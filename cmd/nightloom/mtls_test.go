@@ -111,10 +111,10 @@ func TestClientMutualTLS(t *testing.T) {
 		args []string
 		want string
 	}{
-		{"no client certificate", []string{"--server", addr, "--tls-ca", p.ca}, "asks for a client certificate"},
+		{"no client certificate", []string{"--server", addr, "--tls-ca", p.ca}, "client certificate (--tls-cert and --tls-key)"},
 		{"plaintext to a TLS daemon", []string{"--server", addr}, "probably speaks TLS"},
 		{"TLS to a plaintext daemon", []string{"--server", plain.addr, "--tls-ca", p.ca}, "speaks plaintext, not TLS"},
-		{"nothing listening", []string{"--server", closed}, "nothing listens there"},
+		{"nothing listening", []string{"--server", closed}, "nothing listens"},
 	}
 	for _, c := range cases {
 		args := append([]string{"site", "list", "--token", token, "--timeout", "5s"}, c.args...)

@@ -39,9 +39,9 @@ var commandRoles = map[string][]string{
 	"site create": {rAdmin}, "site get": {rViewer, rTelescope, rOperator, rAdmin}, "site list": {rViewer, rOperator, rAdmin},
 	"site update": {rAdmin}, "site delete": {rAdmin},
 	"target create": {rAdmin}, "target get": allRoles, "target list": allRoles, "target update": {rAdmin}, "target delete": {rAdmin},
-	"block queue": {rOperator, rAdmin}, "block get": allRoles, "block list": allRoles, "block withdraw": {rOperator, rAdmin},
+	"block queue": {rOperator, rAdmin}, "block update": {rOperator, rAdmin}, "block get": allRoles, "block list": allRoles, "block withdraw": {rOperator, rAdmin},
 	"plan make": {rOperator, rAdmin}, "plan show": allRoles, "plan list": allRoles, "plan replan": {rOperator, rAdmin},
-	"plan next": allRoles, "plan watch": allRoles, "plan chart": allRoles,
+	"plan next": allRoles, "plan watch": allRoles, "plan chart": allRoles, "plan export": allRoles,
 	"progress report": {rTelescope, rOperator, rAdmin},
 	"ephemeris":       {rViewer, rOperator, rAdmin}, "visibility": {rViewer, rOperator, rAdmin}, "events": {rViewer, rOperator, rAdmin},
 }
@@ -130,6 +130,10 @@ func TestCommandsByRole(t *testing.T) {
 		},
 		"plan make": func(string) []string {
 			return []string{"plan", "make", "--site", sid, "--night", "2027-01-15", "--budget", "100ms"}
+		},
+		"block update": func(string) []string { return []string{"block", "update", "--block", freshBlock(), "--priority", "3"} },
+		"plan export": func(r string) []string {
+			return []string{"plan", "export", "--plan", plan.GetId(), "--out", filepath.Join(dir, r+".ics")}
 		},
 		"plan show": func(string) []string { return []string{"plan", "show", "--plan", plan.GetId()} },
 		"plan list": func(string) []string { return []string{"plan", "list", "--site", sid} },
