@@ -382,3 +382,48 @@ func unescapeText(s string) string {
 }
 
 func errorf(format string, args ...any) error { return fmt.Errorf("icalendar: "+format, args...) }
+
+// TestTargetNamesUnique: a second target with a name in use, or a rename to
+// one, is ALREADY_EXISTS naming the holder; an update that keeps its own
+// name succeeds; nothing is written by a refusal.
+func TestTargetNamesUnique(t *testing.T) {
+	e := newEnv(t, "")
+	first, err := e.targets.CreateTarget(e.admin(), &nightloomv1.CreateTargetRequest{Target: testFixed("Hollowmere Nebula", 80, 10)})
+	if err != nil {
+		t.Fatal(err)
+	}
+	other, err := e.targets.CreateTarget(e.admin(), &nightloomv1.CreateTargetRequest{Target: testFixed("Hollowmere Nebula B", 81, 11)})
+	if err != nil {
+		t.Fatal(err)
+	}
+	probe := newWriteProbe(t, e.dbPath)
+	_, err = e.targets.CreateTarget(e.admin(), &nightloomv1.CreateTargetRequest{Target: testFixed("Hollowmere Nebula", 82, 12)})
+	checkAlreadyExists(t, "second target with the name", err, first.GetTarget().GetId())
+	rename := testFixed("Hollowmere Nebula", 81, 11)
+	rename.Id = other.GetTarget().GetId()
+	_, err = e.targets.UpdateTarget(e.admin(), &nightloomv1.UpdateTargetRequest{Target: rename, UpdateMask: mask("name")})
+	checkAlreadyExists(t, "rename to a name in use", err, first.GetTarget().GetId())
+	if probe.wrote(t) {
+		t.Error("a refused name was written")
+	}
+	keep := testFixed("Hollowmere Nebula", 80.5, 10)
+	keep.Id = first.GetTarget().GetId()
+	if _, err := e.targets.UpdateTarget(e.admin(), &nightloomv1.UpdateTargetRequest{Target: keep, UpdateMask: mask("name", "fixed")}); err != nil {
+		t.Errorf("update keeping its own name: %v", err)
+	}
+}
+
+func checkAlreadyExists(t *testing.T, what string, err error, holder string) {
+	t.Helper()
+	st := status.Convert(err)
+	if st.Code() != codes.AlreadyExists || !hasViolation(err, "target.name") {
+		t.Errorf("%s: %v, want ALREADY_EXISTS naming target.name", what, err)
+		return
+	}
+	for _, d := range st.Details() {
+		if ri, ok := d.(*errdetails.ResourceInfo); ok && ri.GetResourceName() == holder {
+			return
+		}
+	}
+	t.Errorf("%s: no ResourceInfo naming %s", what, holder)
+}

@@ -137,7 +137,7 @@ func validCalls(e *env, f fixture, plan *nightloomv1.Plan) map[string]validCall 
 		return r.GetSite().GetId()
 	}
 	newTarget := func(t *testing.T) string {
-		r, err := e.targets.CreateTarget(adm, &nightloomv1.CreateTargetRequest{Target: testFixed("Pebblewick Cluster", 140, 20)})
+		r, err := e.targets.CreateTarget(adm, &nightloomv1.CreateTargetRequest{Target: testFixed(fmt.Sprintf("Pebblewick Cluster %d", next()), 140, 20)})
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -172,7 +172,9 @@ func validCalls(e *env, f fixture, plan *nightloomv1.Plan) map[string]validCall 
 			}
 		},
 		nightloomv1.TargetService_CreateTarget_FullMethodName: now(func(ctx context.Context) error {
-			_, err := e.targets.CreateTarget(ctx, &nightloomv1.CreateTargetRequest{Target: testComet()})
+			c := testComet()
+			c.Name = fmt.Sprintf("C/2031 E%d (Marrowind)", 10+next())
+			_, err := e.targets.CreateTarget(ctx, &nightloomv1.CreateTargetRequest{Target: c})
 			return err
 		}),
 		nightloomv1.TargetService_GetTarget_FullMethodName: now(func(ctx context.Context) error {

@@ -164,6 +164,9 @@ type Server struct {
 	// publishing it, so that watchers see versions in order, and the
 	// check-solve-store sequence of a replan.
 	siteLocks [64]sync.Mutex
+	// targetNames serialises the check and the write of a target's name
+	// (targetnames.go).
+	targetNames sync.Mutex
 
 	// bg tracks background work (replans after an urgent block); bgCtx is
 	// cancelled at shutdown.

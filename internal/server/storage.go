@@ -25,6 +25,7 @@ type Storage interface {
 	ListTargets(ctx context.Context, p store.Page) ([]store.Target, string, error)
 	UpdateTarget(ctx context.Context, t store.Target) (store.Target, error)
 	DeleteTarget(ctx context.Context, id string) error
+	TargetIDsByName(ctx context.Context, name string) ([]string, error)
 
 	CreateBlocks(ctx context.Context, blocks []store.Block) ([]store.Block, error)
 	GetBlock(ctx context.Context, id string) (store.Block, error)

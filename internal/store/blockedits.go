@@ -152,3 +152,23 @@ func (d *DB) BlockEdits(ctx context.Context, blockID string) ([]BlockEdit, error
 	}
 	return out, mapErr(ctx, op, rows.Err())
 }
+
+// TargetIDsByName returns the ids of the targets with exactly that name, in
+// order of creation (normally none or one: the server keeps names unique).
+func (d *DB) TargetIDsByName(ctx context.Context, name string) ([]string, error) {
+	op := fmt.Sprintf("targets named %q", name)
+	rows, err := d.r.QueryContext(ctx, `SELECT id FROM targets WHERE name = ? ORDER BY created_at, id`, name)
+	if err != nil {
+		return nil, mapErr(ctx, op, err)
+	}
+	defer rows.Close()
+	var out []string
+	for rows.Next() {
+		var id string
+		if err := rows.Scan(&id); err != nil {
+			return nil, mapErr(ctx, op, err)
+		}
+		out = append(out, id)
+	}
+	return out, mapErr(ctx, op, rows.Err())
+}
