@@ -101,16 +101,20 @@ func FuzzOrbitFile(f *testing.F) {
 		if err := os.WriteFile(path, data, 0o600); err != nil {
 			t.Fatal(err)
 		}
-		c, err := readOrbit(path)
+		c, star, err := readOrbit(path)
 		if err != nil {
 			var ue *usageError
 			if !errors.As(err, &ue) || !strings.HasPrefix(err.Error(), "flag --orbit: ") {
 				t.Fatalf("error %T %q, want a usage error about --orbit", err, err)
 			}
-			if c != nil {
-				t.Fatal("an orbit with the error")
+			if c != nil || star != nil {
+				t.Fatal("a target with the error")
 			}
 			return
+		}
+		var probe map[string]json.RawMessage
+		if json.Unmarshal(data, &probe) == nil && probe["q_au"] == nil {
+			return // the API's target form: checked by server.ValidateTarget's own tests
 		}
 		vals, ok := firstObject(data)
 		if !ok {
@@ -229,7 +233,7 @@ func TestOrbitFileRefusesTrailingData(t *testing.T) {
 		if err := os.WriteFile(path, []byte(content), 0o600); err != nil {
 			t.Fatal(err)
 		}
-		_, err := readOrbit(path)
+		_, _, err := readOrbit(path)
 		if wantOK := name == "alone" || name == "newline"; (err == nil) != wantOK {
 			t.Errorf("%s: readOrbit error %v, want error %v", name, err, !wantOK)
 		}

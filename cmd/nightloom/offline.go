@@ -9,12 +9,17 @@ import (
 	"io"
 	"math"
 	"os"
+	"path/filepath"
 	"strconv"
 	"strings"
 	"text/tabwriter"
 	"time"
 
+	"google.golang.org/protobuf/types/known/timestamppb"
+
 	"github.com/nightloom/nightloom/ephem"
+	"github.com/nightloom/nightloom/internal/server"
+	pb "github.com/nightloom/nightloom/proto/nightloom/v1"
 )
 
 // newFlagSet returns a flag set that reports errors to us instead of
@@ -75,11 +80,53 @@ type orbitFile struct {
 	K1           *float64 `json:"k1"`
 }
 
-// readOrbit loads and validates an orbit file.
-func readOrbit(path string) (*ephem.Conic, error) {
+// readOrbit loads an orbit file and validates it as the API validates a
+// target (server.ValidateTarget, one set of limits for both). Two forms
+// are read:
+//
+//   - the API's target JSON (the canonical protobuf JSON mapping), a Target
+//     or a CreateTargetRequest ({"target": {...}}), as in testdata/demo;
+//   - the short form {"q_au", "e", "i_deg", "node_deg", "peri_deg",
+//     "perihelion_tt", "m1", "k1"} that scripts already use.
+//
+// A fixed target in the API's form is accepted too and returned as a star.
+func readOrbit(path string) (*ephem.Conic, *ephem.Star, error) {
 	data, err := os.ReadFile(path)
 	if err != nil {
-		return nil, flagError("orbit", "%v", err)
+		return nil, nil, flagError("orbit", "%v", err)
+	}
+	t, err := orbitTarget(path, data)
+	if err != nil {
+		return nil, nil, err
+	}
+	ct, err := server.ValidateTarget(t)
+	if err != nil {
+		return nil, nil, flagError("orbit", "%s: %v", path, err)
+	}
+	return ct.Orbit, ct.Star, nil
+}
+
+// orbitTarget decodes either form of an orbit file into the API's Target.
+func orbitTarget(path string, data []byte) (*pb.Target, error) {
+	var probe map[string]json.RawMessage
+	if err := json.Unmarshal(data, &probe); err != nil {
+		return nil, flagError("orbit", "%s: %v", path, err)
+	}
+	if _, short := probe["q_au"]; !short {
+		if _, isReq := probe["target"]; isReq {
+			req := &pb.CreateTargetRequest{}
+			if err := parseRequest(path, data, req); err != nil {
+				return nil, err
+			}
+			return req.GetTarget(), nil
+		}
+		if _, isTarget := probe["orbit"]; isTarget || probe["fixed"] != nil || probe["name"] != nil {
+			t := &pb.Target{}
+			if err := parseRequest(path, data, t); err != nil {
+				return nil, err
+			}
+			return t, nil
+		}
 	}
 	dec := json.NewDecoder(bytes.NewReader(data))
 	dec.DisallowUnknownFields()
@@ -103,19 +150,15 @@ func readOrbit(path string) (*ephem.Conic, error) {
 	if err != nil {
 		return nil, flagError("orbit", "%s: field \"perihelion_tt\": want RFC 3339, got %q", path, f.PerihelionTT)
 	}
-	o := ephem.Orbit{QAU: *f.QAU, E: *f.E, IncDeg: *f.IncDeg, NodeDeg: *f.NodeDeg, PeriDeg: *f.PeriDeg,
-		PerihelionTT: ephem.JDFromLabel(tp)}
 	if (f.M1 == nil) != (f.K1 == nil) {
 		return nil, flagError("orbit", "%s: give both \"m1\" and \"k1\" or neither", path)
 	}
+	o := &pb.OrbitElements{PerihelionDistanceAu: *f.QAU, Eccentricity: *f.E, InclinationDeg: *f.IncDeg,
+		AscendingNodeDeg: *f.NodeDeg, PerihelionArgumentDeg: *f.PeriDeg, PerihelionTimeTt: timestamppb.New(tp)}
 	if f.M1 != nil {
-		o.Law, o.M1, o.K1 = ephem.MagComet, *f.M1, *f.K1
+		o.MagnitudeLaw = &pb.OrbitElements_Comet{Comet: &pb.CometMagnitude{M1: *f.M1, K1: *f.K1}}
 	}
-	c, err := ephem.NewConic(o)
-	if err != nil {
-		return nil, flagError("orbit", "%s: %v", path, strings.TrimPrefix(err.Error(), "ephem: "))
-	}
-	return c, nil
+	return &pb.Target{Name: filepath.Base(path), Position: &pb.Target_Orbit{Orbit: o}}, nil
 }
 
 // skyBody is the JSON of the Sun or the Moon in `sky --json`.
@@ -259,7 +302,7 @@ func runSky(args []string, stdout, stderr io.Writer) error {
 		}
 		star = &s
 	case *orbitPath != "":
-		if orbit, err = readOrbit(*orbitPath); err != nil {
+		if orbit, star, err = readOrbit(*orbitPath); err != nil {
 			return err
 		}
 	}
