@@ -21,7 +21,6 @@ import (
 	"google.golang.org/grpc/health"
 	healthpb "google.golang.org/grpc/health/grpc_health_v1"
 	"google.golang.org/grpc/keepalive"
-	"google.golang.org/grpc/reflection"
 
 	"github.com/nightloom/nightloom/internal/store"
 	nightloomv1 "github.com/nightloom/nightloom/proto/nightloom/v1"
@@ -259,7 +258,7 @@ func Start(ctx context.Context, cfg Config) (*Server, error) {
 	nightloomv1.RegisterExportServiceServer(s.grpc, &exportService{s: s})
 	s.health = health.NewServer()
 	healthpb.RegisterHealthServer(s.grpc, s.health)
-	reflection.Register(s.grpc)
+	registerReflection(s.grpc, s.log)
 	for name := range s.grpc.GetServiceInfo() {
 		s.health.SetServingStatus(name, healthpb.HealthCheckResponse_SERVING)
 	}

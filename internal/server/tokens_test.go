@@ -10,6 +10,7 @@ import (
 	"log/slog"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
 	"time"
@@ -19,6 +20,7 @@ import (
 	reflectionpb "google.golang.org/grpc/reflection/grpc_reflection_v1"
 	"google.golang.org/grpc/status"
 	"google.golang.org/protobuf/proto"
+	"google.golang.org/protobuf/types/descriptorpb"
 
 	nightloomv1 "github.com/nightloom/nightloom/proto/nightloom/v1"
 )
@@ -312,5 +314,53 @@ func TestKeyFileWarning(t *testing.T) {
 		if got := KeyFileWarning(p) != ""; got != c.warn {
 			t.Errorf("mode %04o: warning %v, want %v (%q)", c.mode, got, c.warn, KeyFileWarning(p))
 		}
+	}
+}
+
+// TestReflectionCarriesComments: a reflection client (grpc_reflection_v1)
+// asks for the file that defines QueueService and reads the Block message's
+// comments from its source info: the unit and range of exposure.
+func TestReflectionCarriesComments(t *testing.T) {
+	e := newEnv(t, "")
+	st, err := reflectionpb.NewServerReflectionClient(e.conn).ServerReflectionInfo(context.Background())
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := st.Send(&reflectionpb.ServerReflectionRequest{MessageRequest: &reflectionpb.ServerReflectionRequest_FileContainingSymbol{
+		FileContainingSymbol: "nightloom.v1.QueueService"}}); err != nil {
+		t.Fatal(err)
+	}
+	r, err := st.Recv()
+	if err != nil {
+		t.Fatal(err)
+	}
+	var found string
+	for _, raw := range r.GetFileDescriptorResponse().GetFileDescriptorProto() {
+		var fd descriptorpb.FileDescriptorProto
+		if err := proto.Unmarshal(raw, &fd); err != nil {
+			t.Fatal(err)
+		}
+		if fd.GetName() != "nightloom/v1/queue.proto" {
+			continue
+		}
+		// Path [4, i, 2, j]: message i, field j.
+		for mi, m := range fd.GetMessageType() {
+			if m.GetName() != "Block" {
+				continue
+			}
+			for fi, f := range m.GetField() {
+				if f.GetName() != "exposure" {
+					continue
+				}
+				for _, loc := range fd.GetSourceCodeInfo().GetLocation() {
+					if slices.Equal(loc.GetPath(), []int32{4, int32(mi), 2, int32(fi)}) {
+						found = loc.GetLeadingComments()
+					}
+				}
+			}
+		}
+	}
+	if !strings.Contains(found, "Length of one exposure") || !strings.Contains(found, "1 h") {
+		t.Fatalf("Block.exposure's comment over reflection: %q", found)
 	}
 }
