@@ -193,7 +193,8 @@ func TestServicesAndRPCs(t *testing.T) {
 	want := map[string][]string{
 		"SiteService":   {"CreateSite", "DeleteSite", "GetSite", "ListSites", "UpdateSite"},
 		"TargetService": {"CreateTarget", "DeleteTarget", "GetTarget", "ListTargets", "UpdateTarget"},
-		"QueueService":  {"GetBlock", "ListBlocks", "QueueBlocks", "ReportProgress", "WithdrawBlock"},
+		"QueueService":  {"GetBlock", "ListBlocks", "QueueBlocks", "ReportProgress", "UpdateBlock", "WithdrawBlock", "WithdrawBlocks"},
+		"ExportService": {"ExportPlan"},
 		"PlanService":   {"GetPlan", "ListPlans", "MakePlan", "NextAssignment", "Replan", "WatchPlans"},
 		"SkyService":    {"Ephemeris", "Night", "Visibility"},
 	}
