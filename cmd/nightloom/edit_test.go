@@ -80,3 +80,68 @@ func TestEditAndExportCommands(t *testing.T) {
 		t.Errorf("bad format: exit %d %s", r.code, r.stderr)
 	}
 }
+
+// TestNightAndEventsOnePresentation: `night` (offline) and `events`
+// (daemon) print the same table: the same event names in words, in time
+// order, local time first, then the Moon's phase and illumination.
+func TestNightAndEventsOnePresentation(t *testing.T) {
+	d := startTestDaemon(t)
+	site, _, _ := loadScenario(t, d)
+	ev := d.cli(t, "events", "--site", site.GetId(), "--date", "2027-01-14").ok(t, "events").stdout
+	ni := d.cli(t, "night", "--site", "44.12,5.24,650", "--date", "2027-01-14", "--tz", "Europe/Paris").ok(t, "night").stdout
+	table := func(out string) (names []string, moon string) {
+		lines := strings.Split(out, "\n")
+		in := false
+		var last time.Time
+		for _, l := range lines {
+			switch {
+			case strings.HasPrefix(l, "event "):
+				in = true
+				if !strings.Contains(l, "local (Europe/Paris)  UTC") && !strings.Contains(l, "local (Europe/Paris)") {
+					t.Errorf("header %q: want local first", l)
+				}
+			case strings.HasPrefix(l, "Moon at local midnight"):
+				moon = l
+				in = false
+			case in && strings.TrimSpace(l) != "":
+				f := strings.Fields(l)
+				i := 0
+				for i < len(f) && !strings.HasPrefix(f[i], "20") {
+					i++
+				}
+				names = append(names, strings.Join(f[:i], " "))
+				if i+1 < len(f) {
+					ts, err := time.Parse("2006-01-02 15:04:05", f[i]+" "+f[i+1])
+					if err == nil && ts.Before(last) {
+						t.Errorf("events out of time order at %q", l)
+					}
+					last = ts
+				}
+			}
+		}
+		return names, moon
+	}
+	en, em := table(ev)
+	nn, nm := table(ni)
+	if strings.Join(en, ",") != strings.Join(nn, ",") || len(en) != 10 {
+		t.Errorf("event names differ:\nevents %v\nnight  %v", en, nn)
+	}
+	if em == "" || em != nm || !strings.Contains(em, "waxing crescent, 41 % illuminated") {
+		t.Errorf("Moon lines: events %q, night %q; want the same, waxing crescent 41 %%", em, nm)
+	}
+}
+
+// TestMoonPhaseWords: the phase names at their limits (common practice,
+// no source: new and full within 3 %, quarters within 3 % of half).
+func TestMoonPhaseWords(t *testing.T) {
+	for _, c := range []struct {
+		f      float64
+		waxing bool
+		want   string
+	}{{0.01, true, "new Moon"}, {0.2, true, "waxing crescent"}, {0.5, true, "first quarter"}, {0.8, true, "waxing gibbous"},
+		{0.99, false, "full Moon"}, {0.8, false, "waning gibbous"}, {0.5, false, "last quarter"}, {0.2, false, "waning crescent"}} {
+		if got := moonPhase(c.f, c.waxing); got != c.want {
+			t.Errorf("moonPhase(%v, %v) = %q, want %q", c.f, c.waxing, got, c.want)
+		}
+	}
+}

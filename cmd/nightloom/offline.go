@@ -409,19 +409,13 @@ func runNight(args []string, stdout, stderr io.Writer) error {
 	if *asJSON {
 		return json.NewEncoder(stdout).Encode(nightJSON(&n))
 	}
-	tw := tabwriter.NewWriter(stdout, 0, 0, 2, ' ', 0)
-	fmt.Fprintf(tw, "night of %s, window %s to %s UTC\n\n", *date, n.Start.Format("2006-01-02 15:04"), n.End.Format("2006-01-02 15:04"))
-	fmt.Fprintf(tw, "event\tUTC\tlocal (%s)\n", loc)
+	fmt.Fprintf(stdout, "night of %s (from local mean-solar noon %s to the next noon, UTC)\n\n", *date, n.Start.Format("2006-01-02 15:04"))
 	order := []ephem.EventKind{ephem.Sunset, ephem.CivilDusk, ephem.NauticalDusk, ephem.AstronomicalDusk,
 		ephem.AstronomicalDawn, ephem.NauticalDawn, ephem.CivilDawn, ephem.Sunrise, ephem.Moonrise, ephem.Moonset}
+	var evs []nightEvent
 	for _, k := range order {
 		t, ok := n.Get(k)
-		if !ok {
-			fmt.Fprintf(tw, "%s\t-\t-\n", k)
-			continue
-		}
-		t = t.Round(time.Second)
-		fmt.Fprintf(tw, "%s\t%s\t%s\n", k, t.UTC().Format("2006-01-02 15:04:05"), t.In(loc).Format("2006-01-02 15:04:05"))
+		evs = append(evs, nightEvent{name: eventWords[k], t: t, ok: ok})
 	}
-	return tw.Flush()
+	return printEvents(stdout, loc, evs, localMidnight(d.Year(), d.Month(), d.Day(), loc))
 }
