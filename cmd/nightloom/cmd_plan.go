@@ -520,6 +520,7 @@ func runPlanWatch(args []string, stdout, stderr io.Writer) error {
 		if n > 0 {
 			fmt.Fprintln(stdout)
 		}
+		fmt.Fprintln(stdout, watchHeading(msg.GetPlan(), n == 0 && *current, pc.clock))
 		if err := printPlan(stdout, msg.GetPlan(), pc, nil); err != nil {
 			return err
 		}
@@ -528,6 +529,36 @@ func runPlanWatch(args []string, stdout, stderr io.Writer) error {
 		}
 	}
 	return nil
+}
+
+// watchHeading says what a watched plan is: the site's latest plan when
+// the stream opened (--current), or a new version, and which night or
+// interval it covers, so that a reader knows which night is shown.
+func watchHeading(p *pb.Plan, current bool, c clock) string {
+	what := "new plan version"
+	if current {
+		what = "latest plan when the watch began"
+	}
+	span := "interval " + c.interval(p.GetInterval())
+	if p.GetNight() != nil {
+		span = "the night of " + dateString(p.GetNight())
+	}
+	return fmt.Sprintf("== %s: %s (version %d) ==", what, span, p.GetVersion())
+}
+
+// solverWords explains the solver's name (SolverStats.algorithm) to a
+// reader: the main solver is a greedy start improved by adaptive
+// large-neighbourhood search (README, "The objective").
+func solverWords(name string) string {
+	switch name {
+	case "alns":
+		return "greedy start + adaptive large-neighbourhood search (alns)"
+	case "alns-replan":
+		return "replan: greedy start + adaptive large-neighbourhood search (alns-replan)"
+	case "exact-dp":
+		return "exact dynamic program (exact-dp)"
+	}
+	return name
 }
 
 // overheadText lists the non-zero overheads and their total.
@@ -633,7 +664,10 @@ func printPlan(w io.Writer, p *pb.Plan, pc *planContext, after *time.Time) error
 			notes = append(notes, "non-sidereal")
 		}
 		if cs.Magnitude != nil {
-			notes = append(notes, fmt.Sprintf("mag %.1f", cs.GetMagnitude()))
+			notes = append(notes, fmt.Sprintf("mag %.1f with extinction", cs.GetMagnitude()))
+		}
+		if n := brightMoonNote(pc.site, pc.blocks[x.GetBlockId()], x); n != "" {
+			notes = append(notes, n)
 		}
 		side := "-"
 		switch x.GetPointing().GetMeridianSide() {
@@ -680,7 +714,7 @@ func printPlan(w io.Writer, p *pb.Plan, pc *planContext, after *time.Time) error
 			o.GetCompletionBonus())
 	}
 	if s := p.GetSolver(); s != nil {
-		fmt.Fprintf(w, "solver %s: %s, %d iterations, seed %d, %d blocks on %d steps of %s\n", s.GetAlgorithm(),
+		fmt.Fprintf(w, "planned by %s in %s: %d improvement rounds, seed %d, %d blocks on %d steps of %s\n", solverWords(s.GetAlgorithm()),
 			dur(s.GetSolveTime()), s.GetIterations(), s.GetSeed(), s.GetBlocksConsidered(), s.GetGridSteps(), dur(s.GetGridStep()))
 	}
 	return nil

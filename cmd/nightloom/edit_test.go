@@ -8,6 +8,9 @@ import (
 	"testing"
 	"time"
 
+	"google.golang.org/protobuf/proto"
+	"google.golang.org/protobuf/types/known/timestamppb"
+
 	pb "github.com/nightloom/nightloom/proto/nightloom/v1"
 )
 
@@ -52,6 +55,10 @@ func TestEditAndExportCommands(t *testing.T) {
 	var mk pb.MakePlanResponse
 	parse(t, d.cli(t, "plan", "make", "--site", site.GetId(), "--night", "2027-01-14", "--budget", "200ms", "--seed", "3", "--json").ok(t, "plan make").stdout, &mk)
 	plan := mk.GetPlans()[0]
+	w := d.cli(t, "plan", "watch", "--site", site.GetId(), "--current", "--count", "1").ok(t, "plan watch --current").stdout
+	if !strings.Contains(w, "latest plan when the watch began: the night of 2027-01-14") {
+		t.Errorf("plan watch --current does not say which night:\n%s", w)
+	}
 	out := filepath.Join(t.TempDir(), "night.csv")
 	d.cli(t, "plan", "export", "--plan", plan.GetId(), "--out", out).ok(t, "plan export")
 	f, err := os.Open(out)
@@ -142,6 +149,51 @@ func TestMoonPhaseWords(t *testing.T) {
 		{0.99, false, "full Moon"}, {0.8, false, "waning gibbous"}, {0.5, false, "last quarter"}, {0.2, false, "waning crescent"}} {
 		if got := moonPhase(c.f, c.waxing); got != c.want {
 			t.Errorf("moonPhase(%v, %v) = %q, want %q", c.f, c.waxing, got, c.want)
+		}
+	}
+}
+
+// TestBrightMoonNote: a run 20 deg from a nearly full Moon that is up, for
+// a block without a Moon limit, gets the note; with a limit, farther away,
+// or under the 41 % Moon of the demo night, it does not. (The Moon's
+// fraction comes from ephem, checked against Meeus ch. 48 in its tests.)
+func TestBrightMoonNote(t *testing.T) {
+	site := &pb.Site{LatitudeDeg: 44.12, LongitudeDeg: 5.24, ElevationM: 650}
+	run := func(at string, sep float64) *pb.Assignment {
+		ts, _ := time.Parse(time.RFC3339, at)
+		c := &pb.PredictedConditions{MoonSeparationDeg: sep}
+		return &pb.Assignment{Start: timestamppb.New(ts), ConditionsAtStart: c, ConditionsAtEnd: c}
+	}
+	free := &pb.Block{}
+	guarded := &pb.Block{Constraints: &pb.ConstraintSet{MinMoonSeparationDeg: proto.Float64(15)}}
+	for _, c := range []struct {
+		name string
+		b    *pb.Block
+		a    *pb.Assignment
+		note bool
+	}{
+		{"near a full Moon, no limit", free, run("2027-01-21T22:00:00Z", 20), true},
+		{"near a full Moon, with a limit", guarded, run("2027-01-21T22:00:00Z", 20), false},
+		{"far from a full Moon", free, run("2027-01-21T22:00:00Z", 60), false},
+		{"near the 41 % Moon", free, run("2027-01-14T20:00:00Z", 20), false},
+	} {
+		n := brightMoonNote(site, c.b, c.a)
+		if (n != "") != c.note {
+			t.Errorf("%s: note %q, want a note %v", c.name, n, c.note)
+		}
+	}
+}
+
+// TestDurationsOneWay: every duration under a minute in whole seconds,
+// tenths only under one second.
+func TestDurationsOneWay(t *testing.T) {
+	for _, c := range []struct {
+		d    time.Duration
+		want string
+	}{{0, "0s"}, {200 * time.Millisecond, "0.2s"}, {48 * time.Second, "48s"}, {48900 * time.Millisecond, "49s"},
+		{50 * time.Second, "50s"}, {59700 * time.Millisecond, "1m"}, {167 * time.Second, "2m47s"}, {3*time.Hour + 5*time.Minute, "3h05m"}} {
+		if got := fmtDuration(c.d); got != c.want {
+			t.Errorf("fmtDuration(%v) = %q, want %q", c.d, got, c.want)
 		}
 	}
 }

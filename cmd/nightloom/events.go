@@ -13,6 +13,7 @@ import (
 	"time"
 
 	"github.com/nightloom/nightloom/ephem"
+	pb "github.com/nightloom/nightloom/proto/nightloom/v1"
 )
 
 // nightEvent is one event of a night; ok is false when it does not happen.
@@ -96,4 +97,41 @@ func printEvents(w io.Writer, loc *time.Location, events []nightEvent, moonT tim
 // localMidnight is the midnight that ends the civil date d in loc.
 func localMidnight(year int, month time.Month, day int, loc *time.Location) time.Time {
 	return time.Date(year, month, day+1, 0, 0, 0, 0, loc)
+}
+
+// Bright-Moon note thresholds: a run closer than brightMoonSepDeg to a Moon
+// that is up and more than brightMoonFraction lit, for a block with no Moon
+// limit, gets a note (common practice, no source).
+const (
+	brightMoonSepDeg   = 45.0
+	brightMoonFraction = 0.5
+)
+
+// brightMoonNote says when a run is planned close to a bright Moon that the
+// block did not guard against (no min_moon_separation_deg and no
+// max_moon_illumination): the plan is legal, but the operator may want a
+// limit. "" otherwise. The Moon's altitude and illumination are computed
+// here with ephem at the run's start (topocentric, geometric altitude).
+func brightMoonNote(site *pb.Site, b *pb.Block, a *pb.Assignment) string {
+	if b == nil || site == nil {
+		return ""
+	}
+	if c := b.GetConstraints(); c != nil && (c.MinMoonSeparationDeg != nil || c.MaxMoonIllumination != nil) {
+		return ""
+	}
+	sep := min(a.GetConditionsAtStart().GetMoonSeparationDeg(), a.GetConditionsAtEnd().GetMoonSeparationDeg())
+	if sep >= brightMoonSepDeg {
+		return ""
+	}
+	o, err := ephem.NewObserver(site.GetLatitudeDeg(), site.GetLongitudeDeg(), site.GetElevationM())
+	if err != nil {
+		return ""
+	}
+	snap := ephem.Prepare(ephem.NewInstant(a.GetStart().AsTime()))
+	l := snap.Local(&o)
+	f, _ := l.MoonIllumination()
+	if f <= brightMoonFraction || l.MoonPlace().Alt <= 0 {
+		return ""
+	}
+	return fmt.Sprintf("bright Moon %.0f deg away (%.0f %% lit), block has no Moon limit", sep, 100*f)
 }

@@ -338,7 +338,7 @@ func printSky(w io.Writer, r skyResult) error {
 			notes += fmt.Sprintf(", delta %.5f AU, r %.5f AU", *t.DeltaAU, *t.RAU)
 		}
 		if t.Magnitude != nil {
-			notes += fmt.Sprintf(", mag %.2f", *t.Magnitude)
+			notes += fmt.Sprintf(", mag %.2f (above the atmosphere, no extinction)", *t.Magnitude)
 		}
 		fmt.Fprintf(tw, "target\t%.5f\t%+.5f\t%+.4f\t%.4f\t%s\n", t.RADeg, t.DecDeg, t.AltDeg, t.AzDeg, notes)
 	}
