@@ -88,6 +88,7 @@ type serveFlags struct {
 	web       webFlags
 	logLevel  string
 	logFormat string
+	accessLog string
 }
 
 func parseServe(args []string, stderr io.Writer) (*serveFlags, error) {
@@ -115,6 +116,7 @@ func parseServe(args []string, stderr io.Writer) (*serveFlags, error) {
 	fs.DurationVar(&f.web.sessionTTL, "web-session-ttl", web.DefaultSessionTTL, "how long a web sign-in lasts")
 	fs.StringVar(&f.logLevel, "log-level", "info", "log level: debug, info, warn or error")
 	fs.StringVar(&f.logFormat, "log-format", "text", "log format: text or json")
+	fs.StringVar(&f.accessLog, "access-log", "info", "level of the access record of each successful call (method, code, duration_ms, peer, token_id): debug, info or off")
 	if err := parse(fs, args); err != nil {
 		return nil, err
 	}
@@ -139,6 +141,16 @@ func parseServe(args []string, stderr io.Writer) (*serveFlags, error) {
 	var level slog.Level
 	if err := level.UnmarshalText([]byte(f.logLevel)); err != nil {
 		return nil, &usageError{fmt.Sprintf("flag --log-level: %v", err)}
+	}
+	switch f.accessLog {
+	case "info":
+		f.cfg.AccessLogLevel = slog.LevelInfo
+	case "debug":
+		f.cfg.AccessLogLevel = slog.LevelDebug
+	case "off":
+		f.cfg.AccessLogLevel = server.AccessLogOff
+	default:
+		return nil, &usageError{fmt.Sprintf("flag --access-log: want debug, info or off, got %q", f.accessLog)}
 	}
 	opts := &slog.HandlerOptions{Level: level}
 	switch f.logFormat {

@@ -28,6 +28,10 @@ import (
 	_ "time/tzdata" // IANA zones for sites, whatever the host has installed
 )
 
+// AccessLogOff as Config.AccessLogLevel logs no record for calls that
+// succeed.
+const AccessLogOff = slog.Level(100)
+
 // Defaults of Config.
 const (
 	DefaultListen          = "127.0.0.1:7878"
@@ -72,6 +76,11 @@ type Config struct {
 
 	// Logger receives the structured logs. Default: text to stderr, info.
 	Logger *slog.Logger
+	// AccessLogLevel is the level of the access record of each call that
+	// succeeds (method, code, duration_ms, peer, token_id); failed calls
+	// are logged at INFO, or ERROR for internal errors. The zero value is
+	// INFO; AccessLogOff turns the records of successful calls off.
+	AccessLogLevel slog.Level
 
 	// DefaultTimeBudget is the solver budget of a request that sets none.
 	// Default DefaultTimeBudget (plan.proto).
@@ -231,14 +240,14 @@ func Start(ctx context.Context, cfg Config) (*Server, error) {
 	s.hub = newHub(cfg.WatchBuffer, cfg.MaxWatchersPerSite, MaxWatchersTotal)
 	s.metrics = newMetrics(func(ctx context.Context) (int, error) { return s.db.QueueSize(ctx, "") }, s.hub.count)
 
-	obs := &observer{log: s.log, metrics: s.metrics}
+	obs := &observer{log: s.log, metrics: s.metrics, access: cfg.AccessLogLevel}
 	s.guard = newTokenGuard(s.db, s.log, tokenRecheckInterval)
 	s.public = newPublicStreams()
 	auth := &authenticator{tokens: s.db, guard: s.guard}
 	em := &errorMapper{log: s.log}
 	opts := []grpc.ServerOption{
-		grpc.ChainUnaryInterceptor(obs.unary, auth.unary, em.unary, s.scopeUnary),
-		grpc.ChainStreamInterceptor(obs.stream, s.public.stream, auth.stream, em.stream, s.scopeStream),
+		grpc.ChainUnaryInterceptor(s.metrics.grpc.UnaryServerInterceptor(), obs.unary, auth.unary, em.unary, s.scopeUnary),
+		grpc.ChainStreamInterceptor(s.metrics.grpc.StreamServerInterceptor(), obs.stream, s.public.stream, auth.stream, em.stream, s.scopeStream),
 		grpc.MaxRecvMsgSize(cfg.MaxRecvBytes),
 		grpc.MaxSendMsgSize(MaxSendBytes),
 		grpc.MaxConcurrentStreams(MaxConcurrentStreams),
@@ -259,6 +268,7 @@ func Start(ctx context.Context, cfg Config) (*Server, error) {
 	s.health = health.NewServer()
 	healthpb.RegisterHealthServer(s.grpc, s.health)
 	registerReflection(s.grpc, s.log)
+	s.metrics.grpc.InitializeMetrics(s.grpc)
 	for name := range s.grpc.GetServiceInfo() {
 		s.health.SetServingStatus(name, healthpb.HealthCheckResponse_SERVING)
 	}

@@ -6,8 +6,11 @@ package server
 
 import (
 	"context"
+	"encoding/json"
 	"fmt"
+	"io"
 	"log/slog"
+	"net/http"
 	"os"
 	"path/filepath"
 	"slices"
@@ -362,5 +365,99 @@ func TestReflectionCarriesComments(t *testing.T) {
 	}
 	if !strings.Contains(found, "Length of one exposure") || !strings.Contains(found, "1 h") {
 		t.Fatalf("Block.exposure's comment over reflection: %q", found)
+	}
+}
+
+// TestStandardGRPCMetrics: the go-grpc-middleware Prometheus provider's
+// series appear beside ours on /metrics, with the usual labels; a stream
+// is timed there (grpc_type="server_stream") and not in our unary latency.
+func TestStandardGRPCMetrics(t *testing.T) {
+	e := newEnv(t, "", func(c *Config) { c.MetricsAddr = "127.0.0.1:0" })
+	f := e.seed(t, 0)
+	ctx, cancel := context.WithCancel(as(RoleViewer, e))
+	st, err := e.plans.WatchPlans(ctx, &nightloomv1.WatchPlansRequest{SiteId: f.site.GetId()})
+	if err != nil {
+		t.Fatal(err)
+	}
+	waitWatchers(t, e, 1)
+	cancel()
+	_, _ = st.Recv()
+	_, _ = e.sites.GetSite(as(RoleViewer, e), &nightloomv1.GetSiteRequest{SiteId: "site-nonesuch"})
+	var text string
+	for deadline := time.Now().Add(5 * time.Second); ; {
+		resp, err := http.Get("http://" + e.srv.MetricsAddr().String() + "/metrics")
+		if err != nil {
+			t.Fatal(err)
+		}
+		body, _ := io.ReadAll(resp.Body)
+		resp.Body.Close()
+		text = string(body)
+		if strings.Contains(text, `grpc_server_handled_total{grpc_code="Canceled",grpc_method="WatchPlans"`) || time.Now().After(deadline) {
+			break
+		}
+		time.Sleep(50 * time.Millisecond)
+	}
+	for _, want := range []string{
+		`grpc_server_started_total{grpc_method="GetSite",grpc_service="nightloom.v1.SiteService",grpc_type="unary"} 1`,
+		`grpc_server_handled_total{grpc_code="NotFound",grpc_method="GetSite",grpc_service="nightloom.v1.SiteService",grpc_type="unary"} 1`,
+		`grpc_server_handling_seconds_count{grpc_method="GetSite",grpc_service="nightloom.v1.SiteService",grpc_type="unary"} 1`,
+		`grpc_server_handled_total{grpc_code="Canceled",grpc_method="WatchPlans",grpc_service="nightloom.v1.PlanService",grpc_type="server_stream"} 1`,
+		`grpc_server_handling_seconds_count{grpc_method="WatchPlans",grpc_service="nightloom.v1.PlanService",grpc_type="server_stream"} 1`,
+		`nightloom_rpc_requests_total{code="NotFound",method="/nightloom.v1.SiteService/GetSite"} 1`,
+	} {
+		if !strings.Contains(text, want) {
+			t.Errorf("metrics lack %q", want)
+		}
+	}
+	if strings.Contains(text, `nightloom_rpc_duration_seconds_count{code="Canceled",method="/nightloom.v1.PlanService/WatchPlans"}`) {
+		t.Error("a stream is still timed in the unary latency histogram")
+	}
+}
+
+// TestAccessLog: one record per call at INFO by default, with method, code,
+// duration in milliseconds, peer and token id; AccessLogOff silences the
+// successful ones but not the refusals.
+func TestAccessLog(t *testing.T) {
+	for _, c := range []struct {
+		name   string
+		level  slog.Level
+		wantOK bool
+	}{{"default", 0, true}, {"off", AccessLogOff, false}} {
+		var logs syncBuffer
+		e := newEnv(t, "", func(cfg *Config) {
+			cfg.Logger = slog.New(slog.NewJSONHandler(&logs, nil))
+			cfg.AccessLogLevel = c.level
+		})
+		secret, rec, err := CreateTokenSpec(t.Context(), e.srv.Storage(), TokenSpec{Role: RoleViewer})
+		if err != nil {
+			t.Fatal(err)
+		}
+		ctx := withToken(context.Background(), secret)
+		if _, err := e.sites.ListSites(ctx, &nightloomv1.ListSitesRequest{}); err != nil {
+			t.Fatal(err)
+		}
+		_, _ = e.sites.DeleteSite(ctx, &nightloomv1.DeleteSiteRequest{SiteId: "site-x"})
+		var ok, refused int
+		for _, line := range strings.Split(strings.TrimSpace(logs.String()), "\n") {
+			var r map[string]any
+			if json.Unmarshal([]byte(line), &r) != nil || r["msg"] != "rpc" {
+				continue
+			}
+			if r["token_id"] != rec.ID || r["peer"] == nil || r["level"] != "INFO" {
+				t.Errorf("%s: record %v lacks token_id %s, peer or INFO", c.name, r, rec.ID)
+			}
+			if _, isNum := r["duration_ms"].(float64); !isNum {
+				t.Errorf("%s: duration_ms %v is not a number", c.name, r["duration_ms"])
+			}
+			switch r["code"] {
+			case "OK":
+				ok++
+			case "PermissionDenied":
+				refused++
+			}
+		}
+		if want := map[bool]int{true: 1, false: 0}[c.wantOK]; ok != want || refused != 1 {
+			t.Errorf("%s: %d OK records (want %d), %d refusals (want 1)\n%s", c.name, ok, want, refused, logs.String())
+		}
 	}
 }
