@@ -10,6 +10,7 @@ set -euo pipefail
 
 PACKAGES=(
 	"chromium chromium"
+	"jq jq"
 )
 
 need=()

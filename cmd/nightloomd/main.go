@@ -89,6 +89,11 @@ type serveFlags struct {
 	logLevel  string
 	logFormat string
 	accessLog string
+	// clockStart and clockRate: a simulated clock for demos and scripts
+	// (scripts/demo-grpcurl.sh): it starts at clockStart and runs clockRate
+	// times faster than the real one.
+	clockStart string
+	clockRate  float64
 }
 
 func parseServe(args []string, stderr io.Writer) (*serveFlags, error) {
@@ -116,6 +121,8 @@ func parseServe(args []string, stderr io.Writer) (*serveFlags, error) {
 	fs.DurationVar(&f.web.sessionTTL, "web-session-ttl", web.DefaultSessionTTL, "how long a web sign-in lasts")
 	fs.StringVar(&f.logLevel, "log-level", "info", "log level: debug, info, warn or error")
 	fs.StringVar(&f.logFormat, "log-format", "text", "log format: text or json")
+	fs.StringVar(&f.clockStart, "clock-start", "", "for demos and scripts only: the daemon's clock starts at this RFC 3339 instant (empty: the real clock)")
+	fs.Float64Var(&f.clockRate, "clock-rate", 1, "with --clock-start: how many times faster than real time the clock runs")
 	fs.StringVar(&f.accessLog, "access-log", "info", "level of the access record of each successful call (method, code, duration_ms, peer, token_id): debug, info or off")
 	if err := parse(fs, args); err != nil {
 		return nil, err
@@ -141,6 +148,19 @@ func parseServe(args []string, stderr io.Writer) (*serveFlags, error) {
 	var level slog.Level
 	if err := level.UnmarshalText([]byte(f.logLevel)); err != nil {
 		return nil, &usageError{fmt.Sprintf("flag --log-level: %v", err)}
+	}
+	if f.clockStart != "" {
+		start, err := time.Parse(time.RFC3339, f.clockStart)
+		if err != nil {
+			return nil, &usageError{fmt.Sprintf("flag --clock-start: want RFC 3339, got %q", f.clockStart)}
+		}
+		if !(f.clockRate > 0 && f.clockRate <= 1e6) {
+			return nil, &usageError{"flag --clock-rate: must be in (0, 1e6]"}
+		}
+		t0, rate := time.Now(), f.clockRate
+		f.cfg.Now = func() time.Time { return start.Add(time.Duration(float64(time.Since(t0)) * rate)) }
+	} else if f.clockRate != 1 {
+		return nil, &usageError{"flag --clock-rate needs --clock-start"}
 	}
 	switch f.accessLog {
 	case "info":
