@@ -42,8 +42,11 @@ func NewLookahead(site *Site, blocks []Block, first time.Time, nights int, step 
 			return // no night: nothing usable
 		}
 		tracks, vis := visibilities(g, blocks, 1, cancel)
+		if cancelled(cancel) {
+			return // visibilities stops early and leaves entries nil
+		}
 		for i := range blocks {
-			if tracks[i] == nil {
+			if tracks[i] == nil || vis[i] == nil {
 				errs[k] = constraints.ErrTarget
 				return
 			}
