@@ -16,6 +16,8 @@ import (
 	"time"
 
 	"github.com/prometheus/client_golang/prometheus/promhttp"
+	sdktrace "go.opentelemetry.io/otel/sdk/trace"
+	"go.opentelemetry.io/otel/trace"
 	"google.golang.org/grpc"
 	"google.golang.org/grpc/credentials"
 	"google.golang.org/grpc/health"
@@ -96,6 +98,11 @@ type Config struct {
 	// DefaultMaxWatchersPerSite.
 	MaxWatchersPerSite int
 
+	// TracerProvider, when set, traces every call (tests: an in-memory
+	// recorder). Unset, the OTEL_* environment decides (tracing.go); by
+	// default there is no tracing.
+	TracerProvider trace.TracerProvider
+
 	// Now is the server's clock (Replan and NextAssignment without an
 	// instant, the queued-block replan, expiry). Default time.Now.
 	Now func() time.Time
@@ -163,6 +170,9 @@ type Server struct {
 	metrics *metrics
 	guard   *tokenGuard
 	public  *publicStreams
+	// tracer is the provider made from OTEL_* (nil: none, or the caller's);
+	// Shutdown flushes and stops it.
+	tracer *sdktrace.TracerProvider
 
 	lis        net.Listener
 	metricsLis net.Listener
@@ -257,6 +267,19 @@ func Start(ctx context.Context, cfg Config) (*Server, error) {
 	}
 	if creds != nil {
 		opts = append(opts, grpc.Creds(creds))
+	}
+	tp := cfg.TracerProvider
+	if tp == nil {
+		if s.tracer, err = tracerFromEnv(ctx, os.Getenv); err != nil {
+			return fail(err)
+		}
+		if s.tracer != nil {
+			tp = s.tracer
+			s.log.Info("tracing on (OTEL_* environment)")
+		}
+	}
+	if tp != nil {
+		opts = append(opts, tracingOption(tp))
 	}
 	s.grpc = grpc.NewServer(opts...)
 	nightloomv1.RegisterSiteServiceServer(s.grpc, &siteService{s: s})
@@ -384,6 +407,11 @@ func (s *Server) Shutdown(ctx context.Context) error {
 			mctx, mcancel := context.WithTimeout(context.Background(), 2*time.Second)
 			errs = append(errs, s.metricsSrv.Shutdown(mctx))
 			mcancel()
+		}
+		if s.tracer != nil {
+			tctx, tcancel := context.WithTimeout(context.Background(), 2*time.Second)
+			errs = append(errs, s.tracer.Shutdown(tctx))
+			tcancel()
 		}
 		if s.closeDB != nil {
 			errs = append(errs, s.closeDB.Close())
