@@ -8,7 +8,8 @@
 //	nightloom night --site LAT,LON[,ELEV_M] --date YYYY-MM-DD [--tz ZONE] [--json]
 //	nightloom demo  [--out DIR]
 //
-// Against a daemon (--server host:port, --token, --tls-ca, or the
+// Against a daemon (--server host:port, --token, --tls-ca, --tls-cert and
+// --tls-key, or the
 // environment variables NIGHTLOOM_SERVER and NIGHTLOOM_TOKEN):
 //
 //	nightloom site     create|get|list|update|delete
@@ -141,7 +142,7 @@ func usage(w io.Writer) {
 		fmt.Fprintf(w, "  %-11s %s\n", c.name, c.summary)
 	}
 	fmt.Fprintf(w, "\nCommands that talk to a daemon take --server host:port (env %s, default %s),\n", envServer, defaultServer)
-	fmt.Fprintf(w, "--token (env %s), --tls-ca FILE, --timeout and --json.\n", envToken)
+	fmt.Fprintf(w, "--token (env %s), --tls-ca FILE, --tls-cert FILE --tls-key FILE (mutual TLS), --timeout and --json.\n", envToken)
 	fmt.Fprintln(w, "Run 'nightloom COMMAND -h' for a command's flags.")
 }
 
