@@ -82,6 +82,15 @@ func main() {
 
 // run executes one command line and returns the process exit status.
 func run(args []string, stdout, stderr io.Writer) int {
+	if cobraEntry(args) {
+		root := commandTree(stdout, stderr)
+		root.SetArgs(args)
+		if err := root.Execute(); err != nil {
+			fmt.Fprintf(stderr, "nightloom: %v\n", err)
+			return 2
+		}
+		return 0
+	}
 	if len(args) == 0 || isHelp(args[0]) {
 		usage(stderr)
 		if len(args) == 0 {
@@ -143,7 +152,8 @@ func usage(w io.Writer) {
 	}
 	fmt.Fprintf(w, "\nCommands that talk to a daemon take --server host:port (env %s, default %s),\n", envServer, defaultServer)
 	fmt.Fprintf(w, "--token (env %s), --tls-ca FILE, --tls-cert FILE --tls-key FILE (mutual TLS), --timeout and --json.\n", envToken)
-	fmt.Fprintln(w, "Run 'nightloom COMMAND -h' for a command's flags.")
+	fmt.Fprintln(w, "Run 'nightloom COMMAND -h' (or 'nightloom help COMMAND') for a command's flags;")
+	fmt.Fprintln(w, "'nightloom completion bash|zsh|fish|powershell' prints a shell completion script.")
 }
 
 func groupUsage(w io.Writer, g command) {
