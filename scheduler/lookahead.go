@@ -46,7 +46,7 @@ func NewLookahead(site *Site, blocks []Block, first time.Time, nights int, step 
 			return // some tracks are missing; the caller sees ErrCancelled
 		}
 		for i := range blocks {
-			if tracks[i] == nil {
+			if tracks[i] == nil || vis[i] == nil {
 				errs[k] = constraints.ErrTarget
 				return
 			}

@@ -1,7 +1,8 @@
 #!/usr/bin/env bash
 # check-proto.sh checks the gRPC API: buf lint (STANDARD and COMMENTS, see
 # buf.yaml), buf format, and that the committed generated Go code
-# (proto/**/*.pb.go) is exactly what scripts/genproto.sh produces from the
+# (proto/**/*.pb.go, and proto/nightloom/v1/descriptors.binpb, the
+# descriptors with comments) is exactly what scripts/genproto.sh produces from the
 # .proto files. It writes nothing in the repository. Exit status 0 when all
 # pass; non-zero, with the lint findings or a diff, when not.
 #
@@ -43,7 +44,7 @@ echo "check-proto.sh: generated code"
 tmp=$(mktemp -d)
 trap 'rm -rf "$tmp"' EXIT
 mkdir -p "$tmp/committed" "$tmp/generated"
-find proto -name '*.pb.go' -type f | while read -r f; do
+find proto \( -name '*.pb.go' -o -name 'descriptors.binpb' \) -type f | while read -r f; do
 	mkdir -p "$tmp/committed/$(dirname "$f")"
 	cp "$f" "$tmp/committed/$f"
 done

@@ -57,6 +57,13 @@ if [ "${SKIP_FUZZ:-0}" != 1 ]; then
 	done <<<"$targets"
 fi
 
+if [ "${SKIP_GRPCURL:-0}" != 1 ]; then
+	echo "== every testdata/demo request sent with grpcurl (scripts/demo-grpcurl.sh)"
+	t0=$(date +%s)
+	scripts/demo-grpcurl.sh
+	echo "grpcurl run: $(($(date +%s) - t0))s"
+fi
+
 if [ "${SKIP_RACE:-0}" != 1 ]; then
 	echo "== go test -race -short -count=1 ./internal/... ./cmd/..."
 	t0=$(date +%s)

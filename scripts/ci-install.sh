@@ -13,6 +13,7 @@ PACKAGES=(
 	"/usr/lib/postgresql/15/bin/initdb postgresql"
 	"indiserver indi-bin"
 	"/usr/lib/python3/dist-packages/astropy python3-astropy"
+	"jq jq"
 )
 
 need=()

@@ -54,14 +54,17 @@ cd "$root"
 tmp=$(mktemp -d)
 trap 'rm -rf "$tmp"' EXIT
 buf generate --template buf.gen.yaml --output "$tmp"
+# The API's descriptors with their comments (source info), embedded by the
+# proto package for server reflection and the field reference (docs/).
+buf build --exclude-imports -o "$tmp/proto/nightloom/v1/descriptors.binpb"
 
 if [ -n "$out" ]; then
 	cp -R "$tmp/." "$out/"
 	exit 0
 fi
 
-find proto -name '*.pb.go' -type f -delete
-(cd "$tmp" && find proto -name '*.pb.go' -type f) | while read -r f; do
+find proto \( -name '*.pb.go' -o -name 'descriptors.binpb' \) -type f -delete
+(cd "$tmp" && find proto \( -name '*.pb.go' -o -name 'descriptors.binpb' \) -type f) | while read -r f; do
 	mkdir -p "$(dirname "$f")"
 	cp "$tmp/$f" "$f"
 done

@@ -7,12 +7,15 @@ package main
 
 import (
 	"context"
+	"crypto/tls"
+	"crypto/x509"
 	"errors"
 	"flag"
 	"fmt"
 	"io"
 	"net"
 	"os"
+	"runtime"
 	"strings"
 	"time"
 
@@ -41,6 +44,8 @@ type connFlags struct {
 	server  string
 	token   string
 	tlsCA   string
+	tlsCert string
+	tlsKey  string
 	timeout time.Duration
 	json    bool
 }
@@ -58,6 +63,8 @@ func addConnFlags(fs *flag.FlagSet) *connFlags {
 	// default, so that -h never prints a secret.
 	fs.StringVar(&c.token, "token", "", "bearer token sent in the authorization metadata (default: env "+envToken+")")
 	fs.StringVar(&c.tlsCA, "tls-ca", "", "PEM file of the CA that signed the daemon's certificate; turns TLS on")
+	fs.StringVar(&c.tlsCert, "tls-cert", "", "PEM client certificate for mutual TLS (with --tls-key); turns TLS on")
+	fs.StringVar(&c.tlsKey, "tls-key", "", "PEM private key of --tls-cert")
 	fs.DurationVar(&c.timeout, "timeout", 5*time.Minute, "deadline of each call")
 	fs.BoolVar(&c.json, "json", false, "print the response message as protobuf JSON (canonical mapping)")
 	return c
@@ -72,6 +79,8 @@ type api struct {
 	plans   pb.PlanServiceClient
 	sky     pb.SkyServiceClient
 	timeout time.Duration
+	// tlsOn and clientCert: how the connection was made (for messages).
+	tlsOn, clientCert bool
 }
 
 // bearer sends "authorization: Bearer TOKEN" with every call. It does not
@@ -96,12 +105,13 @@ func (c *connFlags) dial(stderr io.Writer) (*api, error) {
 		c.token = os.Getenv(envToken)
 	}
 	var opts []grpc.DialOption
-	if c.tlsCA != "" {
-		creds, err := credentials.NewClientTLSFromFile(c.tlsCA, "")
+	tlsOn := c.tlsCA != "" || c.tlsCert != ""
+	if tlsOn {
+		tc, err := c.tlsConfig(stderr)
 		if err != nil {
-			return nil, flagError("tls-ca", "%v", err)
+			return nil, err
 		}
-		opts = append(opts, grpc.WithTransportCredentials(creds))
+		opts = append(opts, grpc.WithTransportCredentials(credentials.NewTLS(tc)))
 	} else {
 		opts = append(opts, grpc.WithTransportCredentials(insecure.NewCredentials()))
 	}
@@ -109,7 +119,7 @@ func (c *connFlags) dial(stderr io.Writer) (*api, error) {
 		if strings.ContainsAny(c.token, " \t\r\n") {
 			return nil, flagError("token", "must not contain white space")
 		}
-		if c.tlsCA == "" && !isLoopback(host) {
+		if !tlsOn && !isLoopback(host) {
 			fmt.Fprintf(stderr, "nightloom: warning: sending the token to %s without TLS (use --tls-ca)\n", c.server)
 		}
 		opts = append(opts, grpc.WithPerRPCCredentials(bearer(c.token)))
@@ -118,7 +128,57 @@ func (c *connFlags) dial(stderr io.Writer) (*api, error) {
 	if err != nil {
 		return nil, flagError("server", "%v", err)
 	}
-	return newAPI(cc, c.timeout), nil
+	a := newAPI(cc, c.timeout)
+	a.tlsOn, a.clientCert = tlsOn, c.tlsCert != ""
+	return a, nil
+}
+
+// tlsConfig builds the client's TLS: the daemon's CA (--tls-ca, else the
+// system's roots) and, for mutual TLS, a client certificate and key.
+func (c *connFlags) tlsConfig(stderr io.Writer) (*tls.Config, error) {
+	tc := &tls.Config{MinVersion: tls.VersionTLS12}
+	if c.tlsCA != "" {
+		pemData, err := os.ReadFile(c.tlsCA)
+		if err != nil {
+			return nil, flagError("tls-ca", "%v", err)
+		}
+		pool := x509.NewCertPool()
+		if !pool.AppendCertsFromPEM(pemData) {
+			return nil, flagError("tls-ca", "%s holds no PEM certificate", c.tlsCA)
+		}
+		tc.RootCAs = pool
+	}
+	if (c.tlsCert == "") != (c.tlsKey == "") {
+		return nil, flagError("tls-cert", "--tls-cert and --tls-key go together")
+	}
+	if c.tlsCert != "" {
+		if w := keyFileWarning(c.tlsKey); w != "" {
+			fmt.Fprintf(stderr, "nightloom: warning: %s\n", w)
+		}
+		cert, err := tls.LoadX509KeyPair(c.tlsCert, c.tlsKey)
+		if err != nil {
+			return nil, flagError("tls-cert", "%v", err)
+		}
+		tc.Certificates = []tls.Certificate{cert}
+	}
+	return tc, nil
+}
+
+// keyFileWarning returns a warning when a private key file can be read or
+// written by others (mode bits 0o077), as internal/server.KeyFileWarning
+// does for the daemon; "" otherwise.
+func keyFileWarning(path string) string {
+	if runtime.GOOS == "windows" {
+		return ""
+	}
+	fi, err := os.Stat(path)
+	if err != nil {
+		return ""
+	}
+	if m := fi.Mode().Perm(); m&0o077 != 0 {
+		return fmt.Sprintf("private key file %s has mode %04o: others can read it; chmod 600 it", path, m)
+	}
+	return ""
 }
 
 func newAPI(cc *grpc.ClientConn, timeout time.Duration) *api {
@@ -157,12 +217,18 @@ type rpcError struct {
 	call   string
 	st     *status.Status
 	server string
+	// tlsOn and clientCert: how the client connected (for messages).
+	tlsOn, clientCert bool
 }
 
 func (e *rpcError) Error() string {
 	var b strings.Builder
 	switch e.st.Code() {
 	case codes.Unavailable:
+		if why := transportFailure(e.st.Message(), e.tlsOn, e.clientCert); why != "" {
+			fmt.Fprintf(&b, "%s: %s: %s (%s)", e.call, e.server, why, e.st.Message())
+			return b.String()
+		}
 		fmt.Fprintf(&b, "%s: cannot reach a daemon at %s (%s); is nightloomd running? set --server or %s",
 			e.call, e.server, e.st.Message(), envServer)
 		return b.String()
@@ -200,6 +266,38 @@ func (e *rpcError) Error() string {
 		}
 	}
 	return b.String()
+}
+
+// transportFailure says in words what a connection failure means, from the
+// texts Go's net and crypto/tls packages and grpc-go put in UNAVAILABLE
+// messages; "" when it is none of the known ones.
+// tlsOn and clientCert say how the client connected: a connection the
+// daemon drops during a TLS handshake without a client certificate is a
+// daemon that wants one.
+func transportFailure(msg string, tlsOn, clientCert bool) string {
+	m := strings.ToLower(msg)
+	dropped := strings.Contains(m, "broken pipe") || strings.Contains(m, "connection reset") || strings.Contains(m, "eof") ||
+		strings.Contains(m, "error reading server preface")
+	switch {
+	case dropped && tlsOn && !clientCert:
+		return "the daemon dropped the TLS connection: it probably asks for a client certificate (--tls-cert and --tls-key)"
+	case strings.Contains(m, "connection refused"):
+		return "cannot reach a daemon there: nothing listens; is nightloomd running? set --server or " + envServer
+	case strings.Contains(m, "certificate required"), strings.Contains(m, "bad certificate"),
+		strings.Contains(m, "unknown certificate authority") && !strings.Contains(m, "x509"):
+		return "the daemon refused the TLS handshake: it asks for a client certificate its CA signed (--tls-cert and --tls-key)"
+	case strings.Contains(m, "x509: certificate signed by unknown authority"):
+		return "the daemon's certificate is not signed by a CA this client trusts (--tls-ca)"
+	case strings.Contains(m, "x509: certificate is valid for"), strings.Contains(m, "x509: cannot validate certificate"):
+		return "the daemon's certificate does not name this address (check --server)"
+	case strings.Contains(m, "x509: certificate has expired"):
+		return "the daemon's certificate has expired or is not yet valid"
+	case strings.Contains(m, "first record does not look like a tls handshake"):
+		return "the daemon speaks plaintext, not TLS: drop --tls-ca, --tls-cert and --tls-key"
+	case dropped && !tlsOn:
+		return "the daemon closed the connection at once: it probably speaks TLS (give --tls-ca, and --tls-cert/--tls-key if it asks for client certificates)"
+	}
+	return ""
 }
 
 // codeName spells a status code the way the gRPC specification does
@@ -250,7 +348,7 @@ func (a *api) callErr(call string, err error) error {
 	if !ok {
 		return fmt.Errorf("%s: %w", call, err)
 	}
-	return &rpcError{call: call, st: st, server: a.cc.Target()}
+	return &rpcError{call: call, st: st, server: a.cc.Target(), tlsOn: a.tlsOn, clientCert: a.clientCert}
 }
 
 // isCode reports whether err is a failed call with the given code.

@@ -24,7 +24,8 @@ func blockCommands() []command {
 		{name: "queue", summary: "queue blocks from a QueueBlocksRequest file", run: runBlockQueue},
 		{name: "get", summary: "show one block", run: runBlockGet},
 		{name: "list", summary: "list blocks, optionally of one site, target or state", run: runBlockList},
-		{name: "withdraw", summary: "take an open block out of the queue", run: runBlockWithdraw},
+		{name: "withdraw", summary: "take an open block out of the queue (--block), or every open block of a site (--site [--target])", run: runBlockWithdraw},
+		{name: "update", summary: "change an open block's priority, frames, exposure, dates, constraints or cadence (field mask)", run: runBlockUpdate},
 	}
 }
 
@@ -250,13 +251,22 @@ func (a *api) allBlocks(req *pb.ListBlocksRequest) ([]*pb.Block, error) {
 
 func runBlockWithdraw(args []string, stdout, stderr io.Writer) error {
 	r := newRemote("block withdraw", stderr)
-	id := r.fs.String("block", "", "id of the block; required")
+	id := r.fs.String("block", "", "id of the block (or --site for many)")
+	site := r.fs.String("site", "", "withdraw every open block of this site in one call (instead of --block)")
+	target := r.fs.String("target", "", "with --site: only the blocks of this target")
 	reason := r.fs.String("reason", "", "why it is withdrawn (recorded)")
 	if err := parseFlags(r.fs, args); err != nil {
 		return err
 	}
-	if *id == "" {
-		return flagError("block", "required: the block's id")
+	switch {
+	case *id != "" && *site != "":
+		return flagError("site", "give --block or --site, not both")
+	case *id == "" && *site != "":
+		return withdrawMatching(r, *site, *target, *reason, stdout, stderr)
+	case *id == "":
+		return flagError("block", "required: the block's id (or --site for every open block of a site)")
+	case *target != "":
+		return flagError("target", "goes with --site")
 	}
 	a, err := r.conn.dial(stderr)
 	if err != nil {

@@ -28,6 +28,7 @@ func planCommands() []command {
 		{name: "next", summary: "the run the telescope should start next", run: runPlanNext},
 		{name: "watch", summary: "print every new plan version of a site as it is stored", run: runPlanWatch},
 		{name: "chart", summary: "draw a plan's night as a PNG or SVG chart", run: runPlanChart},
+		{name: "export", summary: "a plan as CSV (one row per run) or iCalendar (one event per run)", run: runPlanExport},
 	}
 }
 
@@ -523,6 +524,7 @@ func runPlanWatch(args []string, stdout, stderr io.Writer) error {
 		if n > 0 {
 			fmt.Fprintln(stdout)
 		}
+		fmt.Fprintln(stdout, watchHeading(msg.GetPlan(), n == 0 && *current, pc.clock))
 		if err := printPlan(stdout, msg.GetPlan(), pc, nil); err != nil {
 			return err
 		}
@@ -531,6 +533,36 @@ func runPlanWatch(args []string, stdout, stderr io.Writer) error {
 		}
 	}
 	return nil
+}
+
+// watchHeading says what a watched plan is: the site's latest plan when
+// the stream opened (--current), or a new version, and which night or
+// interval it covers, so that a reader knows which night is shown.
+func watchHeading(p *pb.Plan, current bool, c clock) string {
+	what := "new plan version"
+	if current {
+		what = "latest plan when the watch began"
+	}
+	span := "interval " + c.interval(p.GetInterval())
+	if p.GetNight() != nil {
+		span = "the night of " + dateString(p.GetNight())
+	}
+	return fmt.Sprintf("== %s: %s (version %d) ==", what, span, p.GetVersion())
+}
+
+// solverWords explains the solver's name (SolverStats.algorithm) to a
+// reader: the main solver is a greedy start improved by adaptive
+// large-neighbourhood search (README, "The objective").
+func solverWords(name string) string {
+	switch name {
+	case "alns":
+		return "greedy start + adaptive large-neighbourhood search (alns)"
+	case "alns-replan":
+		return "replan: greedy start + adaptive large-neighbourhood search (alns-replan)"
+	case "exact-dp":
+		return "exact dynamic program (exact-dp)"
+	}
+	return name
 }
 
 // overheadText lists the non-zero overheads and their total.
@@ -636,7 +668,10 @@ func printPlan(w io.Writer, p *pb.Plan, pc *planContext, after *time.Time) error
 			notes = append(notes, "non-sidereal")
 		}
 		if cs.Magnitude != nil {
-			notes = append(notes, fmt.Sprintf("mag %.1f", cs.GetMagnitude()))
+			notes = append(notes, fmt.Sprintf("mag %.1f with extinction", cs.GetMagnitude()))
+		}
+		if n := brightMoonNote(pc.site, pc.blocks[x.GetBlockId()], x); n != "" {
+			notes = append(notes, n)
 		}
 		if con := pointingConstellation(x.GetPointing()); con != "" {
 			notes = append(notes, "in "+con)
@@ -715,7 +750,7 @@ func printPlan(w io.Writer, p *pb.Plan, pc *planContext, after *time.Time) error
 		if r := s.GetStopReason(); r != "" {
 			stop = ", stopped: " + r
 		}
-		fmt.Fprintf(w, "solver %s: %s, %d iterations%s, seed %d, %d blocks on %d steps of %s\n", s.GetAlgorithm(),
+		fmt.Fprintf(w, "planned by %s in %s: %d improvement rounds%s, seed %d, %d blocks on %d steps of %s\n", solverWords(s.GetAlgorithm()),
 			dur(s.GetSolveTime()), s.GetIterations(), stop, s.GetSeed(), s.GetBlocksConsidered(), s.GetGridSteps(), dur(s.GetGridStep()))
 	}
 	return nil

@@ -289,8 +289,6 @@ func runEvents(args []string, stdout, stderr io.Writer) error {
 		return a.callErr("GetSite", err)
 	}
 	c := newClock(sr.GetSite().GetTimeZone())
-	tw := newTable(stdout)
-	fmt.Fprintf(tw, "event\tlocal (%s)\tUTC\n", c.loc)
 	ev := []struct {
 		name string
 		t    *timestamppb.Timestamp
@@ -298,19 +296,16 @@ func runEvents(args []string, stdout, stderr io.Writer) error {
 		{"astronomical dusk", resp.GetAstronomicalDusk()}, {"astronomical dawn", resp.GetAstronomicalDawn()},
 		{"nautical dawn", resp.GetNauticalDawn()}, {"civil dawn", resp.GetCivilDawn()}, {"sunrise", resp.GetSunrise()},
 		{"moonrise", resp.GetMoonrise()}, {"moonset", resp.GetMoonset()}}
+	var evs []nightEvent
 	for _, e := range ev {
-		if e.t == nil {
-			fmt.Fprintf(tw, "%s\t-\t-\n", e.name)
-			continue
-		}
-		t := e.t.AsTime().Round(time.Second)
-		fmt.Fprintf(tw, "%s\t%s\t%s\n", e.name, t.In(c.loc).Format("2006-01-02 15:04:05"), t.UTC().Format("2006-01-02 15:04:05"))
+		evs = append(evs, nightEvent{name: e.name, t: e.t.AsTime(), ok: e.t != nil})
 	}
-	if err := tw.Flush(); err != nil {
+	dd, _ := time.Parse("2006-01-02", *date)
+	if err := printEvents(stdout, c.loc, evs, localMidnight(dd.Year(), dd.Month(), dd.Day(), c.loc)); err != nil {
 		return err
 	}
-	fmt.Fprintf(stdout, "\nMoon %.0f %% illuminated; astronomical darkness %s, of it without the Moon %s\n",
-		100*resp.GetMoonIllumination(), dur(resp.GetAstronomicalDark()), dur(resp.GetMoonlessDark()))
+	fmt.Fprintf(stdout, "astronomical darkness %s, of it without the Moon %s\n",
+		dur(resp.GetAstronomicalDark()), dur(resp.GetMoonlessDark()))
 	if pi := resp.GetPlanningInterval(); pi != nil {
 		fmt.Fprintf(stdout, "a plan for this night covers %s\n", c.interval(pi))
 	}

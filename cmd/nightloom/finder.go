@@ -36,7 +36,7 @@ const (
 
 // geocentricTrack returns the orbit target's geocentric astrometric ICRS
 // place at each instant (light time included; ephem.Conic.Observe).
-func geocentricTrack(c *ephem.Conic, times []time.Time) []catalogue.TrackPoint {
+func geocentricTrack(c ephem.Mover, times []time.Time) []catalogue.TrackPoint {
 	out := make([]catalogue.TrackPoint, len(times))
 	for i, t := range times {
 		tt := ephem.NewInstant(t).TT
@@ -81,9 +81,12 @@ func runCatalogueFinder(args []string, stdout, stderr io.Writer) error {
 			return flagError(name, "must be within [-2, 20]")
 		}
 	}
-	orbit, err := readOrbit(*orbitPath)
+	orbit, fixed, err := readOrbit(*orbitPath)
 	if err != nil {
 		return err
+	}
+	if fixed != nil || orbit == nil {
+		return flagError("orbit", "%s is a fixed target; a finder chart follows a moving one", *orbitPath)
 	}
 	// Nightly points and an hourly line between them.
 	var nightly, fine []time.Time

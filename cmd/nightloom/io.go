@@ -155,14 +155,15 @@ func dur(d *durationpb.Duration) string {
 	return fmtDuration(d.AsDuration())
 }
 
+// fmtDuration prints a duration one way everywhere: whole seconds under a
+// minute (48s, never 48.0s), tenths only under one second (0.2s), then
+// minutes and seconds (4m30s), then hours and minutes (2h05m).
 func fmtDuration(d time.Duration) string {
 	switch {
-	case d < time.Minute:
-		s := d.Seconds()
-		if s == float64(int64(s)) {
-			return fmt.Sprintf("%ds", int64(s))
-		}
-		return fmt.Sprintf("%.1fs", s)
+	case d > 0 && d < 950*time.Millisecond:
+		return fmt.Sprintf("%.1fs", d.Seconds())
+	case d < time.Minute-500*time.Millisecond:
+		return fmt.Sprintf("%ds", int64(d.Round(time.Second)/time.Second))
 	case d < time.Hour:
 		d = d.Round(time.Second)
 		m, s := int(d/time.Minute), int(d%time.Minute/time.Second)

@@ -9,7 +9,8 @@
 //	nightloom demo  [--out DIR]
 //	nightloom catalogue lookup|search|tonight|finder|constellation
 //
-// Against a daemon (--server host:port, --token, --tls-ca, or the
+// Against a daemon (--server host:port, --token, --tls-ca, --tls-cert and
+// --tls-key, or the
 // environment variables NIGHTLOOM_SERVER and NIGHTLOOM_TOKEN):
 //
 //	nightloom site     create|get|list|update|delete
@@ -85,6 +86,15 @@ func main() {
 
 // run executes one command line and returns the process exit status.
 func run(args []string, stdout, stderr io.Writer) int {
+	if cobraEntry(args) {
+		root := commandTree(stdout, stderr)
+		root.SetArgs(args)
+		if err := root.Execute(); err != nil {
+			fmt.Fprintf(stderr, "nightloom: %v\n", err)
+			return 2
+		}
+		return 0
+	}
 	if len(args) == 0 || isHelp(args[0]) {
 		usage(stderr)
 		if len(args) == 0 {
@@ -145,8 +155,9 @@ func usage(w io.Writer) {
 		fmt.Fprintf(w, "  %-11s %s\n", c.name, c.summary)
 	}
 	fmt.Fprintf(w, "\nCommands that talk to a daemon take --server host:port (env %s, default %s),\n", envServer, defaultServer)
-	fmt.Fprintf(w, "--token (env %s), --tls-ca FILE, --timeout and --json.\n", envToken)
-	fmt.Fprintln(w, "Run 'nightloom COMMAND -h' for a command's flags.")
+	fmt.Fprintf(w, "--token (env %s), --tls-ca FILE, --tls-cert FILE --tls-key FILE (mutual TLS), --timeout and --json.\n", envToken)
+	fmt.Fprintln(w, "Run 'nightloom COMMAND -h' (or 'nightloom help COMMAND') for a command's flags;")
+	fmt.Fprintln(w, "'nightloom completion bash|zsh|fish|powershell' prints a shell completion script.")
 }
 
 func groupUsage(w io.Writer, g command) {

@@ -9,14 +9,19 @@ import (
 	"io"
 	"math"
 	"os"
+	"path/filepath"
 	"strconv"
 	"strings"
 	"text/tabwriter"
 	"time"
 
+	"google.golang.org/protobuf/types/known/timestamppb"
+
 	"github.com/nightloom/nightloom/catalogue"
 	"github.com/nightloom/nightloom/ephem"
 	"github.com/nightloom/nightloom/ephem/elements"
+	"github.com/nightloom/nightloom/internal/server"
+	pb "github.com/nightloom/nightloom/proto/nightloom/v1"
 )
 
 // newFlagSet returns a flag set that reports errors to us instead of
@@ -77,11 +82,56 @@ type orbitFile struct {
 	K1           *float64 `json:"k1"`
 }
 
-// readOrbit loads and validates an orbit file.
-func readOrbit(path string) (*ephem.Conic, error) {
+// readOrbit loads an orbit file and validates it as the API validates a
+// target (server.ValidateTarget, one set of limits for both). Two forms
+// are read:
+//
+//   - the API's target JSON (the canonical protobuf JSON mapping), a Target
+//     or a CreateTargetRequest ({"target": {...}}), as in testdata/demo;
+//   - the short form {"q_au", "e", "i_deg", "node_deg", "peri_deg",
+//     "perihelion_tt", "m1", "k1"} that scripts already use.
+//
+// A fixed target in the API's form is accepted too and returned as a star.
+func readOrbit(path string) (ephem.Mover, *ephem.Star, error) {
 	data, err := os.ReadFile(path)
 	if err != nil {
-		return nil, flagError("orbit", "%v", err)
+		return nil, nil, flagError("orbit", "%v", err)
+	}
+	t, err := orbitTarget(path, data)
+	if err != nil {
+		return nil, nil, err
+	}
+	ct, err := server.ValidateTarget(t)
+	if err != nil {
+		return nil, nil, flagError("orbit", "%s: %v", path, err)
+	}
+	if ct.Orbit == nil {
+		return nil, ct.Star, nil
+	}
+	return ct.Orbit, ct.Star, nil
+}
+
+// orbitTarget decodes either form of an orbit file into the API's Target.
+func orbitTarget(path string, data []byte) (*pb.Target, error) {
+	var probe map[string]json.RawMessage
+	if err := json.Unmarshal(data, &probe); err != nil {
+		return nil, flagError("orbit", "%s: %v", path, err)
+	}
+	if _, short := probe["q_au"]; !short {
+		if _, isReq := probe["target"]; isReq {
+			req := &pb.CreateTargetRequest{}
+			if err := parseRequest(path, data, req); err != nil {
+				return nil, err
+			}
+			return req.GetTarget(), nil
+		}
+		if _, isTarget := probe["orbit"]; isTarget || probe["fixed"] != nil || probe["name"] != nil {
+			t := &pb.Target{}
+			if err := parseRequest(path, data, t); err != nil {
+				return nil, err
+			}
+			return t, nil
+		}
 	}
 	dec := json.NewDecoder(bytes.NewReader(data))
 	dec.DisallowUnknownFields()
@@ -105,19 +155,15 @@ func readOrbit(path string) (*ephem.Conic, error) {
 	if err != nil {
 		return nil, flagError("orbit", "%s: field \"perihelion_tt\": want RFC 3339, got %q", path, f.PerihelionTT)
 	}
-	o := ephem.Orbit{QAU: *f.QAU, E: *f.E, IncDeg: *f.IncDeg, NodeDeg: *f.NodeDeg, PeriDeg: *f.PeriDeg,
-		PerihelionTT: ephem.JDFromLabel(tp)}
 	if (f.M1 == nil) != (f.K1 == nil) {
 		return nil, flagError("orbit", "%s: give both \"m1\" and \"k1\" or neither", path)
 	}
+	o := &pb.OrbitElements{PerihelionDistanceAu: *f.QAU, Eccentricity: *f.E, InclinationDeg: *f.IncDeg,
+		AscendingNodeDeg: *f.NodeDeg, PerihelionArgumentDeg: *f.PeriDeg, PerihelionTimeTt: timestamppb.New(tp)}
 	if f.M1 != nil {
-		o.Law, o.M1, o.K1 = ephem.MagComet, *f.M1, *f.K1
+		o.MagnitudeLaw = &pb.OrbitElements_Comet{Comet: &pb.CometMagnitude{M1: *f.M1, K1: *f.K1}}
 	}
-	c, err := ephem.NewConic(o)
-	if err != nil {
-		return nil, flagError("orbit", "%s: %v", path, strings.TrimPrefix(err.Error(), "ephem: "))
-	}
-	return c, nil
+	return &pb.Target{Name: filepath.Base(path), Position: &pb.Target_Orbit{Orbit: o}}, nil
 }
 
 // readElements loads a file of one-line orbital elements and returns the
@@ -326,11 +372,14 @@ func runSky(args []string, stdout, stderr io.Writer) error {
 		}
 		star = &s
 	case *orbitPath != "":
-		c, err := readOrbit(*orbitPath)
+		c, st, err := readOrbit(*orbitPath)
 		if err != nil {
 			return err
 		}
-		orbit = c
+		if c != nil {
+			orbit = c // a nil *Conic must not become a non-nil Mover
+		}
+		star = st
 	case *body != "":
 		b, err := ephem.ParseBody(*body)
 		if err != nil {
@@ -387,7 +436,7 @@ func printSky(w io.Writer, r skyResult) error {
 			notes += fmt.Sprintf(", delta %.5f AU, r %.5f AU", *t.DeltaAU, *t.RAU)
 		}
 		if t.Magnitude != nil {
-			notes += fmt.Sprintf(", mag %.2f", *t.Magnitude)
+			notes += fmt.Sprintf(", mag %.2f (above the atmosphere, no extinction)", *t.Magnitude)
 		}
 		if t.Constellation != "" {
 			notes += ", in " + t.Constellation
@@ -461,19 +510,13 @@ func runNight(args []string, stdout, stderr io.Writer) error {
 	if *asJSON {
 		return json.NewEncoder(stdout).Encode(nightJSON(&n))
 	}
-	tw := tabwriter.NewWriter(stdout, 0, 0, 2, ' ', 0)
-	fmt.Fprintf(tw, "night of %s, window %s to %s UTC\n\n", *date, n.Start.Format("2006-01-02 15:04"), n.End.Format("2006-01-02 15:04"))
-	fmt.Fprintf(tw, "event\tUTC\tlocal (%s)\n", loc)
+	fmt.Fprintf(stdout, "night of %s (from local mean-solar noon %s to the next noon, UTC)\n\n", *date, n.Start.Format("2006-01-02 15:04"))
 	order := []ephem.EventKind{ephem.Sunset, ephem.CivilDusk, ephem.NauticalDusk, ephem.AstronomicalDusk,
 		ephem.AstronomicalDawn, ephem.NauticalDawn, ephem.CivilDawn, ephem.Sunrise, ephem.Moonrise, ephem.Moonset}
+	var evs []nightEvent
 	for _, k := range order {
 		t, ok := n.Get(k)
-		if !ok {
-			fmt.Fprintf(tw, "%s\t-\t-\n", k)
-			continue
-		}
-		t = t.Round(time.Second)
-		fmt.Fprintf(tw, "%s\t%s\t%s\n", k, t.UTC().Format("2006-01-02 15:04:05"), t.In(loc).Format("2006-01-02 15:04:05"))
+		evs = append(evs, nightEvent{name: eventWords[k], t: t, ok: ok})
 	}
-	return tw.Flush()
+	return printEvents(stdout, loc, evs, localMidnight(d.Year(), d.Month(), d.Day(), loc))
 }

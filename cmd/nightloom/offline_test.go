@@ -163,3 +163,45 @@ func TestNightJSONContract(t *testing.T) {
 		t.Errorf("table output:\n%s", table)
 	}
 }
+
+// TestSkyOrbitBothForms: the short orbit file and the API's target JSON
+// (the demo's CreateTargetRequest and a bare Target) give the same answer,
+// and both are held to the API's limits by one validation
+// (server.ValidateTarget): an eccentricity of 150 is refused in either form
+// naming the API's field.
+func TestSkyOrbitBothForms(t *testing.T) {
+	dir := t.TempDir()
+	bare := filepath.Join(dir, "bare.json")
+	os.WriteFile(bare, []byte(`{"name":"NL-1","orbit":{"perihelionDistanceAu":0.42,"eccentricity":1.0021,"inclinationDeg":131.4,
+		"ascendingNodeDeg":33,"perihelionArgumentDeg":195,"perihelionTimeTt":"2027-01-21T06:00:00Z","comet":{"m1":7.2,"k1":11}}}`), 0o644)
+	args := func(f string) []string {
+		return []string{"sky", "--site", "44.12,5.24,650", "--at", "2027-01-15T06:30:00Z", "--orbit", f, "--json"}
+	}
+	want, errs, code := runCLI(t, args("../../testdata/demo/comet-orbit.json")...)
+	if code != 0 {
+		t.Fatalf("short form: exit %d %s", code, errs)
+	}
+	// The API's CreateTargetRequest form (as the demo's comet was written
+	// before it came from one-line elements).
+	request := filepath.Join(dir, "request.json")
+	os.WriteFile(request, []byte(`{"target":{"name":"Comet NL-1 (invented)","orbit":{"perihelionDistanceAu":0.42,"eccentricity":1.0021,
+		"inclinationDeg":131.4,"ascendingNodeDeg":33,"perihelionArgumentDeg":195,"perihelionTimeTt":"2027-01-21T06:00:00Z",
+		"comet":{"m1":7.2,"k1":11}}}}`), 0o644)
+	for _, f := range []string{request, bare} {
+		got, errs, code := runCLI(t, args(f)...)
+		if code != 0 || got != want {
+			t.Errorf("%s: exit %d %s\ngot  %s\nwant %s", f, code, errs, got, want)
+		}
+	}
+	short := filepath.Join(dir, "short-e150.json")
+	os.WriteFile(short, []byte(`{"q_au":0.42,"e":150,"i_deg":131.4,"node_deg":33,"peri_deg":195,"perihelion_tt":"2027-01-21T06:00:00Z"}`), 0o644)
+	api := filepath.Join(dir, "api-e150.json")
+	os.WriteFile(api, []byte(`{"target":{"name":"x","orbit":{"perihelionDistanceAu":0.42,"eccentricity":150,"inclinationDeg":131.4,
+		"ascendingNodeDeg":33,"perihelionArgumentDeg":195,"perihelionTimeTt":"2027-01-21T06:00:00Z"}}}`), 0o644)
+	for _, f := range []string{short, api} {
+		_, errs, code := runCLI(t, args(f)...)
+		if code != 2 || !strings.Contains(errs, "flag --orbit") || !strings.Contains(errs, "target.orbit.eccentricity") {
+			t.Errorf("%s: exit %d, want 2 naming target.orbit.eccentricity: %s", f, code, errs)
+		}
+	}
+}

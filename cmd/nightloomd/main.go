@@ -4,7 +4,7 @@
 //
 //	nightloomd [flags]                       serve (SIGINT/SIGTERM stop it gracefully)
 //	nightloomd --http-addr 127.0.0.1:7880    also serve the read-only web pages
-//	nightloomd token create --role ROLE [--label L] [--db PATH]
+//	nightloomd token create --role ROLE [--label L] [--ttl DURATION] [--site SITE_ID] [--db PATH]
 //	nightloomd token list [--db PATH]
 //	nightloomd token revoke --id ID [--db PATH]
 //	nightloomd copy-db --from DB --to DB     copy a whole database (SQLite <-> PostgreSQL) into an empty one
@@ -93,11 +93,21 @@ type serveFlags struct {
 	web       webFlags
 	logLevel  string
 	logFormat string
+	accessLog string
+	// clockStart and clockRate: a simulated clock for demos and scripts
+	// (scripts/demo-grpcurl.sh): it starts at clockStart and runs clockRate
+	// times faster than the real one.
+	clockStart string
+	clockRate  float64
 }
 
 func parseServe(args []string, stderr io.Writer) (*serveFlags, error) {
 	f := &serveFlags{}
 	fs := newFlagSet("nightloomd", stderr)
+	fs.Usage = func() {
+		fmt.Fprint(fs.Output(), serveUsage)
+		fs.PrintDefaults()
+	}
 	fs.StringVar(&f.cfg.Listen, "listen", server.DefaultListen, "gRPC listen address host:port")
 	fs.StringVar(&f.cfg.DBPath, "db", server.DefaultDBPath, dbFlagHelp)
 	fs.StringVar(&f.cfg.TLSCertFile, "tls-cert", "", "PEM certificate chain for TLS (with --tls-key)")
@@ -116,6 +126,9 @@ func parseServe(args []string, stderr io.Writer) (*serveFlags, error) {
 	fs.DurationVar(&f.web.sessionTTL, "web-session-ttl", web.DefaultSessionTTL, "how long a web sign-in lasts")
 	fs.StringVar(&f.logLevel, "log-level", "info", "log level: debug, info, warn or error")
 	fs.StringVar(&f.logFormat, "log-format", "text", "log format: text or json")
+	fs.StringVar(&f.clockStart, "clock-start", "", "for demos and scripts only: the daemon's clock starts at this RFC 3339 instant (empty: the real clock)")
+	fs.Float64Var(&f.clockRate, "clock-rate", 1, "with --clock-start: how many times faster than real time the clock runs")
+	fs.StringVar(&f.accessLog, "access-log", "info", "level of the access record of each successful call (method, code, duration_ms, peer, token_id): debug, info or off")
 	if err := parse(fs, args); err != nil {
 		return nil, err
 	}
@@ -140,6 +153,29 @@ func parseServe(args []string, stderr io.Writer) (*serveFlags, error) {
 	var level slog.Level
 	if err := level.UnmarshalText([]byte(f.logLevel)); err != nil {
 		return nil, &usageError{fmt.Sprintf("flag --log-level: %v", err)}
+	}
+	if f.clockStart != "" {
+		start, err := time.Parse(time.RFC3339, f.clockStart)
+		if err != nil {
+			return nil, &usageError{fmt.Sprintf("flag --clock-start: want RFC 3339, got %q", f.clockStart)}
+		}
+		if !(f.clockRate > 0 && f.clockRate <= 1e6) {
+			return nil, &usageError{"flag --clock-rate: must be in (0, 1e6]"}
+		}
+		t0, rate := time.Now(), f.clockRate
+		f.cfg.Now = func() time.Time { return start.Add(time.Duration(float64(time.Since(t0)) * rate)) }
+	} else if f.clockRate != 1 {
+		return nil, &usageError{"flag --clock-rate needs --clock-start"}
+	}
+	switch f.accessLog {
+	case "info":
+		f.cfg.AccessLogLevel = slog.LevelInfo
+	case "debug":
+		f.cfg.AccessLogLevel = slog.LevelDebug
+	case "off":
+		f.cfg.AccessLogLevel = server.AccessLogOff
+	default:
+		return nil, &usageError{fmt.Sprintf("flag --access-log: want debug, info or off, got %q", f.accessLog)}
 	}
 	opts := &slog.HandlerOptions{Level: level}
 	switch f.logFormat {
@@ -167,7 +203,12 @@ func serve(ctx context.Context, args []string, stderr io.Writer) error {
 // runToken handles `nightloomd token create|list|revoke`.
 func runToken(ctx context.Context, args []string, stdout, stderr io.Writer) error {
 	if len(args) == 0 {
-		return &usageError{"token: want a subcommand: create, list or revoke"}
+		return &usageError{"token: want a subcommand: create, list or revoke (see nightloomd token --help)"}
+	}
+	switch args[0] {
+	case "-h", "-help", "--help", "help":
+		fmt.Fprint(stdout, tokenHelp)
+		return nil
 	}
 	fs := newFlagSet("nightloomd token "+args[0], stderr)
 	db := fs.String("db", server.DefaultDBPath, dbFlagHelp)
@@ -175,6 +216,8 @@ func runToken(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 	case "create":
 		role := fs.String("role", "", "role of the token: "+roleNames())
 		label := fs.String("label", "", "free label (who or what uses the token)")
+		ttl := fs.Duration("ttl", 0, "time to live, e.g. 720h; the token is refused from then on (0: never expires)")
+		site := fs.String("site", "", "hold the token to this site id: calls about other sites are refused (empty: every site)")
 		if err := parse(fs, args[1:]); err != nil {
 			return err
 		}
@@ -182,18 +225,29 @@ func runToken(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 		if err != nil {
 			return &usageError{"flag --role: " + strings.TrimPrefix(err.Error(), "server: ")}
 		}
+		if *ttl < 0 {
+			return &usageError{"flag --ttl: must not be negative"}
+		}
 		st, err := store.OpenDSN(*db, store.Options{})
 		if err != nil {
 			return err
 		}
 		defer st.Close()
-		secret, rec, err := server.CreateToken(ctx, st, r, *label)
+		if *site != "" {
+			if _, err := st.GetSite(ctx, *site); err != nil {
+				if errors.Is(err, store.ErrNotFound) {
+					return &usageError{fmt.Sprintf("flag --site: no site %q in %s", *site, *db)}
+				}
+				return err
+			}
+		}
+		secret, rec, err := server.CreateTokenSpec(ctx, st, server.TokenSpec{Role: r, Label: *label, TTL: *ttl, SiteID: *site})
 		if err != nil {
 			return err
 		}
 		// The secret goes to stdout alone, once; it is not stored.
 		fmt.Fprintln(stdout, secret)
-		fmt.Fprintf(stderr, "created token %s (role %s); the secret above is shown only now\n", rec.ID, rec.Role)
+		fmt.Fprintf(stderr, "created token %s (role %s%s); the secret above is shown only now\n", rec.ID, rec.Role, tokenLimits(rec))
 		return nil
 	case "list":
 		if err := parse(fs, args[1:]); err != nil {
@@ -205,7 +259,7 @@ func runToken(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 		}
 		defer st.Close()
 		tw := tabwriter.NewWriter(stdout, 2, 8, 2, ' ', 0)
-		fmt.Fprintln(tw, "ID\tROLE\tCREATED\tREVOKED\tLABEL")
+		fmt.Fprintln(tw, "ID\tROLE\tSITE\tCREATED\tEXPIRES\tREVOKED\tLABEL")
 		token := ""
 		for {
 			recs, next, err := st.ListTokens(ctx, store.Page{Size: store.MaxPageSize, Token: token})
@@ -217,7 +271,14 @@ func runToken(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 				if t.RevokedAt != nil {
 					revoked = t.RevokedAt.UTC().Format(time.RFC3339)
 				}
-				fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\n", t.ID, t.Role, t.CreatedAt.UTC().Format(time.RFC3339), revoked, t.Label)
+				site, expires := "all", "never"
+				if t.SiteID != "" {
+					site = t.SiteID
+				}
+				if t.ExpiresAt != nil {
+					expires = t.ExpiresAt.UTC().Format(time.RFC3339)
+				}
+				fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%s\t%s\n", t.ID, t.Role, site, t.CreatedAt.UTC().Format(time.RFC3339), expires, revoked, t.Label)
 			}
 			if next == "" {
 				break
@@ -247,6 +308,46 @@ func runToken(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 	}
 	return &usageError{fmt.Sprintf("token: unknown subcommand %q (want create, list or revoke)", args[0])}
 }
+
+// tokenLimits describes a token's expiry and site, for the create message.
+func tokenLimits(t store.Token) string {
+	var b strings.Builder
+	if t.ExpiresAt != nil {
+		fmt.Fprintf(&b, ", expires %s", t.ExpiresAt.UTC().Format(time.RFC3339))
+	}
+	if t.SiteID != "" {
+		fmt.Fprintf(&b, ", held to site %s", t.SiteID)
+	}
+	return b.String()
+}
+
+// tokenHelp is `nightloomd token --help`.
+const tokenHelp = `nightloomd token: bearer tokens for the gRPC API and the web pages.
+Only the SHA-256 of a secret is stored; the secret is printed once, on stdout.
+
+  nightloomd token create --role ROLE [--label L] [--ttl DURATION] [--site SITE_ID] [--db PATH]
+      make a token; ROLE is viewer, telescope, operator or admin (see the
+      README's table of commands by role). --ttl makes it expire (e.g. 720h);
+      --site holds it to one site: calls about any other site, creating sites
+      and changing targets (shared by every site) are refused.
+  nightloomd token list [--db PATH]
+      every token: id, role, site, created, expires, revoked, label (never
+      the secret).
+  nightloomd token revoke --id ID [--db PATH]
+      refuse the token from now on; a running daemon ends its open
+      WatchPlans streams within seconds, and web sessions made with it.
+
+Each subcommand takes -h for its flags. --db defaults to nightloom.db.
+`
+
+// serveUsage heads the daemon's -h output.
+const serveUsage = `nightloomd: the nightloom gRPC scheduling daemon.
+
+  nightloomd [flags]                 serve until SIGINT or SIGTERM
+  nightloomd token create|list|revoke  manage bearer tokens (nightloomd token --help)
+
+Flags:
+`
 
 func roleNames() string {
 	var names []string

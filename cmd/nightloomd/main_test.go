@@ -21,6 +21,7 @@ import (
 	"google.golang.org/protobuf/types/known/timestamppb"
 
 	"github.com/nightloom/nightloom/internal/pgtest"
+	"github.com/nightloom/nightloom/internal/store"
 	nightloomv1 "github.com/nightloom/nightloom/proto/nightloom/v1"
 )
 
@@ -254,5 +255,53 @@ func TestKill9KeepsAcknowledgedReports(t *testing.T) {
 			t.Fatalf("round %d after kill -9: duplicate %v, frames done %d; want true, %d", round, again.GetDuplicate(),
 				again.GetBlock().GetFramesDone(), 7*round)
 		}
+	}
+}
+
+// TestTokenLimitsAndHelp: `token create --ttl --site` (issue 14), the
+// columns of `token list`, and the help of `token --help` and `--help`.
+func TestTokenLimitsAndHelp(t *testing.T) {
+	db := filepath.Join(t.TempDir(), "tokens.db")
+	st, err := store.Open(db, store.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := st.CreateSite(context.Background(), store.Site{ID: "site-dome2", Name: "dome 2", Spec: []byte("{}")}); err != nil {
+		t.Fatal(err)
+	}
+	st.Close()
+	code, _, errs := runCmd(t, "token", "create", "--role", "telescope", "--ttl", "720h", "--site", "site-dome2", "--db", db)
+	if code != 0 || !strings.Contains(errs, "expires ") || !strings.Contains(errs, "held to site site-dome2") {
+		t.Fatalf("token create --ttl --site: exit %d, %s", code, errs)
+	}
+	code, out, _ := runCmd(t, "token", "list", "--db", db)
+	lines := strings.Split(strings.TrimSpace(out), "\n")
+	if code != 0 || len(lines) != 2 || !strings.Contains(lines[0], "EXPIRES") || !strings.Contains(lines[1], "site-dome2") {
+		t.Fatalf("token list: exit %d\n%s", code, out)
+	}
+	// The expiry printed is 720 h after creation, to the second.
+	f := strings.Fields(lines[1])
+	created, err1 := time.Parse(time.RFC3339, f[3])
+	expires, err2 := time.Parse(time.RFC3339, f[4])
+	if err1 != nil || err2 != nil || expires.Sub(created).Round(time.Minute) != 720*time.Hour {
+		t.Errorf("created %s, expires %s: want 720h apart (%v %v)", f[3], f[4], err1, err2)
+	}
+	for _, bad := range [][]string{
+		{"token", "create", "--role", "viewer", "--ttl", "-1h", "--db", db},
+		{"token", "create", "--role", "viewer", "--site", "site-nonesuch", "--db", db},
+	} {
+		if code, _, _ := runCmd(t, bad...); code != 2 {
+			t.Errorf("%v: exit %d, want 2", bad, code)
+		}
+	}
+	code, out, _ = runCmd(t, "token", "--help")
+	for _, want := range []string{"create --role ROLE", "--ttl", "--site", "token list", "token revoke"} {
+		if code != 0 || !strings.Contains(out, want) {
+			t.Errorf("token --help: exit %d, no %q in\n%s", code, want, out)
+		}
+	}
+	code, _, errs = runCmd(t, "--help")
+	if code != 0 || !strings.Contains(errs, "nightloomd token create|list|revoke") || !strings.Contains(errs, "-listen") {
+		t.Errorf("--help: exit %d\n%s", code, errs)
 	}
 }

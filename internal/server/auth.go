@@ -9,6 +9,7 @@ import (
 	"fmt"
 	"slices"
 	"strings"
+	"time"
 
 	"google.golang.org/grpc"
 	"google.golang.org/grpc/codes"
@@ -22,12 +23,15 @@ import (
 // Role is what a bearer token may do.
 type Role string
 
-// Roles (issue 5): viewer reads; operator queues blocks and makes plans, and
-// reads; telescope fetches plans, asks for the next assignment, watches
-// plans and reports progress, and reads blocks and plans; issue 11 lets it
-// also read its site (for its own safety checks) and replan (a weather
-// closure from the executor beside the devices); admin does
-// everything, sites and targets included.
+// Roles (issue 5, widened for the telescope by issue 14): viewer reads;
+// operator queues blocks and makes plans, and reads; telescope fetches
+// plans, asks for the next assignment, watches plans and reports progress,
+// and reads blocks, plans, its site (GetSite) and the targets (GetTarget,
+// ListTargets) so that every client view of a plan works for it, but neither
+// lists the sites nor asks the sky service; admin does everything, sites and
+// targets included; issue 11 lets the telescope replan (a weather
+// closure from the executor beside the devices). The README's table of client commands by role is this
+// table seen from the command line (cmd/nightloom TestCommandsByRole).
 const (
 	RoleViewer    Role = "viewer"
 	RoleOperator  Role = "operator"
@@ -64,14 +68,14 @@ var (
 // that every RPC of the service descriptors has a row).
 var methodRoles = map[string][]Role{
 	nightloomv1.SiteService_CreateSite_FullMethodName: administrator,
-	nightloomv1.SiteService_GetSite_FullMethodName:    siteReaders,
+	nightloomv1.SiteService_GetSite_FullMethodName:    queueReaders,
 	nightloomv1.SiteService_ListSites_FullMethodName:  readers,
 	nightloomv1.SiteService_UpdateSite_FullMethodName: administrator,
 	nightloomv1.SiteService_DeleteSite_FullMethodName: administrator,
 
 	nightloomv1.TargetService_CreateTarget_FullMethodName:   administrator,
-	nightloomv1.TargetService_GetTarget_FullMethodName:      readers,
-	nightloomv1.TargetService_ListTargets_FullMethodName:    readers,
+	nightloomv1.TargetService_GetTarget_FullMethodName:      queueReaders,
+	nightloomv1.TargetService_ListTargets_FullMethodName:    queueReaders,
 	nightloomv1.TargetService_UpdateTarget_FullMethodName:   administrator,
 	nightloomv1.TargetService_DeleteTarget_FullMethodName:   administrator,
 	nightloomv1.TargetService_ImportElements_FullMethodName: administrator,
@@ -81,6 +85,10 @@ var methodRoles = map[string][]Role{
 	nightloomv1.QueueService_ListBlocks_FullMethodName:     queueReaders,
 	nightloomv1.QueueService_WithdrawBlock_FullMethodName:  planners,
 	nightloomv1.QueueService_ReportProgress_FullMethodName: reporters,
+	nightloomv1.QueueService_UpdateBlock_FullMethodName:    planners,
+	nightloomv1.QueueService_WithdrawBlocks_FullMethodName: planners,
+
+	nightloomv1.ExportService_ExportPlan_FullMethodName: queueReaders,
 
 	nightloomv1.PlanService_MakePlan_FullMethodName:       planners,
 	nightloomv1.PlanService_GetPlan_FullMethodName:        queueReaders,
@@ -139,26 +147,58 @@ func HashToken(secret string) []byte {
 }
 
 // CreateToken makes a token with a role and a label, stores its hash and
-// returns the secret (to be shown once) with the stored record.
+// returns the secret (to be shown once) with the stored record. The token
+// never expires and serves every site; see CreateTokenSpec for the others.
 func CreateToken(ctx context.Context, ts TokenStore, role Role, label string) (string, store.Token, error) {
+	return CreateTokenSpec(ctx, ts, TokenSpec{Role: role, Label: label})
+}
+
+// TokenSpec is what a new token may do.
+type TokenSpec struct {
+	Role  Role
+	Label string
+	// TTL, when positive, makes the token expire that long after its
+	// creation (the store's clock).
+	TTL time.Duration
+	// SiteID, when set, holds the token to that one site (scope.go).
+	SiteID string
+}
+
+// CreateTokenSpec makes a token as spec says, stores its hash and returns
+// the secret (to be shown once) with the stored record.
+func CreateTokenSpec(ctx context.Context, ts TokenStore, spec TokenSpec) (string, store.Token, error) {
+	role, label := spec.Role, spec.Label
 	if _, err := ParseRole(string(role)); err != nil {
 		return "", store.Token{}, err
 	}
 	if len(label) > MaxLabelBytes {
 		return "", store.Token{}, fmt.Errorf("server: token label longer than %d bytes", MaxLabelBytes)
 	}
+	if spec.TTL < 0 {
+		return "", store.Token{}, errors.New("server: token time to live must not be negative")
+	}
+	rec := store.Token{ID: newID(tokenPrefix), Role: string(role), Label: label, SiteID: spec.SiteID}
+	if spec.TTL > 0 {
+		exp := time.Now().Add(spec.TTL)
+		rec.ExpiresAt = &exp
+	}
 	secret, hash := NewTokenSecret()
-	rec, err := ts.CreateToken(ctx, store.Token{ID: newID(tokenPrefix), Hash: hash, Role: string(role), Label: label})
+	rec.Hash = hash
+	rec, err := ts.CreateToken(ctx, rec)
 	if err != nil {
 		return "", store.Token{}, err
 	}
 	return secret, rec, nil
 }
 
-// principal is who made a call: the token's id and role (never its secret).
+// principal is who made a call: the token's id and role (never its secret),
+// the site it is held to ("" for every site), and the hash of its secret
+// (for the stream guard, tokenwatch.go).
 type principal struct {
 	tokenID string
 	role    Role
+	siteID  string
+	hash    []byte
 }
 
 type principalKey struct{}
@@ -190,6 +230,7 @@ func bearer(ctx context.Context) (string, error) {
 // authenticator checks tokens against the token store.
 type authenticator struct {
 	tokens TokenStore
+	guard  *tokenGuard // nil: streams are checked only when they open
 }
 
 // authorize returns the context with the caller's principal, or
@@ -209,20 +250,23 @@ func (a *authenticator) authorize(ctx context.Context, fullMethod string) (conte
 	rec, err := a.tokens.TokenByHash(ctx, HashToken(tok))
 	switch {
 	case errors.Is(err, store.ErrNotFound):
-		return nil, status.Error(codes.Unauthenticated, "invalid or revoked token")
+		return nil, status.Error(codes.Unauthenticated, "invalid, expired or revoked token")
 	case err != nil:
 		// Busy or cancelled: keep the store's code (Aborted lets the
 		// client retry); the message never contains the token.
 		return nil, status.Error(storeCode(err), "token check failed: "+err.Error())
 	}
+	p := principal{tokenID: rec.ID, role: Role(rec.Role), siteID: rec.SiteID, hash: rec.Hash}
 	allowed := methodRoles[fullMethod]
 	if !slices.Contains(allowed, Role(rec.Role)) {
+		// The refusal's log line names the token (never its secret).
+		reportPrincipal(context.WithValue(ctx, principalKey{}, p))
 		if allowed == nil {
 			return nil, status.Errorf(codes.PermissionDenied, "method %s is not open to any role", fullMethod)
 		}
 		return nil, status.Errorf(codes.PermissionDenied, "role %q may not call %s", rec.Role, fullMethod)
 	}
-	return context.WithValue(ctx, principalKey{}, principal{tokenID: rec.ID, role: Role(rec.Role)}), nil
+	return context.WithValue(ctx, principalKey{}, p), nil
 }
 
 func (a *authenticator) unary(ctx context.Context, req any, info *grpc.UnaryServerInfo, handler grpc.UnaryHandler) (any, error) {
@@ -233,12 +277,27 @@ func (a *authenticator) unary(ctx context.Context, req any, info *grpc.UnaryServ
 	return handler(ctx, req)
 }
 
+// stream authorizes a stream, then keeps checking its token while it is
+// open: a token revoked or expired meanwhile ends the stream with
+// UNAUTHENTICATED within tokenRecheckInterval (tokenwatch.go).
 func (a *authenticator) stream(srv any, ss grpc.ServerStream, info *grpc.StreamServerInfo, handler grpc.StreamHandler) error {
 	ctx, err := a.authorize(ss.Context(), info.FullMethod)
 	if err != nil {
 		return err
 	}
-	return handler(srv, &ctxStream{ServerStream: ss, ctx: ctx})
+	p, ok := principalFrom(ctx)
+	if !ok || a.guard == nil {
+		return handler(srv, &ctxStream{ServerStream: ss, ctx: ctx})
+	}
+	ctx, cancel := context.WithCancelCause(ctx)
+	defer cancel(nil)
+	stop := a.guard.add(p.hash, p.tokenID, cancel)
+	defer stop()
+	err = handler(srv, &ctxStream{ServerStream: ss, ctx: ctx})
+	if cause := context.Cause(ctx); errors.Is(cause, errTokenGone) {
+		return status.Error(codes.Unauthenticated, "the token was revoked or expired; the stream ends")
+	}
+	return err
 }
 
 // ctxStream is a server stream with a replaced context.

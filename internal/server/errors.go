@@ -5,6 +5,8 @@ import (
 	"errors"
 	"fmt"
 	"log/slog"
+	"regexp"
+	"strings"
 
 	"google.golang.org/genproto/googleapis/rpc/errdetails"
 	"google.golang.org/grpc/codes"
@@ -115,7 +117,27 @@ func toStatus(log *slog.Logger, method string, err error) error {
 		return status.Error(codes.Internal, "internal error")
 	}
 	if code == codes.Aborted {
-		return status.Errorf(codes.Aborted, "storage busy, retry: %v", err)
+		return status.Errorf(codes.Aborted, "storage busy, retry")
 	}
-	return status.Error(code, err.Error())
+	if code == codes.NotFound {
+		if m := missingRE.FindStringSubmatch(err.Error()); m != nil {
+			return notFoundResource(m[1], m[2])
+		}
+	}
+	return status.Error(code, publicMessage(err))
+}
+
+// missingRE reads the kind and id of a missing thing from the store's
+// operation names ("get block \"blk-1\": store: not found").
+var missingRE = regexp.MustCompile(`^(?:get|load|latest plan of) (site|target|block|plan) "([^"]*)"`)
+
+// publicMessage is a storage error's message without the store's own
+// words: "store: not found" becomes "not found", "malformed page token:
+// store: invalid" loses its prefix (issue 14).
+func publicMessage(err error) string {
+	m := err.Error()
+	for _, w := range []string{"store: ", "server: "} {
+		m = strings.ReplaceAll(m, w, "")
+	}
+	return m
 }

@@ -61,6 +61,7 @@ type env struct {
 	clock  *clock
 	conn   *grpc.ClientConn
 	tokens map[Role]string
+	seeded int // calls of seed so far
 
 	sites   nightloomv1.SiteServiceClient
 	targets nightloomv1.TargetServiceClient
@@ -213,10 +214,14 @@ func (e *env) seed(t testing.TB, n int) fixture {
 		t.Fatalf("CreateSite: %v", err)
 	}
 	f := fixture{site: cs.GetSite()}
+	defer func() { e.seeded++ }()
 	for i, tg := range []*nightloomv1.Target{
 		testFixed("Thimbleweed Nebula", 101.5, 18.2), testFixed("Quillfen Galaxy", 152.0, 31.0),
 		testFixed("Brackenhollow Cluster", 178.0, 46.0), testFixed("Lanternmoss Pair", 126.0, -6.0), testComet(),
 	} {
+		if e.seeded > 0 { // target names are unique: a second seed numbers its own
+			tg.Name = fmt.Sprintf("%s %d", tg.GetName(), e.seeded+1)
+		}
 		ct, err := e.targets.CreateTarget(ctx, &nightloomv1.CreateTargetRequest{Target: tg})
 		if err != nil {
 			t.Fatalf("CreateTarget %d: %v", i, err)

@@ -26,13 +26,16 @@ import (
 type observer struct {
 	log     *slog.Logger
 	metrics *metrics
+	// access is the level of the record of a call that succeeded
+	// (Config.AccessLogLevel); failed calls keep theirs.
+	access slog.Level
 }
 
-func (o *observer) done(ctx context.Context, method string, start time.Time, err error) {
+func (o *observer) done(ctx context.Context, method string, start time.Time, err error, stream bool) {
 	code := status.Code(err)
 	d := time.Since(start)
-	o.metrics.observeCall(method, code, d)
-	attrs := []any{"method", method, "code", code.String(), "duration", d}
+	o.metrics.observeCall(method, code, d, stream)
+	attrs := []any{"method", method, "code", code.String(), "duration_ms", float64(d.Microseconds()) / 1000}
 	if p, ok := peer.FromContext(ctx); ok && p.Addr != nil {
 		attrs = append(attrs, "peer", p.Addr.String())
 	}
@@ -42,7 +45,10 @@ func (o *observer) done(ctx context.Context, method string, start time.Time, err
 	level := slog.LevelInfo
 	switch code {
 	case codes.OK:
-		level = slog.LevelDebug
+		if o.access >= AccessLogOff {
+			return
+		}
+		level = o.access
 	case codes.Internal, codes.Unknown, codes.DataLoss:
 		level = slog.LevelError
 		attrs = append(attrs, "err", status.Convert(err).Message())
@@ -56,7 +62,7 @@ func (o *observer) unary(ctx context.Context, req any, info *grpc.UnaryServerInf
 	start := time.Now()
 	var pctx context.Context = ctx
 	resp, err := handler(withPrincipalSlot(ctx, &pctx), req)
-	o.done(pctx, info.FullMethod, start, err)
+	o.done(pctx, info.FullMethod, start, err, false)
 	return resp, err
 }
 
@@ -64,7 +70,7 @@ func (o *observer) stream(srv any, ss grpc.ServerStream, info *grpc.StreamServer
 	start := time.Now()
 	var pctx = ss.Context()
 	err := handler(srv, &ctxStream{ServerStream: ss, ctx: withPrincipalSlot(ss.Context(), &pctx)})
-	o.done(pctx, info.FullMethod, start, err)
+	o.done(pctx, info.FullMethod, start, err, true)
 	return err
 }
 

@@ -4,6 +4,7 @@ import (
 	"context"
 	"time"
 
+	grpcprom "github.com/grpc-ecosystem/go-grpc-middleware/providers/prometheus"
 	"github.com/prometheus/client_golang/prometheus"
 	"github.com/prometheus/client_golang/prometheus/collectors"
 	"google.golang.org/grpc/codes"
@@ -15,16 +16,25 @@ import (
 //
 //   - nightloom_rpc_requests_total{method,code}: calls by full method name
 //     and final status code;
-//   - nightloom_rpc_duration_seconds{method,code}: their latency;
+//   - nightloom_rpc_duration_seconds{method,code}: the latency of unary
+//     calls (streams are timed by grpc_server_handling_seconds, whose
+//     grpc_type label keeps them apart);
 //   - nightloom_plan_solve_seconds{origin}: wall time of one night's
 //     planning (grid, visibility, solver) by what asked for the plan;
 //   - nightloom_queue_open_blocks: blocks queued at all sites (read from
 //     the store at scrape time);
 //   - nightloom_plan_watchers: open WatchPlans streams;
 //   - nightloom_plan_versions_total: plan versions stored;
+//   - the standard gRPC server metrics of go-grpc-middleware's Prometheus
+//     provider: grpc_server_started_total, grpc_server_handled_total,
+//     grpc_server_msg_received_total, grpc_server_msg_sent_total and
+//     grpc_server_handling_seconds, labelled grpc_type, grpc_service,
+//     grpc_method (and grpc_code where the call has ended), so that the
+//     usual gRPC dashboards and alerts work unchanged;
 //   - the Go runtime and process collectors.
 type metrics struct {
 	reg      *prometheus.Registry
+	grpc     *grpcprom.ServerMetrics
 	requests *prometheus.CounterVec
 	latency  *prometheus.HistogramVec
 	solve    *prometheus.HistogramVec
@@ -39,7 +49,7 @@ func newMetrics(queueSize func(context.Context) (int, error), watchers func() in
 	}, []string{"method", "code"})
 	m.latency = prometheus.NewHistogramVec(prometheus.HistogramOpts{
 		Name:    "nightloom_rpc_duration_seconds",
-		Help:    "Latency of gRPC calls in seconds, by full method name and status code (streams: their lifetime).",
+		Help:    "Latency of unary gRPC calls in seconds, by full method name and status code (streams: see grpc_server_handling_seconds).",
 		Buckets: prometheus.ExponentialBuckets(0.0005, 2.5, 14), // 0.5 ms .. ~75 s
 	}, []string{"method", "code"})
 	m.solve = prometheus.NewHistogramVec(prometheus.HistogramOpts{
@@ -67,15 +77,19 @@ func newMetrics(queueSize func(context.Context) (int, error), watchers func() in
 		Name: "nightloom_plan_watchers",
 		Help: "Open WatchPlans streams.",
 	}, func() float64 { return float64(watchers()) })
-	m.reg.MustRegister(m.requests, m.latency, m.solve, m.versions, queue, watch,
+	m.grpc = grpcprom.NewServerMetrics(grpcprom.WithServerHandlingTimeHistogram(
+		grpcprom.WithHistogramBuckets(prometheus.ExponentialBuckets(0.0005, 2.5, 14))))
+	m.reg.MustRegister(m.grpc, m.requests, m.latency, m.solve, m.versions, queue, watch,
 		collectors.NewGoCollector(), collectors.NewProcessCollector(collectors.ProcessCollectorOpts{}))
 	return m
 }
 
-func (m *metrics) observeCall(method string, code codes.Code, d time.Duration) {
+func (m *metrics) observeCall(method string, code codes.Code, d time.Duration, stream bool) {
 	c := code.String()
 	m.requests.WithLabelValues(method, c).Inc()
-	m.latency.WithLabelValues(method, c).Observe(d.Seconds())
+	if !stream {
+		m.latency.WithLabelValues(method, c).Observe(d.Seconds())
+	}
 }
 
 func (m *metrics) observeSolve(origin string, d time.Duration) {

@@ -224,8 +224,9 @@ func (x *planService) MakePlan(ctx context.Context, req *nightloomv1.MakePlanReq
 			left := int(b.pb.GetFramesWanted()) - b.framesDone
 			switch {
 			case left <= 0:
-				excluded = append(excluded, &nightloomv1.Unplaced{BlockId: b.pb.GetId(), Reason: nightloomv1.Reason_REASON_COMPLETED,
-					Detail: "all frames are planned by earlier nights of this call"})
+				// Completed by earlier nights of this call: not unplaced
+				// (issue 14); the night simply has nothing left for it.
+				continue
 			case byNight && !nightAllowed(b.pb, sp.date):
 				excluded = append(excluded, &nightloomv1.Unplaced{BlockId: b.pb.GetId(), Reason: nightloomv1.Reason_REASON_DATE_WINDOW,
 					Detail: "outside the block's earliest_date..latest_date nights", FramesLeft: int32(left)})

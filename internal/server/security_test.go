@@ -138,7 +138,7 @@ func validCalls(e *env, f fixture, plan *nightloomv1.Plan) map[string]validCall 
 		return r.GetSite().GetId()
 	}
 	newTarget := func(t *testing.T) string {
-		r, err := e.targets.CreateTarget(adm, &nightloomv1.CreateTargetRequest{Target: testFixed("Pebblewick Cluster", 140, 20)})
+		r, err := e.targets.CreateTarget(adm, &nightloomv1.CreateTargetRequest{Target: testFixed(fmt.Sprintf("Pebblewick Cluster %d", next()), 140, 20)})
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -173,7 +173,9 @@ func validCalls(e *env, f fixture, plan *nightloomv1.Plan) map[string]validCall 
 			}
 		},
 		nightloomv1.TargetService_CreateTarget_FullMethodName: now(func(ctx context.Context) error {
-			_, err := e.targets.CreateTarget(ctx, &nightloomv1.CreateTargetRequest{Target: testComet()})
+			c := testComet()
+			c.Name = fmt.Sprintf("C/2031 E%d (Marrowind)", 10+next())
+			_, err := e.targets.CreateTarget(ctx, &nightloomv1.CreateTargetRequest{Target: c})
 			return err
 		}),
 		nightloomv1.TargetService_GetTarget_FullMethodName: now(func(ctx context.Context) error {
@@ -215,6 +217,37 @@ func validCalls(e *env, f fixture, plan *nightloomv1.Plan) map[string]validCall 
 		}),
 		nightloomv1.QueueService_ListBlocks_FullMethodName: now(func(ctx context.Context) error {
 			_, err := e.queue.ListBlocks(ctx, &nightloomv1.ListBlocksRequest{SiteId: site})
+			return err
+		}),
+		nightloomv1.QueueService_UpdateBlock_FullMethodName: func(t *testing.T) func(ctx context.Context) error {
+			q, err := e.queue.QueueBlocks(adm, &nightloomv1.QueueBlocksRequest{Blocks: []*nightloomv1.Block{testBlock(site, tgt, "G", 8, 2)}})
+			if err != nil {
+				t.Fatal(err)
+			}
+			id := q.GetBlocks()[0].GetId()
+			return func(ctx context.Context) error {
+				_, err := e.queue.UpdateBlock(ctx, &nightloomv1.UpdateBlockRequest{Block: &nightloomv1.Block{Id: id, Priority: 3},
+					UpdateMask: &fieldmaskpb.FieldMask{Paths: []string{"priority"}}})
+				return err
+			}
+		},
+		nightloomv1.QueueService_WithdrawBlocks_FullMethodName: func(t *testing.T) func(ctx context.Context) error {
+			other, err := e.targets.CreateTarget(adm, &nightloomv1.CreateTargetRequest{Target: testFixed(fmt.Sprintf("Auth Withdraw %d", next()), 100, 20)})
+			if err != nil {
+				t.Fatal(err)
+			}
+			oid := other.GetTarget().GetId()
+			if _, err := e.queue.QueueBlocks(adm, &nightloomv1.QueueBlocksRequest{Blocks: []*nightloomv1.Block{testBlock(site, oid, "G", 8, 2)}}); err != nil {
+				t.Fatal(err)
+			}
+			return func(ctx context.Context) error {
+				_, err := e.queue.WithdrawBlocks(ctx, &nightloomv1.WithdrawBlocksRequest{SiteId: site, TargetId: oid, Reason: "auth test"})
+				return err
+			}
+		},
+		nightloomv1.ExportService_ExportPlan_FullMethodName: now(func(ctx context.Context) error {
+			_, err := nightloomv1.NewExportServiceClient(e.conn).ExportPlan(ctx, &nightloomv1.ExportPlanRequest{PlanId: plan.GetId(),
+				Format: nightloomv1.ExportFormat_EXPORT_FORMAT_CSV})
 			return err
 		}),
 		nightloomv1.QueueService_WithdrawBlock_FullMethodName: func(t *testing.T) func(ctx context.Context) error {
@@ -327,7 +360,7 @@ func validCalls(e *env, f fixture, plan *nightloomv1.Plan) map[string]validCall 
 // as auth.go states them (viewer reads sites, targets, the queue, plans and
 // the sky; operator also queues, withdraws and plans; telescope reads the
 // queue and plans, asks for the next assignment, watches and reports
-// progress, and (issue 11) reads its site and replans; admin does
+// progress, (issue 11) replans, and since issue 14 reads its site and the targets; admin does
 // everything), independently of methodRoles, so that
 // an edit of the table that widens or narrows a right fails here.
 var specRoles = func() map[string][]Role {
@@ -340,8 +373,8 @@ var specRoles = func() map[string][]Role {
 		nightloomv1.SiteService_UpdateSite_FullMethodName:              admin,
 		nightloomv1.SiteService_DeleteSite_FullMethodName:              admin,
 		nightloomv1.TargetService_CreateTarget_FullMethodName:          admin,
-		nightloomv1.TargetService_GetTarget_FullMethodName:             read,
-		nightloomv1.TargetService_ListTargets_FullMethodName:           read,
+		nightloomv1.TargetService_GetTarget_FullMethodName:             queueRead,
+		nightloomv1.TargetService_ListTargets_FullMethodName:           queueRead,
 		nightloomv1.TargetService_UpdateTarget_FullMethodName:          admin,
 		nightloomv1.TargetService_DeleteTarget_FullMethodName:          admin,
 		nightloomv1.TargetService_ImportElements_FullMethodName:        admin,
@@ -365,6 +398,9 @@ var specRoles = func() map[string][]Role {
 		nightloomv1.ApparitionService_MagnitudeHistory_FullMethodName:  read,
 		nightloomv1.CatalogueService_LookupName_FullMethodName:         read,
 		nightloomv1.CatalogueService_SearchCatalogue_FullMethodName:    read,
+		nightloomv1.QueueService_UpdateBlock_FullMethodName:            plan,
+		nightloomv1.QueueService_WithdrawBlocks_FullMethodName:         plan,
+		nightloomv1.ExportService_ExportPlan_FullMethodName:            queueRead,
 	}
 }()
 

@@ -16,12 +16,13 @@ import (
 	"time"
 
 	"github.com/prometheus/client_golang/prometheus/promhttp"
+	sdktrace "go.opentelemetry.io/otel/sdk/trace"
+	"go.opentelemetry.io/otel/trace"
 	"google.golang.org/grpc"
 	"google.golang.org/grpc/credentials"
 	"google.golang.org/grpc/health"
 	healthpb "google.golang.org/grpc/health/grpc_health_v1"
 	"google.golang.org/grpc/keepalive"
-	"google.golang.org/grpc/reflection"
 
 	"github.com/nightloom/nightloom/internal/store"
 	nightloomv1 "github.com/nightloom/nightloom/proto/nightloom/v1"
@@ -29,6 +30,10 @@ import (
 
 	_ "time/tzdata" // IANA zones for sites, whatever the host has installed
 )
+
+// AccessLogOff as Config.AccessLogLevel logs no record for calls that
+// succeed.
+const AccessLogOff = slog.Level(100)
 
 // Defaults of Config.
 const (
@@ -75,6 +80,11 @@ type Config struct {
 
 	// Logger receives the structured logs. Default: text to stderr, info.
 	Logger *slog.Logger
+	// AccessLogLevel is the level of the access record of each call that
+	// succeeds (method, code, duration_ms, peer, token_id); failed calls
+	// are logged at INFO, or ERROR for internal errors. The zero value is
+	// INFO; AccessLogOff turns the records of successful calls off.
+	AccessLogLevel slog.Level
 
 	// DefaultTimeBudget is the solver budget of a request that sets none.
 	// Default DefaultTimeBudget (plan.proto).
@@ -89,6 +99,11 @@ type Config struct {
 	// MaxWatchersPerSite bounds the WatchPlans streams of a site. Default
 	// DefaultMaxWatchersPerSite.
 	MaxWatchersPerSite int
+
+	// TracerProvider, when set, traces every call (tests: an in-memory
+	// recorder). Unset, the OTEL_* environment decides (tracing.go); by
+	// default there is no tracing.
+	TracerProvider trace.TracerProvider
 
 	// Now is the server's clock (Replan and NextAssignment without an
 	// instant, the queued-block replan, expiry). Default time.Now.
@@ -155,6 +170,11 @@ type Server struct {
 	health  *health.Server
 	hub     *hub
 	metrics *metrics
+	guard   *tokenGuard
+	public  *publicStreams
+	// tracer is the provider made from OTEL_* (nil: none, or the caller's);
+	// Shutdown flushes and stops it.
+	tracer *sdktrace.TracerProvider
 
 	lis        net.Listener
 	metricsLis net.Listener
@@ -164,6 +184,9 @@ type Server struct {
 	// publishing it, so that watchers see versions in order, and the
 	// check-solve-store sequence of a replan.
 	siteLocks [64]sync.Mutex
+	// targetNames serialises the check and the write of a target's name
+	// (targetnames.go).
+	targetNames sync.Mutex
 
 	// bg tracks background work (replans after an urgent block); bgCtx is
 	// cancelled at shutdown.
@@ -194,6 +217,9 @@ func Start(ctx context.Context, cfg Config) (*Server, error) {
 	}
 
 	s := &Server{cfg: cfg, log: cfg.Logger, now: cfg.Now, planner: cfg.planner, serveDone: make(chan error, 1)}
+	if w := KeyFileWarning(cfg.TLSKeyFile); w != "" {
+		s.log.Warn(w)
+	}
 	if s.planner == nil {
 		s.planner = schedulerPlanner{lookahead: &scheduler.LookaheadCache{}}
 	}
@@ -208,6 +234,9 @@ func Start(ctx context.Context, cfg Config) (*Server, error) {
 		s.db, s.closeDB = db, db
 	}
 	fail := func(err error) (*Server, error) {
+		if s.guard != nil {
+			s.guard.close()
+		}
 		if s.lis != nil {
 			_ = s.lis.Close()
 		}
@@ -223,12 +252,14 @@ func Start(ctx context.Context, cfg Config) (*Server, error) {
 	s.hub = newHub(cfg.WatchBuffer, cfg.MaxWatchersPerSite, MaxWatchersTotal)
 	s.metrics = newMetrics(func(ctx context.Context) (int, error) { return s.db.QueueSize(ctx, "") }, s.hub.count)
 
-	obs := &observer{log: s.log, metrics: s.metrics}
-	auth := &authenticator{tokens: s.db}
+	obs := &observer{log: s.log, metrics: s.metrics, access: cfg.AccessLogLevel}
+	s.guard = newTokenGuard(s.db, s.log, tokenRecheckInterval)
+	s.public = newPublicStreams()
+	auth := &authenticator{tokens: s.db, guard: s.guard}
 	em := &errorMapper{log: s.log}
 	opts := []grpc.ServerOption{
-		grpc.ChainUnaryInterceptor(obs.unary, auth.unary, em.unary),
-		grpc.ChainStreamInterceptor(obs.stream, auth.stream, em.stream),
+		grpc.ChainUnaryInterceptor(s.metrics.grpc.UnaryServerInterceptor(), obs.unary, auth.unary, em.unary, s.scopeUnary),
+		grpc.ChainStreamInterceptor(s.metrics.grpc.StreamServerInterceptor(), obs.stream, s.public.stream, auth.stream, em.stream, s.scopeStream),
 		grpc.MaxRecvMsgSize(cfg.MaxRecvBytes),
 		grpc.MaxSendMsgSize(MaxSendBytes),
 		grpc.MaxConcurrentStreams(MaxConcurrentStreams),
@@ -239,6 +270,19 @@ func Start(ctx context.Context, cfg Config) (*Server, error) {
 	if creds != nil {
 		opts = append(opts, grpc.Creds(creds))
 	}
+	tp := cfg.TracerProvider
+	if tp == nil {
+		if s.tracer, err = tracerFromEnv(ctx, os.Getenv); err != nil {
+			return fail(err)
+		}
+		if s.tracer != nil {
+			tp = s.tracer
+			s.log.Info("tracing on (OTEL_* environment)")
+		}
+	}
+	if tp != nil {
+		opts = append(opts, tracingOption(tp))
+	}
 	s.grpc = grpc.NewServer(opts...)
 	nightloomv1.RegisterSiteServiceServer(s.grpc, &siteService{s: s})
 	nightloomv1.RegisterTargetServiceServer(s.grpc, &targetService{s: s})
@@ -247,9 +291,11 @@ func Start(ctx context.Context, cfg Config) (*Server, error) {
 	nightloomv1.RegisterSkyServiceServer(s.grpc, &skyService{s: s})
 	nightloomv1.RegisterCatalogueServiceServer(s.grpc, &catalogueService{s: s})
 	nightloomv1.RegisterApparitionServiceServer(s.grpc, &apparitionService{s: s})
+	nightloomv1.RegisterExportServiceServer(s.grpc, &exportService{s: s})
 	s.health = health.NewServer()
 	healthpb.RegisterHealthServer(s.grpc, s.health)
-	reflection.Register(s.grpc)
+	registerReflection(s.grpc, s.log)
+	s.metrics.grpc.InitializeMetrics(s.grpc)
 	for name := range s.grpc.GetServiceInfo() {
 		s.health.SetServingStatus(name, healthpb.HealthCheckResponse_SERVING)
 	}
@@ -330,7 +376,8 @@ func (s *Server) CreateToken(ctx context.Context, role Role, label string) (stri
 	return CreateToken(ctx, s.db, role, label)
 }
 
-// Shutdown stops the daemon: health reports NOT_SERVING, watch streams end
+// Shutdown stops the daemon: health reports NOT_SERVING, health watchers and
+// reflection streams end at once (publicstreams.go), watch streams end
 // with UNAVAILABLE, new calls are refused, calls in flight may finish within
 // Config.ShutdownTimeout (or until ctx ends), then the rest are cancelled
 // (GracefulStop falling back to Stop), background replans are awaited and
@@ -339,6 +386,7 @@ func (s *Server) Shutdown(ctx context.Context) error {
 	s.stopOnce.Do(func() {
 		s.log.Info("nightloomd shutting down", "timeout", s.cfg.ShutdownTimeout)
 		s.health.Shutdown()
+		s.public.endAll() // health watchers and reflection clients first
 		s.hub.close()
 		ctx, cancel := context.WithTimeout(ctx, s.cfg.ShutdownTimeout)
 		defer cancel()
@@ -358,11 +406,17 @@ func (s *Server) Shutdown(ctx context.Context) error {
 		s.bgCancel()
 		s.bgMu.Unlock()
 		s.bg.Wait()
+		s.guard.close()
 		var errs []error
 		if s.metricsSrv != nil {
 			mctx, mcancel := context.WithTimeout(context.Background(), 2*time.Second)
 			errs = append(errs, s.metricsSrv.Shutdown(mctx))
 			mcancel()
+		}
+		if s.tracer != nil {
+			tctx, tcancel := context.WithTimeout(context.Background(), 2*time.Second)
+			errs = append(errs, s.tracer.Shutdown(tctx))
+			tcancel()
 		}
 		if s.closeDB != nil {
 			errs = append(errs, s.closeDB.Close())

@@ -131,7 +131,7 @@ func (x *siteService) ListSites(ctx context.Context, req *nightloomv1.ListSitesR
 // pageErr reports a page token the store refused as a field violation.
 func pageErr(err error) error {
 	if errors.Is(err, store.ErrInvalid) {
-		return fieldError("page_token", "not a token of this list: %v", err)
+		return fieldError("page_token", "not a page token of this list (pass next_page_token from the previous page unchanged)")
 	}
 	return err
 }

@@ -65,6 +65,11 @@ func (x *targetService) CreateTarget(ctx context.Context, req *nightloomv1.Creat
 	if err != nil {
 		return nil, err
 	}
+	x.s.targetNames.Lock()
+	defer x.s.targetNames.Unlock()
+	if err := x.s.checkTargetName(ctx, t.GetName(), ""); err != nil {
+		return nil, err
+	}
 	rec, err := x.s.db.CreateTarget(ctx, store.Target{ID: newID(targetPrefix), Name: t.GetName(), Kind: targetKind(t), Spec: spec})
 	if err != nil {
 		return nil, err
@@ -159,7 +164,13 @@ func (x *targetService) UpdateTarget(ctx context.Context, req *nightloomv1.Updat
 		if err != nil {
 			return nil, err
 		}
+		x.s.targetNames.Lock()
+		if err := x.s.checkTargetName(ctx, t.GetName(), rec.ID); err != nil {
+			x.s.targetNames.Unlock()
+			return nil, err
+		}
 		out, err := x.s.db.UpdateTarget(ctx, store.Target{ID: rec.ID, Name: t.GetName(), Kind: targetKind(t), Spec: spec, Revision: rec.Revision})
+		x.s.targetNames.Unlock()
 		if errors.Is(err, store.ErrConflict) && attempt < updateRetries {
 			continue
 		}

@@ -138,11 +138,14 @@ func (r *records) rows() []struct {
 	out = append(out, t)
 	t = tbl{table: "tokens", cols: tokenCols}
 	for _, x := range r.tokens {
-		var revoked any
+		var revoked, expires any
 		if x.RevokedAt != nil {
 			revoked = x.RevokedAt.UnixNano()
 		}
-		t.rows = append(t.rows, []any{x.ID, blob(x.Hash), x.Role, x.Label, x.CreatedAt.UnixNano(), revoked})
+		if x.ExpiresAt != nil {
+			expires = x.ExpiresAt.UnixNano()
+		}
+		t.rows = append(t.rows, []any{x.ID, blob(x.Hash), x.Role, x.Label, x.CreatedAt.UnixNano(), revoked, expires, x.SiteID})
 	}
 	return append(out, t)
 }

@@ -48,6 +48,10 @@ type Store interface {
 	MagnitudeObservations(ctx context.Context, targetID string, limit int) ([]MagnitudeObservation, error)
 	CreateMagnitudeFit(ctx context.Context, f MagnitudeFit, target *Target) (MagnitudeFit, error)
 	MagnitudeFits(ctx context.Context, targetID string) ([]MagnitudeFit, error)
+	UpdateBlock(ctx context.Context, b Block, actor, fields string) (Block, error)
+	WithdrawMatching(ctx context.Context, siteID, targetID, actor string, keep func(Block) bool) ([]Block, error)
+	BlockEdits(ctx context.Context, blockID string) ([]BlockEdit, error)
+	TargetIDsByName(ctx context.Context, name string) ([]string, error)
 }
 
 // DB is an open nightloom database, SQLite or PostgreSQL. Its methods are
@@ -197,4 +201,20 @@ func (d *DB) CreateMagnitudeFit(ctx context.Context, f MagnitudeFit, target *Tar
 
 func (d *DB) MagnitudeFits(ctx context.Context, targetID string) ([]MagnitudeFit, error) {
 	return d.impl.MagnitudeFits(ctx, targetID)
+}
+
+func (d *DB) UpdateBlock(ctx context.Context, b Block, actor, fields string) (Block, error) {
+	return d.impl.UpdateBlock(ctx, b, actor, fields)
+}
+
+func (d *DB) WithdrawMatching(ctx context.Context, siteID, targetID, actor string, keep func(Block) bool) ([]Block, error) {
+	return d.impl.WithdrawMatching(ctx, siteID, targetID, actor, keep)
+}
+
+func (d *DB) BlockEdits(ctx context.Context, blockID string) ([]BlockEdit, error) {
+	return d.impl.BlockEdits(ctx, blockID)
+}
+
+func (d *DB) TargetIDsByName(ctx context.Context, name string) ([]string, error) {
+	return d.impl.TargetIDsByName(ctx, name)
 }

@@ -230,3 +230,143 @@ func (d *pgDB) MagnitudeFits(ctx context.Context, targetID string) ([]MagnitudeF
 	}
 	return out, pgMapErr(ctx, op, rows.Err())
 }
+
+func insertEditPG(ctx context.Context, tx pgx.Tx, e BlockEdit) error {
+	_, err := tx.Exec(ctx, `INSERT INTO block_edits (block_id, at, actor, action, fields, revision) VALUES ($1, $2, $3, $4, $5, $6)`,
+		e.BlockID, e.At.UnixNano(), e.Actor, e.Action, e.Fields, e.Revision)
+	return err
+}
+
+func (d *pgDB) UpdateBlock(ctx context.Context, b Block, actor, fields string) (Block, error) {
+	op := fmt.Sprintf("update block %q", b.ID)
+	if math.IsNaN(b.Priority) || math.IsInf(b.Priority, 0) || b.FramesWanted < 1 {
+		return Block{}, pgMapErr(ctx, op, invalidf("priority %v or frames wanted %d out of range", b.Priority, b.FramesWanted))
+	}
+	var out Block
+	err := d.write(ctx, op, func(tx pgx.Tx) error {
+		cur, err := scanBlock(tx.QueryRow(ctx, `SELECT `+blockCols+` FROM blocks WHERE id = $1 FOR UPDATE`, b.ID))
+		if err != nil {
+			return err
+		}
+		switch {
+		case cur.State != StateQueued:
+			return fmt.Errorf("block is %s: %w", cur.State, ErrConflict)
+		case cur.Revision != b.Revision:
+			return fmt.Errorf("stored revision is %d, update is based on %d: %w", cur.Revision, b.Revision, ErrConflict)
+		case b.FramesWanted < cur.FramesDone:
+			return invalidf("frames wanted %d is below the %d frames done", b.FramesWanted, cur.FramesDone)
+		}
+		now := d.now()
+		cur.Priority, cur.FramesWanted, cur.Spec = b.Priority, b.FramesWanted, b.Spec
+		cur.UpdatedAt, cur.Revision = now, cur.Revision+1
+		if cur.FramesDone >= cur.FramesWanted {
+			cur.State = StateCompleted
+		}
+		if _, err := tx.Exec(ctx, `UPDATE blocks SET priority = $1, frames_wanted = $2, spec = $3, state = $4, updated_at = $5, revision = $6 WHERE id = $7`,
+			cur.Priority, cur.FramesWanted, blob(cur.Spec), cur.State, now.UnixNano(), cur.Revision, cur.ID); err != nil {
+			return err
+		}
+		out = cur
+		return insertEditPG(ctx, tx, BlockEdit{BlockID: cur.ID, At: now, Actor: actor, Action: "update", Fields: fields, Revision: cur.Revision})
+	})
+	if err != nil {
+		return Block{}, err
+	}
+	return out, nil
+}
+
+func (d *pgDB) WithdrawMatching(ctx context.Context, siteID, targetID, actor string, keep func(Block) bool) ([]Block, error) {
+	op := fmt.Sprintf("withdraw blocks of site %q", siteID)
+	var out []Block
+	err := d.write(ctx, op, func(tx pgx.Tx) error {
+		out = nil
+		var n int
+		if err := tx.QueryRow(ctx, `SELECT COUNT(*) FROM sites WHERE id = $1`, siteID).Scan(&n); err != nil {
+			return err
+		}
+		if n == 0 {
+			return fmt.Errorf("site %q: %w", siteID, ErrNotFound)
+		}
+		q := `SELECT ` + blockCols + ` FROM blocks WHERE site_id = $1 AND state = 'queued'`
+		args := []any{siteID}
+		if targetID != "" {
+			q += ` AND target_id = $2`
+			args = append(args, targetID)
+		}
+		rows, err := tx.Query(ctx, q+` ORDER BY created_at, id FOR UPDATE`, args...)
+		if err != nil {
+			return err
+		}
+		var found []Block
+		for rows.Next() {
+			b, err := scanBlock(rows)
+			if err != nil {
+				rows.Close()
+				return err
+			}
+			found = append(found, b)
+		}
+		rows.Close()
+		if err := rows.Err(); err != nil {
+			return err
+		}
+		now := d.now()
+		for _, b := range found {
+			if keep != nil && !keep(b) {
+				continue
+			}
+			b.State, b.UpdatedAt, b.Revision = StateWithdrawn, now, b.Revision+1
+			if _, err := tx.Exec(ctx, `UPDATE blocks SET state = $1, updated_at = $2, revision = $3 WHERE id = $4`,
+				b.State, now.UnixNano(), b.Revision, b.ID); err != nil {
+				return err
+			}
+			if err := insertEditPG(ctx, tx, BlockEdit{BlockID: b.ID, At: now, Actor: actor, Action: "withdraw", Revision: b.Revision}); err != nil {
+				return err
+			}
+			out = append(out, b)
+		}
+		return nil
+	})
+	if err != nil {
+		return nil, err
+	}
+	return out, nil
+}
+
+func (d *pgDB) BlockEdits(ctx context.Context, blockID string) ([]BlockEdit, error) {
+	op := fmt.Sprintf("edits of block %q", blockID)
+	rows, err := d.pool.Query(ctx, `SELECT block_id, at, actor, action, fields, revision FROM block_edits WHERE block_id = $1 ORDER BY at, revision`, blockID)
+	if err != nil {
+		return nil, pgMapErr(ctx, op, err)
+	}
+	defer rows.Close()
+	var out []BlockEdit
+	for rows.Next() {
+		var e BlockEdit
+		var at int64
+		if err := rows.Scan(&e.BlockID, &at, &e.Actor, &e.Action, &e.Fields, &e.Revision); err != nil {
+			return nil, pgMapErr(ctx, op, err)
+		}
+		e.At = decTime(at)
+		out = append(out, e)
+	}
+	return out, pgMapErr(ctx, op, rows.Err())
+}
+
+func (d *pgDB) TargetIDsByName(ctx context.Context, name string) ([]string, error) {
+	op := fmt.Sprintf("targets named %q", name)
+	rows, err := d.pool.Query(ctx, `SELECT id FROM targets WHERE name = $1 ORDER BY created_at, id`, name)
+	if err != nil {
+		return nil, pgMapErr(ctx, op, err)
+	}
+	defer rows.Close()
+	var out []string
+	for rows.Next() {
+		var id string
+		if err := rows.Scan(&id); err != nil {
+			return nil, pgMapErr(ctx, op, err)
+		}
+		out = append(out, id)
+	}
+	return out, pgMapErr(ctx, op, rows.Err())
+}

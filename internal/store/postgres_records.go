@@ -579,9 +579,19 @@ func (d *pgDB) CreateToken(ctx context.Context, t Token) (Token, error) {
 	}
 	t.Hash = append([]byte(nil), t.Hash...)
 	t.CreatedAt, t.RevokedAt = d.now(), nil
+	var expires *int64
+	if t.ExpiresAt != nil {
+		if !t.ExpiresAt.After(t.CreatedAt) {
+			return Token{}, pgMapErr(ctx, op, invalidf("token expires at %s, not after its creation", t.ExpiresAt.UTC().Format(time.RFC3339)))
+		}
+		e := decTime(t.ExpiresAt.UnixNano())
+		t.ExpiresAt = &e
+		n := e.UnixNano()
+		expires = &n
+	}
 	err := d.write(ctx, op, func(tx pgx.Tx) error {
-		_, err := tx.Exec(ctx, `INSERT INTO tokens (`+tokenCols+`) VALUES ($1, $2, $3, $4, $5, NULL)`,
-			t.ID, t.Hash, t.Role, t.Label, t.CreatedAt.UnixNano())
+		_, err := tx.Exec(ctx, `INSERT INTO tokens (`+tokenCols+`) VALUES ($1, $2, $3, $4, $5, NULL, $6, $7)`,
+			t.ID, t.Hash, t.Role, t.Label, t.CreatedAt.UnixNano(), expires, t.SiteID)
 		return err
 	})
 	if err != nil {
@@ -599,7 +609,8 @@ func (d *pgDB) GetToken(ctx context.Context, id string) (Token, error) {
 }
 
 func (d *pgDB) TokenByHash(ctx context.Context, hash []byte) (Token, error) {
-	t, err := scanToken(d.pool.QueryRow(ctx, `SELECT `+tokenCols+` FROM tokens WHERE hash = $1 AND revoked_at IS NULL`, hash))
+	t, err := scanToken(d.pool.QueryRow(ctx, `SELECT `+tokenCols+` FROM tokens
+		WHERE hash = $1 AND revoked_at IS NULL AND (expires_at IS NULL OR expires_at > $2)`, hash, d.now().UnixNano()))
 	if err != nil {
 		return Token{}, pgMapErr(ctx, "token by hash", err)
 	}

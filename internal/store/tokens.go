@@ -10,28 +10,36 @@ import (
 
 // Token is a bearer token's record. Hash is the SHA-256 of the secret; the
 // secret itself is never stored. Role is the server's role name. RevokedAt is
-// nil while the token is active.
+// nil while the token is active. ExpiresAt, when set, is the instant from
+// which the token is no longer accepted; SiteID, when set, holds the token
+// to that one site.
 type Token struct {
 	ID          string
 	Hash        []byte
 	Role, Label string
 	CreatedAt   time.Time
 	RevokedAt   *time.Time
+	ExpiresAt   *time.Time
+	SiteID      string
 }
 
-const tokenCols = `id, hash, role, label, created_at, revoked_at`
+const tokenCols = `id, hash, role, label, created_at, revoked_at, expires_at, site_id`
 
 func scanToken(s scanner) (Token, error) {
 	var x Token
 	var created int64
-	var revoked sql.NullInt64
-	if err := s.Scan(&x.ID, &x.Hash, &x.Role, &x.Label, &created, &revoked); err != nil {
+	var revoked, expires sql.NullInt64
+	if err := s.Scan(&x.ID, &x.Hash, &x.Role, &x.Label, &created, &revoked, &expires, &x.SiteID); err != nil {
 		return Token{}, err
 	}
 	x.CreatedAt = decTime(created)
 	if revoked.Valid {
 		t := decTime(revoked.Int64)
 		x.RevokedAt = &t
+	}
+	if expires.Valid {
+		t := decTime(expires.Int64)
+		x.ExpiresAt = &t
 	}
 	return x, nil
 }
@@ -47,9 +55,18 @@ func (d *sqliteDB) CreateToken(ctx context.Context, t Token) (Token, error) {
 	}
 	t.Hash = append([]byte(nil), t.Hash...)
 	t.CreatedAt, t.RevokedAt = d.now(), nil
+	var expires sql.NullInt64
+	if t.ExpiresAt != nil {
+		if !t.ExpiresAt.After(t.CreatedAt) {
+			return Token{}, mapErr(ctx, op, invalidf("token expires at %s, not after its creation", t.ExpiresAt.UTC().Format(time.RFC3339)))
+		}
+		e := decTime(t.ExpiresAt.UnixNano())
+		t.ExpiresAt = &e
+		expires = sql.NullInt64{Int64: e.UnixNano(), Valid: true}
+	}
 	err = d.write(ctx, op, func(tx *sql.Tx) error {
-		_, err := tx.ExecContext(ctx, `INSERT INTO tokens (`+tokenCols+`) VALUES (?, ?, ?, ?, ?, NULL)`,
-			t.ID, t.Hash, t.Role, t.Label, t.CreatedAt.UnixNano())
+		_, err := tx.ExecContext(ctx, `INSERT INTO tokens (`+tokenCols+`) VALUES (?, ?, ?, ?, ?, NULL, ?, ?)`,
+			t.ID, t.Hash, t.Role, t.Label, t.CreatedAt.UnixNano(), expires, t.SiteID)
 		return err
 	})
 	if err != nil {
@@ -68,11 +85,13 @@ func (d *sqliteDB) GetToken(ctx context.Context, id string) (Token, error) {
 }
 
 // TokenByHash returns the active token whose secret hashes to hash. A revoked
-// token is ErrNotFound like an unknown one, so that the authenticating caller
-// cannot let it in by forgetting to look at RevokedAt. The hash is not part of
-// the error message.
+// or expired token (ExpiresAt at or before the store's clock) is ErrNotFound
+// like an unknown one, so that the authenticating caller cannot let it in by
+// forgetting to look at RevokedAt or ExpiresAt. The hash is not part of the
+// error message.
 func (d *sqliteDB) TokenByHash(ctx context.Context, hash []byte) (Token, error) {
-	t, err := scanToken(d.r.QueryRowContext(ctx, `SELECT `+tokenCols+` FROM tokens WHERE hash = ? AND revoked_at IS NULL`, hash))
+	t, err := scanToken(d.r.QueryRowContext(ctx, `SELECT `+tokenCols+` FROM tokens
+		WHERE hash = ? AND revoked_at IS NULL AND (expires_at IS NULL OR expires_at > ?)`, hash, d.now().UnixNano()))
 	if err != nil {
 		return Token{}, mapErr(ctx, "token by hash", err)
 	}

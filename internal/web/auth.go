@@ -287,6 +287,13 @@ func (h *Handler) signIn(w http.ResponseWriter, r *http.Request) {
 		h.showSignIn(w, r, next, "The token could not be checked; try again.", http.StatusServiceUnavailable)
 		return
 	}
+	if rec.SiteID != "" {
+		// The pages list every site; a token held to one site (issue 14)
+		// is refused rather than shown what it may not see.
+		h.log.Info("web sign-in refused: token held to one site", "token_id", rec.ID, "site_id", rec.SiteID)
+		h.showSignIn(w, r, next, "This token is held to one site; the web pages need a token for every site.", http.StatusForbidden)
+		return
+	}
 	if !mayRead(server.Role(rec.Role)) {
 		h.log.Info("web sign-in refused: role may not read", "token_id", rec.ID, "role", rec.Role)
 		h.showSignIn(w, r, next, "This token's role ("+rec.Role+") may not read sites and plans.", http.StatusForbidden)

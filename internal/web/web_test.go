@@ -13,6 +13,7 @@ import (
 
 	"google.golang.org/protobuf/types/known/timestamppb"
 
+	"github.com/nightloom/nightloom/internal/server"
 	pb "github.com/nightloom/nightloom/proto/nightloom/v1"
 )
 
@@ -147,6 +148,10 @@ func TestSignInAndNightPage(t *testing.T) {
 func TestSignInRefused(t *testing.T) {
 	e := newEnv(t)
 	c := e.client()
+	held, _, err := server.CreateTokenSpec(t.Context(), e.srv.Storage(), server.TokenSpec{Role: server.RoleViewer, SiteID: "site-elsewhere"})
+	if err != nil {
+		t.Fatal(err)
+	}
 	for _, tc := range []struct {
 		name, token string
 		want        int
@@ -155,6 +160,7 @@ func TestSignInRefused(t *testing.T) {
 		{"empty", "", http.StatusUnauthorized},
 		{"too long", strings.Repeat("x", 600), http.StatusUnauthorized},
 		{"telescope role", e.tele, http.StatusForbidden},
+		{"token held to one site", held, http.StatusForbidden},
 	} {
 		resp := e.signIn(c, tc.token)
 		body := readAll(t, resp)

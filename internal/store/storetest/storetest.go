@@ -158,8 +158,10 @@ func checkToken(t *testing.T, what string, got, want store.Token) {
 	t.Helper()
 	revokedEqual := (got.RevokedAt == nil) == (want.RevokedAt == nil) &&
 		(got.RevokedAt == nil || sameTime(*got.RevokedAt, *want.RevokedAt))
+	expiresEqual := (got.ExpiresAt == nil) == (want.ExpiresAt == nil) &&
+		(got.ExpiresAt == nil || sameTime(*got.ExpiresAt, *want.ExpiresAt))
 	if got.ID != want.ID || !bytes.Equal(got.Hash, want.Hash) || got.Role != want.Role || got.Label != want.Label ||
-		!sameTime(got.CreatedAt, want.CreatedAt) || !revokedEqual {
+		!sameTime(got.CreatedAt, want.CreatedAt) || !revokedEqual || !expiresEqual || got.SiteID != want.SiteID {
 		t.Fatalf("%s:\n got %+v\nwant %+v", what, got, want)
 	}
 }
@@ -909,6 +911,28 @@ func testTokens(t *testing.T, db *store.DB) {
 		want := map[string]store.Token{"k1": rev, "k2": tk2}[l.ID]
 		checkToken(t, "listed token", l, want)
 	}
+
+	// Expiry and site scope are kept; a token past its expiry is not found
+	// by hash (the store's own clock, real time here), an expiry not after
+	// creation is refused.
+	soon := time.Now().Add(300 * time.Millisecond)
+	k3, err := db.CreateToken(ctx, store.Token{ID: "k3", Hash: hashOf("secret-three"), Role: "telescope", ExpiresAt: &soon, SiteID: "site-a"})
+	noErr(t, "create expiring token", err)
+	got, err = db.TokenByHash(ctx, hashOf("secret-three"))
+	noErr(t, "expiring token by hash", err)
+	checkToken(t, "expiring token", got, k3)
+	if got.ExpiresAt == nil || !got.ExpiresAt.Equal(soon) || got.SiteID != "site-a" {
+		t.Fatalf("expiring token read back as %+v, want expiry %v and site site-a", got, soon)
+	}
+	past := time.Now().Add(-time.Second)
+	_, err = db.CreateToken(ctx, store.Token{ID: "k4", Hash: hashOf("secret-four"), Role: "viewer", ExpiresAt: &past})
+	wantErr(t, "token expired at creation", err, store.ErrInvalid)
+	time.Sleep(time.Until(soon) + 50*time.Millisecond)
+	_, err = db.TokenByHash(ctx, hashOf("secret-three"))
+	wantErr(t, "expired token by hash", err, store.ErrNotFound)
+	got, err = db.GetToken(ctx, "k3")
+	noErr(t, "get expired token", err)
+	checkToken(t, "get expired token", got, k3)
 }
 
 // ---- paging ----

@@ -195,7 +195,8 @@ func TestServicesAndRPCs(t *testing.T) {
 	want := map[string][]string{
 		"SiteService":       {"CreateSite", "DeleteSite", "GetSite", "ListSites", "UpdateSite"},
 		"TargetService":     {"CreateTarget", "DeleteTarget", "GetTarget", "ImportElements", "ListTargets", "UpdateTarget"},
-		"QueueService":      {"GetBlock", "ListBlocks", "QueueBlocks", "ReportProgress", "WithdrawBlock"},
+		"QueueService":      {"GetBlock", "ListBlocks", "QueueBlocks", "ReportProgress", "UpdateBlock", "WithdrawBlock", "WithdrawBlocks"},
+		"ExportService":     {"ExportPlan"},
 		"PlanService":       {"GetPlan", "ListPlans", "MakePlan", "NextAssignment", "Replan", "WatchPlans"},
 		"SkyService":        {"Ephemeris", "Night", "Visibility"},
 		"ApparitionService": {"MagnitudeHistory", "Outlook", "RefitMagnitudeLaw", "ReportMagnitudes"},

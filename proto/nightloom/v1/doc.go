@@ -10,6 +10,7 @@
 //   - PlanService (plan.proto): plan versions, replanning, dispatch and a
 //     stream of new versions.
 //   - SkyService (sky.proto): ephemeris tables, night events, visibility.
+//   - ExportService (export.proto): a plan as CSV or iCalendar.
 //
 // Shared messages and enums (intervals, dates, the constraint set, pointing,
 // reasons) are in common.proto, whose leading comment states the

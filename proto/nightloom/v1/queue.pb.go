@@ -13,6 +13,7 @@ import (
 	protoreflect "google.golang.org/protobuf/reflect/protoreflect"
 	protoimpl "google.golang.org/protobuf/runtime/protoimpl"
 	durationpb "google.golang.org/protobuf/types/known/durationpb"
+	fieldmaskpb "google.golang.org/protobuf/types/known/fieldmaskpb"
 	timestamppb "google.golang.org/protobuf/types/known/timestamppb"
 	reflect "reflect"
 	sync "sync"
@@ -994,6 +995,218 @@ func (x *WithdrawBlockResponse) GetBlock() *Block {
 	return nil
 }
 
+// Request of UpdateBlock.
+type UpdateBlockRequest struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// The block with its id and the new values of the fields in update_mask.
+	// Required.
+	Block *Block `protobuf:"bytes,1,opt,name=block,proto3" json:"block,omitempty"`
+	// Paths to replace (see UpdateBlock). Required: at least one path.
+	UpdateMask    *fieldmaskpb.FieldMask `protobuf:"bytes,2,opt,name=update_mask,json=updateMask,proto3" json:"update_mask,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *UpdateBlockRequest) Reset() {
+	*x = UpdateBlockRequest{}
+	mi := &file_nightloom_v1_queue_proto_msgTypes[11]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *UpdateBlockRequest) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*UpdateBlockRequest) ProtoMessage() {}
+
+func (x *UpdateBlockRequest) ProtoReflect() protoreflect.Message {
+	mi := &file_nightloom_v1_queue_proto_msgTypes[11]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use UpdateBlockRequest.ProtoReflect.Descriptor instead.
+func (*UpdateBlockRequest) Descriptor() ([]byte, []int) {
+	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{11}
+}
+
+func (x *UpdateBlockRequest) GetBlock() *Block {
+	if x != nil {
+		return x.Block
+	}
+	return nil
+}
+
+func (x *UpdateBlockRequest) GetUpdateMask() *fieldmaskpb.FieldMask {
+	if x != nil {
+		return x.UpdateMask
+	}
+	return nil
+}
+
+// Response of UpdateBlock.
+type UpdateBlockResponse struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// The block after the update.
+	Block         *Block `protobuf:"bytes,1,opt,name=block,proto3" json:"block,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *UpdateBlockResponse) Reset() {
+	*x = UpdateBlockResponse{}
+	mi := &file_nightloom_v1_queue_proto_msgTypes[12]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *UpdateBlockResponse) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*UpdateBlockResponse) ProtoMessage() {}
+
+func (x *UpdateBlockResponse) ProtoReflect() protoreflect.Message {
+	mi := &file_nightloom_v1_queue_proto_msgTypes[12]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use UpdateBlockResponse.ProtoReflect.Descriptor instead.
+func (*UpdateBlockResponse) Descriptor() ([]byte, []int) {
+	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{12}
+}
+
+func (x *UpdateBlockResponse) GetBlock() *Block {
+	if x != nil {
+		return x.Block
+	}
+	return nil
+}
+
+// Request of WithdrawBlocks.
+type WithdrawBlocksRequest struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Id of the site whose open blocks are withdrawn. Required.
+	SiteId string `protobuf:"bytes,1,opt,name=site_id,json=siteId,proto3" json:"site_id,omitempty"`
+	// Only the blocks of this target; empty for every target.
+	TargetId string `protobuf:"bytes,2,opt,name=target_id,json=targetId,proto3" json:"target_id,omitempty"`
+	// Why, for people, 0..500 bytes of UTF-8.
+	Reason        string `protobuf:"bytes,3,opt,name=reason,proto3" json:"reason,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *WithdrawBlocksRequest) Reset() {
+	*x = WithdrawBlocksRequest{}
+	mi := &file_nightloom_v1_queue_proto_msgTypes[13]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *WithdrawBlocksRequest) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*WithdrawBlocksRequest) ProtoMessage() {}
+
+func (x *WithdrawBlocksRequest) ProtoReflect() protoreflect.Message {
+	mi := &file_nightloom_v1_queue_proto_msgTypes[13]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use WithdrawBlocksRequest.ProtoReflect.Descriptor instead.
+func (*WithdrawBlocksRequest) Descriptor() ([]byte, []int) {
+	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{13}
+}
+
+func (x *WithdrawBlocksRequest) GetSiteId() string {
+	if x != nil {
+		return x.SiteId
+	}
+	return ""
+}
+
+func (x *WithdrawBlocksRequest) GetTargetId() string {
+	if x != nil {
+		return x.TargetId
+	}
+	return ""
+}
+
+func (x *WithdrawBlocksRequest) GetReason() string {
+	if x != nil {
+		return x.Reason
+	}
+	return ""
+}
+
+// Response of WithdrawBlocks.
+type WithdrawBlocksResponse struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// The blocks withdrawn by this call, in creation order.
+	Blocks        []*Block `protobuf:"bytes,1,rep,name=blocks,proto3" json:"blocks,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *WithdrawBlocksResponse) Reset() {
+	*x = WithdrawBlocksResponse{}
+	mi := &file_nightloom_v1_queue_proto_msgTypes[14]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *WithdrawBlocksResponse) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*WithdrawBlocksResponse) ProtoMessage() {}
+
+func (x *WithdrawBlocksResponse) ProtoReflect() protoreflect.Message {
+	mi := &file_nightloom_v1_queue_proto_msgTypes[14]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use WithdrawBlocksResponse.ProtoReflect.Descriptor instead.
+func (*WithdrawBlocksResponse) Descriptor() ([]byte, []int) {
+	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{14}
+}
+
+func (x *WithdrawBlocksResponse) GetBlocks() []*Block {
+	if x != nil {
+		return x.Blocks
+	}
+	return nil
+}
+
 // Request of ReportProgress.
 type ReportProgressRequest struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
@@ -1005,7 +1218,7 @@ type ReportProgressRequest struct {
 
 func (x *ReportProgressRequest) Reset() {
 	*x = ReportProgressRequest{}
-	mi := &file_nightloom_v1_queue_proto_msgTypes[11]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[15]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1017,7 +1230,7 @@ func (x *ReportProgressRequest) String() string {
 func (*ReportProgressRequest) ProtoMessage() {}
 
 func (x *ReportProgressRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_queue_proto_msgTypes[11]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[15]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1030,7 +1243,7 @@ func (x *ReportProgressRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ReportProgressRequest.ProtoReflect.Descriptor instead.
 func (*ReportProgressRequest) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{11}
+	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{15}
 }
 
 func (x *ReportProgressRequest) GetReport() *ProgressReport {
@@ -1057,7 +1270,7 @@ type ReportProgressResponse struct {
 
 func (x *ReportProgressResponse) Reset() {
 	*x = ReportProgressResponse{}
-	mi := &file_nightloom_v1_queue_proto_msgTypes[12]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[16]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1069,7 +1282,7 @@ func (x *ReportProgressResponse) String() string {
 func (*ReportProgressResponse) ProtoMessage() {}
 
 func (x *ReportProgressResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_queue_proto_msgTypes[12]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[16]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1082,7 +1295,7 @@ func (x *ReportProgressResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ReportProgressResponse.ProtoReflect.Descriptor instead.
 func (*ReportProgressResponse) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{12}
+	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{16}
 }
 
 func (x *ReportProgressResponse) GetBlock() *Block {
@@ -1110,7 +1323,7 @@ var File_nightloom_v1_queue_proto protoreflect.FileDescriptor
 
 const file_nightloom_v1_queue_proto_rawDesc = "" +
 	"\n" +
-	"\x18nightloom/v1/queue.proto\x12\fnightloom.v1\x1a\x1egoogle/protobuf/duration.proto\x1a\x1fgoogle/protobuf/timestamp.proto\x1a\x19nightloom/v1/common.proto\"y\n" +
+	"\x18nightloom/v1/queue.proto\x12\fnightloom.v1\x1a\x1egoogle/protobuf/duration.proto\x1a google/protobuf/field_mask.proto\x1a\x1fgoogle/protobuf/timestamp.proto\x1a\x19nightloom/v1/common.proto\"y\n" +
 	"\aCadence\x125\n" +
 	"\binterval\x18\x01 \x01(\v2\x19.google.protobuf.DurationR\binterval\x127\n" +
 	"\ttolerance\x18\x02 \x01(\v2\x19.google.protobuf.DurationR\ttolerance\"\xd6\x06\n" +
@@ -1175,7 +1388,19 @@ const file_nightloom_v1_queue_proto_rawDesc = "" +
 	"\bblock_id\x18\x01 \x01(\tR\ablockId\x12\x16\n" +
 	"\x06reason\x18\x02 \x01(\tR\x06reason\"B\n" +
 	"\x15WithdrawBlockResponse\x12)\n" +
-	"\x05block\x18\x01 \x01(\v2\x13.nightloom.v1.BlockR\x05block\"M\n" +
+	"\x05block\x18\x01 \x01(\v2\x13.nightloom.v1.BlockR\x05block\"|\n" +
+	"\x12UpdateBlockRequest\x12)\n" +
+	"\x05block\x18\x01 \x01(\v2\x13.nightloom.v1.BlockR\x05block\x12;\n" +
+	"\vupdate_mask\x18\x02 \x01(\v2\x1a.google.protobuf.FieldMaskR\n" +
+	"updateMask\"@\n" +
+	"\x13UpdateBlockResponse\x12)\n" +
+	"\x05block\x18\x01 \x01(\v2\x13.nightloom.v1.BlockR\x05block\"e\n" +
+	"\x15WithdrawBlocksRequest\x12\x17\n" +
+	"\asite_id\x18\x01 \x01(\tR\x06siteId\x12\x1b\n" +
+	"\ttarget_id\x18\x02 \x01(\tR\btargetId\x12\x16\n" +
+	"\x06reason\x18\x03 \x01(\tR\x06reason\"E\n" +
+	"\x16WithdrawBlocksResponse\x12+\n" +
+	"\x06blocks\x18\x01 \x03(\v2\x13.nightloom.v1.BlockR\x06blocks\"M\n" +
 	"\x15ReportProgressRequest\x124\n" +
 	"\x06report\x18\x01 \x01(\v2\x1c.nightloom.v1.ProgressReportR\x06report\"\x88\x01\n" +
 	"\x16ReportProgressResponse\x12)\n" +
@@ -1194,14 +1419,16 @@ const file_nightloom_v1_queue_proto_rawDesc = "" +
 	"\x15PROGRESS_OUTCOME_DONE\x10\x01\x12 \n" +
 	"\x1cPROGRESS_OUTCOME_INTERRUPTED\x10\x02\x12\x1b\n" +
 	"\x17PROGRESS_OUTCOME_FAILED\x10\x03\x12\x1c\n" +
-	"\x18PROGRESS_OUTCOME_SKIPPED\x10\x042\xb5\x03\n" +
+	"\x18PROGRESS_OUTCOME_SKIPPED\x10\x042\xe6\x04\n" +
 	"\fQueueService\x12R\n" +
 	"\vQueueBlocks\x12 .nightloom.v1.QueueBlocksRequest\x1a!.nightloom.v1.QueueBlocksResponse\x12I\n" +
 	"\bGetBlock\x12\x1d.nightloom.v1.GetBlockRequest\x1a\x1e.nightloom.v1.GetBlockResponse\x12O\n" +
 	"\n" +
 	"ListBlocks\x12\x1f.nightloom.v1.ListBlocksRequest\x1a .nightloom.v1.ListBlocksResponse\x12X\n" +
 	"\rWithdrawBlock\x12\".nightloom.v1.WithdrawBlockRequest\x1a#.nightloom.v1.WithdrawBlockResponse\x12[\n" +
-	"\x0eReportProgress\x12#.nightloom.v1.ReportProgressRequest\x1a$.nightloom.v1.ReportProgressResponseB?Z=github.com/nightloom/nightloom/proto/nightloom/v1;nightloomv1b\x06proto3"
+	"\x0eReportProgress\x12#.nightloom.v1.ReportProgressRequest\x1a$.nightloom.v1.ReportProgressResponse\x12R\n" +
+	"\vUpdateBlock\x12 .nightloom.v1.UpdateBlockRequest\x1a!.nightloom.v1.UpdateBlockResponse\x12[\n" +
+	"\x0eWithdrawBlocks\x12#.nightloom.v1.WithdrawBlocksRequest\x1a$.nightloom.v1.WithdrawBlocksResponseB?Z=github.com/nightloom/nightloom/proto/nightloom/v1;nightloomv1b\x06proto3"
 
 var (
 	file_nightloom_v1_queue_proto_rawDescOnce sync.Once
@@ -1216,7 +1443,7 @@ func file_nightloom_v1_queue_proto_rawDescGZIP() []byte {
 }
 
 var file_nightloom_v1_queue_proto_enumTypes = make([]protoimpl.EnumInfo, 2)
-var file_nightloom_v1_queue_proto_msgTypes = make([]protoimpl.MessageInfo, 13)
+var file_nightloom_v1_queue_proto_msgTypes = make([]protoimpl.MessageInfo, 17)
 var file_nightloom_v1_queue_proto_goTypes = []any{
 	(BlockState)(0),                // 0: nightloom.v1.BlockState
 	(ProgressOutcome)(0),           // 1: nightloom.v1.ProgressOutcome
@@ -1231,51 +1458,64 @@ var file_nightloom_v1_queue_proto_goTypes = []any{
 	(*ListBlocksResponse)(nil),     // 10: nightloom.v1.ListBlocksResponse
 	(*WithdrawBlockRequest)(nil),   // 11: nightloom.v1.WithdrawBlockRequest
 	(*WithdrawBlockResponse)(nil),  // 12: nightloom.v1.WithdrawBlockResponse
-	(*ReportProgressRequest)(nil),  // 13: nightloom.v1.ReportProgressRequest
-	(*ReportProgressResponse)(nil), // 14: nightloom.v1.ReportProgressResponse
-	(*durationpb.Duration)(nil),    // 15: google.protobuf.Duration
-	(*ConstraintSet)(nil),          // 16: nightloom.v1.ConstraintSet
-	(*LocalDate)(nil),              // 17: nightloom.v1.LocalDate
-	(*timestamppb.Timestamp)(nil),  // 18: google.protobuf.Timestamp
-	(*TimeInterval)(nil),           // 19: nightloom.v1.TimeInterval
+	(*UpdateBlockRequest)(nil),     // 13: nightloom.v1.UpdateBlockRequest
+	(*UpdateBlockResponse)(nil),    // 14: nightloom.v1.UpdateBlockResponse
+	(*WithdrawBlocksRequest)(nil),  // 15: nightloom.v1.WithdrawBlocksRequest
+	(*WithdrawBlocksResponse)(nil), // 16: nightloom.v1.WithdrawBlocksResponse
+	(*ReportProgressRequest)(nil),  // 17: nightloom.v1.ReportProgressRequest
+	(*ReportProgressResponse)(nil), // 18: nightloom.v1.ReportProgressResponse
+	(*durationpb.Duration)(nil),    // 19: google.protobuf.Duration
+	(*ConstraintSet)(nil),          // 20: nightloom.v1.ConstraintSet
+	(*LocalDate)(nil),              // 21: nightloom.v1.LocalDate
+	(*timestamppb.Timestamp)(nil),  // 22: google.protobuf.Timestamp
+	(*TimeInterval)(nil),           // 23: nightloom.v1.TimeInterval
+	(*fieldmaskpb.FieldMask)(nil),  // 24: google.protobuf.FieldMask
 }
 var file_nightloom_v1_queue_proto_depIdxs = []int32{
-	15, // 0: nightloom.v1.Cadence.interval:type_name -> google.protobuf.Duration
-	15, // 1: nightloom.v1.Cadence.tolerance:type_name -> google.protobuf.Duration
-	15, // 2: nightloom.v1.Block.exposure:type_name -> google.protobuf.Duration
-	16, // 3: nightloom.v1.Block.constraints:type_name -> nightloom.v1.ConstraintSet
-	17, // 4: nightloom.v1.Block.earliest_date:type_name -> nightloom.v1.LocalDate
-	17, // 5: nightloom.v1.Block.latest_date:type_name -> nightloom.v1.LocalDate
+	19, // 0: nightloom.v1.Cadence.interval:type_name -> google.protobuf.Duration
+	19, // 1: nightloom.v1.Cadence.tolerance:type_name -> google.protobuf.Duration
+	19, // 2: nightloom.v1.Block.exposure:type_name -> google.protobuf.Duration
+	20, // 3: nightloom.v1.Block.constraints:type_name -> nightloom.v1.ConstraintSet
+	21, // 4: nightloom.v1.Block.earliest_date:type_name -> nightloom.v1.LocalDate
+	21, // 5: nightloom.v1.Block.latest_date:type_name -> nightloom.v1.LocalDate
 	2,  // 6: nightloom.v1.Block.cadence:type_name -> nightloom.v1.Cadence
 	0,  // 7: nightloom.v1.Block.state:type_name -> nightloom.v1.BlockState
-	18, // 8: nightloom.v1.Block.create_time:type_name -> google.protobuf.Timestamp
-	18, // 9: nightloom.v1.Block.update_time:type_name -> google.protobuf.Timestamp
-	19, // 10: nightloom.v1.ProgressReport.interval:type_name -> nightloom.v1.TimeInterval
+	22, // 8: nightloom.v1.Block.create_time:type_name -> google.protobuf.Timestamp
+	22, // 9: nightloom.v1.Block.update_time:type_name -> google.protobuf.Timestamp
+	23, // 10: nightloom.v1.ProgressReport.interval:type_name -> nightloom.v1.TimeInterval
 	1,  // 11: nightloom.v1.ProgressReport.outcome:type_name -> nightloom.v1.ProgressOutcome
-	18, // 12: nightloom.v1.ProgressReport.receive_time:type_name -> google.protobuf.Timestamp
+	22, // 12: nightloom.v1.ProgressReport.receive_time:type_name -> google.protobuf.Timestamp
 	3,  // 13: nightloom.v1.QueueBlocksRequest.blocks:type_name -> nightloom.v1.Block
 	3,  // 14: nightloom.v1.QueueBlocksResponse.blocks:type_name -> nightloom.v1.Block
 	3,  // 15: nightloom.v1.GetBlockResponse.block:type_name -> nightloom.v1.Block
 	0,  // 16: nightloom.v1.ListBlocksRequest.states:type_name -> nightloom.v1.BlockState
 	3,  // 17: nightloom.v1.ListBlocksResponse.blocks:type_name -> nightloom.v1.Block
 	3,  // 18: nightloom.v1.WithdrawBlockResponse.block:type_name -> nightloom.v1.Block
-	4,  // 19: nightloom.v1.ReportProgressRequest.report:type_name -> nightloom.v1.ProgressReport
-	3,  // 20: nightloom.v1.ReportProgressResponse.block:type_name -> nightloom.v1.Block
-	5,  // 21: nightloom.v1.QueueService.QueueBlocks:input_type -> nightloom.v1.QueueBlocksRequest
-	7,  // 22: nightloom.v1.QueueService.GetBlock:input_type -> nightloom.v1.GetBlockRequest
-	9,  // 23: nightloom.v1.QueueService.ListBlocks:input_type -> nightloom.v1.ListBlocksRequest
-	11, // 24: nightloom.v1.QueueService.WithdrawBlock:input_type -> nightloom.v1.WithdrawBlockRequest
-	13, // 25: nightloom.v1.QueueService.ReportProgress:input_type -> nightloom.v1.ReportProgressRequest
-	6,  // 26: nightloom.v1.QueueService.QueueBlocks:output_type -> nightloom.v1.QueueBlocksResponse
-	8,  // 27: nightloom.v1.QueueService.GetBlock:output_type -> nightloom.v1.GetBlockResponse
-	10, // 28: nightloom.v1.QueueService.ListBlocks:output_type -> nightloom.v1.ListBlocksResponse
-	12, // 29: nightloom.v1.QueueService.WithdrawBlock:output_type -> nightloom.v1.WithdrawBlockResponse
-	14, // 30: nightloom.v1.QueueService.ReportProgress:output_type -> nightloom.v1.ReportProgressResponse
-	26, // [26:31] is the sub-list for method output_type
-	21, // [21:26] is the sub-list for method input_type
-	21, // [21:21] is the sub-list for extension type_name
-	21, // [21:21] is the sub-list for extension extendee
-	0,  // [0:21] is the sub-list for field type_name
+	3,  // 19: nightloom.v1.UpdateBlockRequest.block:type_name -> nightloom.v1.Block
+	24, // 20: nightloom.v1.UpdateBlockRequest.update_mask:type_name -> google.protobuf.FieldMask
+	3,  // 21: nightloom.v1.UpdateBlockResponse.block:type_name -> nightloom.v1.Block
+	3,  // 22: nightloom.v1.WithdrawBlocksResponse.blocks:type_name -> nightloom.v1.Block
+	4,  // 23: nightloom.v1.ReportProgressRequest.report:type_name -> nightloom.v1.ProgressReport
+	3,  // 24: nightloom.v1.ReportProgressResponse.block:type_name -> nightloom.v1.Block
+	5,  // 25: nightloom.v1.QueueService.QueueBlocks:input_type -> nightloom.v1.QueueBlocksRequest
+	7,  // 26: nightloom.v1.QueueService.GetBlock:input_type -> nightloom.v1.GetBlockRequest
+	9,  // 27: nightloom.v1.QueueService.ListBlocks:input_type -> nightloom.v1.ListBlocksRequest
+	11, // 28: nightloom.v1.QueueService.WithdrawBlock:input_type -> nightloom.v1.WithdrawBlockRequest
+	17, // 29: nightloom.v1.QueueService.ReportProgress:input_type -> nightloom.v1.ReportProgressRequest
+	13, // 30: nightloom.v1.QueueService.UpdateBlock:input_type -> nightloom.v1.UpdateBlockRequest
+	15, // 31: nightloom.v1.QueueService.WithdrawBlocks:input_type -> nightloom.v1.WithdrawBlocksRequest
+	6,  // 32: nightloom.v1.QueueService.QueueBlocks:output_type -> nightloom.v1.QueueBlocksResponse
+	8,  // 33: nightloom.v1.QueueService.GetBlock:output_type -> nightloom.v1.GetBlockResponse
+	10, // 34: nightloom.v1.QueueService.ListBlocks:output_type -> nightloom.v1.ListBlocksResponse
+	12, // 35: nightloom.v1.QueueService.WithdrawBlock:output_type -> nightloom.v1.WithdrawBlockResponse
+	18, // 36: nightloom.v1.QueueService.ReportProgress:output_type -> nightloom.v1.ReportProgressResponse
+	14, // 37: nightloom.v1.QueueService.UpdateBlock:output_type -> nightloom.v1.UpdateBlockResponse
+	16, // 38: nightloom.v1.QueueService.WithdrawBlocks:output_type -> nightloom.v1.WithdrawBlocksResponse
+	32, // [32:39] is the sub-list for method output_type
+	25, // [25:32] is the sub-list for method input_type
+	25, // [25:25] is the sub-list for extension type_name
+	25, // [25:25] is the sub-list for extension extendee
+	0,  // [0:25] is the sub-list for field type_name
 }
 
 func init() { file_nightloom_v1_queue_proto_init() }
@@ -1290,7 +1530,7 @@ func file_nightloom_v1_queue_proto_init() {
 			GoPackagePath: reflect.TypeOf(x{}).PkgPath(),
 			RawDescriptor: unsafe.Slice(unsafe.StringData(file_nightloom_v1_queue_proto_rawDesc), len(file_nightloom_v1_queue_proto_rawDesc)),
 			NumEnums:      2,
-			NumMessages:   13,
+			NumMessages:   17,
 			NumExtensions: 0,
 			NumServices:   1,
 		},

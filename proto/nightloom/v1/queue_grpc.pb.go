@@ -27,6 +27,8 @@ const (
 	QueueService_ListBlocks_FullMethodName     = "/nightloom.v1.QueueService/ListBlocks"
 	QueueService_WithdrawBlock_FullMethodName  = "/nightloom.v1.QueueService/WithdrawBlock"
 	QueueService_ReportProgress_FullMethodName = "/nightloom.v1.QueueService/ReportProgress"
+	QueueService_UpdateBlock_FullMethodName    = "/nightloom.v1.QueueService/UpdateBlock"
+	QueueService_WithdrawBlocks_FullMethodName = "/nightloom.v1.QueueService/WithdrawBlocks"
 )
 
 // QueueServiceClient is the client API for QueueService service.
@@ -78,6 +80,26 @@ type QueueServiceClient interface {
 	// Errors: INVALID_ARGUMENT; NOT_FOUND for an unknown block; ALREADY_EXISTS
 	// when report_id was used before with different content.
 	ReportProgress(ctx context.Context, in *ReportProgressRequest, opts ...grpc.CallOption) (*ReportProgressResponse, error)
+	// UpdateBlock changes an open block's request: the fields named by
+	// update_mask, from these paths only: label, exposure, frames_wanted,
+	// min_run_frames, max_run_frames, priority, constraints, earliest_date,
+	// latest_date, cadence, dither_every_frames. A message path (constraints,
+	// cadence) replaces the whole message; a field unset in the request is
+	// cleared. The block is then checked as QueueBlocks checks a new one, and
+	// frames_wanted may not drop below frames_done. Every accepted update is
+	// recorded in the store's audit trail (who: the token's id; when; which
+	// paths). Progress, state, site, target and filter cannot change here
+	// (withdraw and queue anew).
+	// Errors: INVALID_ARGUMENT (field violations name "block.<field>" or
+	// "update_mask.paths[i]"); NOT_FOUND; FAILED_PRECONDITION for a block
+	// that is not open; ABORTED when it kept changing during the update.
+	UpdateBlock(ctx context.Context, in *UpdateBlockRequest, opts ...grpc.CallOption) (*UpdateBlockResponse, error)
+	// WithdrawBlocks withdraws every open block of one site that matches the
+	// filter, in one call (as WithdrawBlock does one by one). At least
+	// site_id is required; target_id narrows it further. Blocks that are not
+	// open are left as they are.
+	// Errors: INVALID_ARGUMENT; NOT_FOUND for an unknown site.
+	WithdrawBlocks(ctx context.Context, in *WithdrawBlocksRequest, opts ...grpc.CallOption) (*WithdrawBlocksResponse, error)
 }
 
 type queueServiceClient struct {
@@ -138,6 +160,26 @@ func (c *queueServiceClient) ReportProgress(ctx context.Context, in *ReportProgr
 	return out, nil
 }
 
+func (c *queueServiceClient) UpdateBlock(ctx context.Context, in *UpdateBlockRequest, opts ...grpc.CallOption) (*UpdateBlockResponse, error) {
+	cOpts := append([]grpc.CallOption{grpc.StaticMethod()}, opts...)
+	out := new(UpdateBlockResponse)
+	err := c.cc.Invoke(ctx, QueueService_UpdateBlock_FullMethodName, in, out, cOpts...)
+	if err != nil {
+		return nil, err
+	}
+	return out, nil
+}
+
+func (c *queueServiceClient) WithdrawBlocks(ctx context.Context, in *WithdrawBlocksRequest, opts ...grpc.CallOption) (*WithdrawBlocksResponse, error) {
+	cOpts := append([]grpc.CallOption{grpc.StaticMethod()}, opts...)
+	out := new(WithdrawBlocksResponse)
+	err := c.cc.Invoke(ctx, QueueService_WithdrawBlocks_FullMethodName, in, out, cOpts...)
+	if err != nil {
+		return nil, err
+	}
+	return out, nil
+}
+
 // QueueServiceServer is the server API for QueueService service.
 // All implementations must embed UnimplementedQueueServiceServer
 // for forward compatibility.
@@ -187,6 +229,26 @@ type QueueServiceServer interface {
 	// Errors: INVALID_ARGUMENT; NOT_FOUND for an unknown block; ALREADY_EXISTS
 	// when report_id was used before with different content.
 	ReportProgress(context.Context, *ReportProgressRequest) (*ReportProgressResponse, error)
+	// UpdateBlock changes an open block's request: the fields named by
+	// update_mask, from these paths only: label, exposure, frames_wanted,
+	// min_run_frames, max_run_frames, priority, constraints, earliest_date,
+	// latest_date, cadence, dither_every_frames. A message path (constraints,
+	// cadence) replaces the whole message; a field unset in the request is
+	// cleared. The block is then checked as QueueBlocks checks a new one, and
+	// frames_wanted may not drop below frames_done. Every accepted update is
+	// recorded in the store's audit trail (who: the token's id; when; which
+	// paths). Progress, state, site, target and filter cannot change here
+	// (withdraw and queue anew).
+	// Errors: INVALID_ARGUMENT (field violations name "block.<field>" or
+	// "update_mask.paths[i]"); NOT_FOUND; FAILED_PRECONDITION for a block
+	// that is not open; ABORTED when it kept changing during the update.
+	UpdateBlock(context.Context, *UpdateBlockRequest) (*UpdateBlockResponse, error)
+	// WithdrawBlocks withdraws every open block of one site that matches the
+	// filter, in one call (as WithdrawBlock does one by one). At least
+	// site_id is required; target_id narrows it further. Blocks that are not
+	// open are left as they are.
+	// Errors: INVALID_ARGUMENT; NOT_FOUND for an unknown site.
+	WithdrawBlocks(context.Context, *WithdrawBlocksRequest) (*WithdrawBlocksResponse, error)
 	mustEmbedUnimplementedQueueServiceServer()
 }
 
@@ -211,6 +273,12 @@ func (UnimplementedQueueServiceServer) WithdrawBlock(context.Context, *WithdrawB
 }
 func (UnimplementedQueueServiceServer) ReportProgress(context.Context, *ReportProgressRequest) (*ReportProgressResponse, error) {
 	return nil, status.Error(codes.Unimplemented, "method ReportProgress not implemented")
+}
+func (UnimplementedQueueServiceServer) UpdateBlock(context.Context, *UpdateBlockRequest) (*UpdateBlockResponse, error) {
+	return nil, status.Error(codes.Unimplemented, "method UpdateBlock not implemented")
+}
+func (UnimplementedQueueServiceServer) WithdrawBlocks(context.Context, *WithdrawBlocksRequest) (*WithdrawBlocksResponse, error) {
+	return nil, status.Error(codes.Unimplemented, "method WithdrawBlocks not implemented")
 }
 func (UnimplementedQueueServiceServer) mustEmbedUnimplementedQueueServiceServer() {}
 func (UnimplementedQueueServiceServer) testEmbeddedByValue()                      {}
@@ -323,6 +391,42 @@ func _QueueService_ReportProgress_Handler(srv interface{}, ctx context.Context, 
 	return interceptor(ctx, in, info, handler)
 }
 
+func _QueueService_UpdateBlock_Handler(srv interface{}, ctx context.Context, dec func(interface{}) error, interceptor grpc.UnaryServerInterceptor) (interface{}, error) {
+	in := new(UpdateBlockRequest)
+	if err := dec(in); err != nil {
+		return nil, err
+	}
+	if interceptor == nil {
+		return srv.(QueueServiceServer).UpdateBlock(ctx, in)
+	}
+	info := &grpc.UnaryServerInfo{
+		Server:     srv,
+		FullMethod: QueueService_UpdateBlock_FullMethodName,
+	}
+	handler := func(ctx context.Context, req interface{}) (interface{}, error) {
+		return srv.(QueueServiceServer).UpdateBlock(ctx, req.(*UpdateBlockRequest))
+	}
+	return interceptor(ctx, in, info, handler)
+}
+
+func _QueueService_WithdrawBlocks_Handler(srv interface{}, ctx context.Context, dec func(interface{}) error, interceptor grpc.UnaryServerInterceptor) (interface{}, error) {
+	in := new(WithdrawBlocksRequest)
+	if err := dec(in); err != nil {
+		return nil, err
+	}
+	if interceptor == nil {
+		return srv.(QueueServiceServer).WithdrawBlocks(ctx, in)
+	}
+	info := &grpc.UnaryServerInfo{
+		Server:     srv,
+		FullMethod: QueueService_WithdrawBlocks_FullMethodName,
+	}
+	handler := func(ctx context.Context, req interface{}) (interface{}, error) {
+		return srv.(QueueServiceServer).WithdrawBlocks(ctx, req.(*WithdrawBlocksRequest))
+	}
+	return interceptor(ctx, in, info, handler)
+}
+
 // QueueService_ServiceDesc is the grpc.ServiceDesc for QueueService service.
 // It's only intended for direct use with grpc.RegisterService,
 // and not to be introspected or modified (even as a copy)
@@ -349,6 +453,14 @@ var QueueService_ServiceDesc = grpc.ServiceDesc{
 		{
 			MethodName: "ReportProgress",
 			Handler:    _QueueService_ReportProgress_Handler,
+		},
+		{
+			MethodName: "UpdateBlock",
+			Handler:    _QueueService_UpdateBlock_Handler,
+		},
+		{
+			MethodName: "WithdrawBlocks",
+			Handler:    _QueueService_WithdrawBlocks_Handler,
 		},
 	},
 	Streams:  []grpc.StreamDesc{},

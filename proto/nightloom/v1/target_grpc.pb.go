@@ -36,11 +36,13 @@ const (
 // For semantics around ctx use and closing/ending streaming RPCs, please refer to https://pkg.go.dev/google.golang.org/grpc/?tab=doc#ClientConn.NewStream.
 //
 // TargetService keeps the targets. Targets are shared by all sites; blocks
-// refer to them by id.
+// refer to them by id. Names are unique over the service (exact match), so
+// that a blocks file's "@NAME" names one target.
 type TargetServiceClient interface {
 	// CreateTarget stores a new target and returns it with its id.
 	// Errors: INVALID_ARGUMENT for a bad field (e.g. an eccentricity below 0
-	// or a non-finite element).
+	// or a non-finite element); ALREADY_EXISTS when another target has the
+	// name (a google.rpc.ResourceInfo names it).
 	CreateTarget(ctx context.Context, in *CreateTargetRequest, opts ...grpc.CallOption) (*CreateTargetResponse, error)
 	// GetTarget returns one target by id.
 	// Errors: NOT_FOUND for an unknown id.
@@ -49,7 +51,8 @@ type TargetServiceClient interface {
 	ListTargets(ctx context.Context, in *ListTargetsRequest, opts ...grpc.CallOption) (*ListTargetsResponse, error)
 	// UpdateTarget replaces the fields of a target named in update_mask. Plans
 	// already made are not changed.
-	// Errors: NOT_FOUND, INVALID_ARGUMENT.
+	// Errors: NOT_FOUND, INVALID_ARGUMENT; ALREADY_EXISTS when another target
+	// has the new name.
 	UpdateTarget(ctx context.Context, in *UpdateTargetRequest, opts ...grpc.CallOption) (*UpdateTargetResponse, error)
 	// DeleteTarget removes a target.
 	// Errors: NOT_FOUND; FAILED_PRECONDITION while any block refers to it.
@@ -137,11 +140,13 @@ func (c *targetServiceClient) ImportElements(ctx context.Context, in *ImportElem
 // for forward compatibility.
 //
 // TargetService keeps the targets. Targets are shared by all sites; blocks
-// refer to them by id.
+// refer to them by id. Names are unique over the service (exact match), so
+// that a blocks file's "@NAME" names one target.
 type TargetServiceServer interface {
 	// CreateTarget stores a new target and returns it with its id.
 	// Errors: INVALID_ARGUMENT for a bad field (e.g. an eccentricity below 0
-	// or a non-finite element).
+	// or a non-finite element); ALREADY_EXISTS when another target has the
+	// name (a google.rpc.ResourceInfo names it).
 	CreateTarget(context.Context, *CreateTargetRequest) (*CreateTargetResponse, error)
 	// GetTarget returns one target by id.
 	// Errors: NOT_FOUND for an unknown id.
@@ -150,7 +155,8 @@ type TargetServiceServer interface {
 	ListTargets(context.Context, *ListTargetsRequest) (*ListTargetsResponse, error)
 	// UpdateTarget replaces the fields of a target named in update_mask. Plans
 	// already made are not changed.
-	// Errors: NOT_FOUND, INVALID_ARGUMENT.
+	// Errors: NOT_FOUND, INVALID_ARGUMENT; ALREADY_EXISTS when another target
+	// has the new name.
 	UpdateTarget(context.Context, *UpdateTargetRequest) (*UpdateTargetResponse, error)
 	// DeleteTarget removes a target.
 	// Errors: NOT_FOUND; FAILED_PRECONDITION while any block refers to it.
