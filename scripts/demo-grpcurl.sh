@@ -76,6 +76,17 @@ for f in testdata/demo/targets/*.json; do
 	r=$(fix='.' call TargetService/CreateTarget "$f")
 	names=$(jq -c --argjson m "$names" '$m + {(.target.name): .target.id}' <<<"$r")
 done
+# The demo's real objects by catalogue name, and its comet from one-line
+# orbital elements (ImportElements).
+while read -r name; do
+	case "$name" in "" | "#"*) continue ;; esac
+	jq -n --arg n "$name" '{target: {name: $n, fixed: {catalogueId: $n}}}' >"$tmp/byname.json"
+	r=$(fix='.' call TargetService/CreateTarget "$tmp/byname.json")
+	names=$(jq -c --argjson m "$names" '$m + {(.target.name): .target.id}' <<<"$r")
+done <testdata/demo/targets-by-name.txt
+jq -n --rawfile t testdata/demo/comet-elements.txt '{requestId: "grpcurl-demo-comet", text: $t}' >"$tmp/elements.json"
+r=$(fix='.' call TargetService/ImportElements "$tmp/elements.json")
+names=$(jq -c --argjson m "$names" '$m + ([.targets[] | {(.name): .id}] | add)' <<<"$r")
 body=$(jq -c --argjson m "$names" --arg s "$site" \
 	'.blocks |= map(.siteId = $s | if (.targetId | startswith("@")) then .targetId = $m[.targetId[1:]] else . end)' testdata/demo/blocks.json)
 echo "$body" >"$tmp/blocks.json"
