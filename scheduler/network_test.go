@@ -1,0 +1,231 @@
+package scheduler
+
+import (
+	"fmt"
+	"math"
+	"testing"
+	"time"
+
+	"github.com/nightloom/nightloom/constraints"
+	"github.com/nightloom/nightloom/ephem"
+)
+
+// netNight is the civil date of the test nights (invented scenario).
+var netNight = time.Date(2027, 2, 10, 0, 0, 0, 0, time.UTC)
+
+// testNetSite makes an invented network site at lat, lon (the overheads
+// of DefaultOverheads, a german mount) with its night grid of 2027-02-10
+// (nautical darkness, 1 min steps, no sky-brightness model).
+func testNetSite(t testing.TB, name string, latDeg, lonDeg float64, filters []string, apertureMM float64) NetworkSite {
+	t.Helper()
+	is := genSites[0]
+	is.Name, is.LatDeg, is.LonDeg, is.Zone, is.Horizon = name+" (invented)", latDeg, lonDeg, "", nil
+	o := DefaultOverheads()
+	is.Axis1RateDegS, is.Axis2RateDegS = o.Axis1RateDegS, o.Axis2RateDegS
+	in := &Instance{Site: is}
+	site, err := in.SiteOf()
+	if err != nil {
+		t.Fatal(err)
+	}
+	site.Overheads = o
+	g, err := NightGrid(site.Site, netNight.Year(), netNight.Month(), netNight.Day(), constraints.DarkNautical, time.Minute,
+		constraints.Options{NoSkyBrightness: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return NetworkSite{Name: name, Site: site, Grid: g, Capability: Capability{Filters: filters, ApertureMM: apertureMM}}
+}
+
+// midnightLST is the local apparent sidereal time (deg) at the middle of
+// the site's grid: a target at this right ascension transits mid-night.
+func midnightLST(s *NetworkSite) float64 {
+	mid := s.Grid.Start.Add(s.Grid.End().Sub(s.Grid.Start) / 2)
+	snap := ephem.Prepare(ephem.NewInstant(mid))
+	return snap.Local(&s.Site.Observer).LAST * ephem.Rad2Deg
+}
+
+// testNetBlock is a fixed-target block of frames x 300 s through filter.
+func testNetBlock(t testing.TB, id string, raDeg, decDeg float64, filter string, frames int) NetworkBlock {
+	t.Helper()
+	st, err := ephem.NewStar(math.Mod(raDeg+360, 360), decDeg, 0, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return NetworkBlock{Block: Block{ID: id, Target: &constraints.Target{Name: id, Star: &st}, Filter: filter,
+		Exposure: 300 * time.Second, FramesWanted: frames, MinRun: 2, MaxRun: frames, Priority: 5,
+		Set: &constraints.Set{MaxAirmass: 3, MinAltDeg: 20, Darkness: constraints.DarkNautical}}}
+}
+
+// netOptions are deterministic search options for tests (iterations, not
+// time, end every search).
+func netOptions() Options { return Options{Seed: 3, Iterations: 300, Budget: -1} }
+
+// framesAt sums the planned frames of network block g at each site.
+func framesAt(pl *NetworkPlan, g int) map[string]int {
+	out := map[string]int{}
+	for _, sp := range pl.Sites {
+		for _, a := range sp.Plan.Assignments {
+			if !a.Executed && sp.Blocks[a.Block] == g {
+				out[sp.Name] += a.Frames
+			}
+		}
+	}
+	return out
+}
+
+// checkNetworkPlan checks what every network plan must hold: each site's
+// plan validates against its own problem, no block gets more frames than
+// it has left over all sites, Frames adds up, and the objective is what
+// the site plans add up to.
+func checkNetworkPlan(t *testing.T, in *NetworkInput, pl *NetworkPlan) {
+	t.Helper()
+	for _, sp := range pl.Sites {
+		if err := Validate(sp.Plan, sp.Problem); err != nil {
+			t.Errorf("site %s: %v", sp.Name, err)
+		}
+	}
+	for g := range in.Blocks {
+		sum := 0
+		for _, n := range framesAt(pl, g) {
+			sum += n
+		}
+		b := &in.Blocks[g]
+		left := b.FramesWanted - b.FramesDone
+		for _, s := range in.Sites {
+			for _, a := range s.Executed {
+				if a.ID == b.ID {
+					left -= a.Frames
+				}
+			}
+		}
+		if sum > max(0, left) {
+			t.Errorf("block %s: %d frames planned over the network, %d left", b.ID, sum, left)
+		}
+		if sum != pl.Frames[g] {
+			t.Errorf("block %s: Frames %d, assignments %d", b.ID, pl.Frames[g], sum)
+		}
+	}
+	// Recomputed from the site plans, to the rounding of the sums.
+	const valueTol = 1e-6 // relative
+	if got := networkValue(in, pl); math.Abs(got-pl.Objective) > valueTol*math.Max(1, pl.Objective) {
+		t.Errorf("objective %v, site plans add up to %v", pl.Objective, got)
+	}
+	if pl.Objective < pl.Separate*(1-1e-9) {
+		t.Errorf("joint objective %v below the separate plan's %v", pl.Objective, pl.Separate)
+	}
+}
+
+// A block both sites see goes where its quality (here: airmass) is higher:
+// a target at declination +50 transits at altitude 78 deg from 38 N and
+// 45 deg from 5 N (90 - |lat - dec|, spherical astronomy), one at -30
+// the other way round (altitude 22 deg against 55 deg).
+func TestNetworkBetterQualitySite(t *testing.T) {
+	north := testNetSite(t, "north", 38, -106.95, nil, 0)
+	south := testNetSite(t, "south", 5, -106.95, nil, 0)
+	ra := midnightLST(&north)
+	for _, c := range []struct {
+		dec  float64
+		want string
+	}{{50, "north"}, {-30, "south"}} {
+		in := NetworkInput{Sites: []NetworkSite{north, south}, Options: netOptions(),
+			Blocks: []NetworkBlock{testNetBlock(t, fmt.Sprintf("dec%+.0f", c.dec), ra, c.dec, "R", 6)}}
+		pl, err := SolveNetwork(in)
+		if err != nil {
+			t.Fatal(err)
+		}
+		checkNetworkPlan(t, &in, pl)
+		got := framesAt(pl, 0)
+		if got[c.want] != 6 || len(got) != 1 {
+			t.Errorf("dec %+.0f: frames per site %v, want all 6 at %s", c.dec, got, c.want)
+		}
+	}
+}
+
+// A block only one site can do (filter, aperture, allowed sites) never
+// lands on the other, even when the other sees it better or the first is
+// closed; then each site says why not.
+func TestNetworkCapability(t *testing.T) {
+	north := testNetSite(t, "north", 38, -106.95, []string{"L", "R", "G", "B", "Ha"}, 400)
+	south := testNetSite(t, "south", 5, -106.95, []string{"L", "R", "G", "B"}, 200)
+	ra := midnightLST(&north)
+	// The blocks are seen better from the south (declination -30).
+	ha := testNetBlock(t, "ha", ra, -30, "Ha", 6)
+	big := testNetBlock(t, "big", ra+10, -30, "R", 6)
+	big.Needs.MinApertureMM = 300
+	named := testNetBlock(t, "named", ra-10, -30, "R", 6)
+	named.Sites = []string{"north"}
+	closed := north
+	closed.Closures = []Closure{{Start: north.Grid.Start, End: north.Grid.End(), Note: "clouds"}}
+	for _, c := range []struct {
+		name     string
+		north    NetworkSite
+		unplaced bool
+	}{{"open", north, false}, {"north closed", closed, true}} {
+		in := NetworkInput{Sites: []NetworkSite{c.north, south}, Options: netOptions(), Blocks: []NetworkBlock{ha, big, named}}
+		pl, err := SolveNetwork(in)
+		if err != nil {
+			t.Fatal(err)
+		}
+		checkNetworkPlan(t, &in, pl)
+		for g := range in.Blocks {
+			got := framesAt(pl, g)
+			if got["south"] != 0 {
+				t.Errorf("%s: block %s has %d frames at the south site, which cannot take it", c.name, in.Blocks[g].ID, got["south"])
+			}
+			if !c.unplaced && got["north"] == 0 {
+				t.Errorf("%s: block %s not planned at the north site", c.name, in.Blocks[g].ID)
+			}
+		}
+		if !c.unplaced {
+			continue
+		}
+		want := map[string]SiteWhy{"ha": LacksFilter, "big": ApertureTooSmall, "named": NotAllowed}
+		if len(pl.Unplaced) != 3 {
+			t.Fatalf("%s: unplaced %+v, want all three blocks", c.name, pl.Unplaced)
+		}
+		for _, u := range pl.Unplaced {
+			for _, r := range u.Sites {
+				switch {
+				case r.Site == "south" && r.Why != want[u.ID]:
+					t.Errorf("block %s at south: %v, want %v", u.ID, r.Why, want[u.ID])
+				case r.Site == "north" && r.Why != SiteNeverObservable:
+					// The closure or the altitude, whichever rules out more steps.
+					t.Errorf("block %s at north: %v (%v), want never observable", u.ID, r.Why, r.Constraint)
+				}
+			}
+			if len(u.Sites) != 2 {
+				t.Errorf("block %s: reasons %+v, want one per site", u.ID, u.Sites)
+			}
+		}
+	}
+}
+
+// Weather: the block goes to the better site; with that site closed for
+// the night, a re-solve moves it to the other.
+func TestNetworkClosureMovesBlock(t *testing.T) {
+	north := testNetSite(t, "north", 38, -106.95, nil, 0)
+	south := testNetSite(t, "south", 5, -106.95, nil, 0)
+	ra := midnightLST(&north)
+	blocks := []NetworkBlock{testNetBlock(t, "b", ra, 50, "R", 6)}
+	in := NetworkInput{Sites: []NetworkSite{north, south}, Options: netOptions(), Blocks: blocks}
+	pl, err := SolveNetwork(in)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got := framesAt(pl, 0); got["north"] != 6 {
+		t.Fatalf("clear night: frames per site %v, want 6 at north", got)
+	}
+	closed := north
+	start := north.Grid.Start.Add(north.Grid.End().Sub(north.Grid.Start) / 3)
+	closed.Closures = []Closure{{Start: start, End: north.Grid.End(), Note: "roof closed, rain"}}
+	in.Sites[0] = closed
+	in.From = start
+	pl, err = SolveNetwork(in)
+	if err != nil {
+		t.Fatal(err)
+	}
+	checkNetworkPlan(t, &in, pl)
+	if got := framesAt(pl, 0); got["south"] != 6 || got["north"] != 0 {
+		t.Errorf("north closed: frames per site %v, want all 6 at south", got)
+	}
+}
