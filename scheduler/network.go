@@ -556,7 +556,7 @@ type siteSnap struct {
 	sc *sched
 }
 
-func (nw *network) snap(k int) siteSnap { return siteSnap{nw.sites[k].cur, nw.sites[k].sc} }
+func (nw *network) snap(k int) siteSnap       { return siteSnap{nw.sites[k].cur, nw.sites[k].sc} }
 func (nw *network) restore(k int, s siteSnap) { nw.set(k, s.q, s.sc) }
 
 // step is a coordinate step at site k; it reports whether the new plan
