@@ -672,6 +672,14 @@ func (nw *network) finish(out *NetworkPlan) {
 	}
 	why := make([][]SiteReason, nb)
 	for k, ns := range nw.sites {
+		// Each site's problem with the other sites' final frames: its plan
+		// keeps every run (the totals hold), and validates against it.
+		q := capped(ns.base, nw.capsFor(k))
+		sc := carry(q, ns.sc)
+		if len(sc.runs) != len(ns.sc.runs) {
+			panic("scheduler: network plan lost runs under its final caps")
+		}
+		ns.cur, ns.sc = q, sc
 		pl := ns.cur.toPlan(ns.sc, "network", 0)
 		pl.Objective.Value = pl.Objective.Weighted + pl.Objective.Cadence + pl.Objective.Bonus
 		out.Sites = append(out.Sites, SitePlan{Name: ns.in.Name, Problem: ns.cur, Plan: pl, Blocks: ns.glob})
@@ -705,16 +713,15 @@ func (nw *network) finish(out *NetworkPlan) {
 }
 
 // networkValue recomputes a network plan's objective from its site plans
-// (the weighted exposure and points of every run, the bonus of every block
-// the network completes): the check of tests and benchmarks.
+// and the input: the weighted exposure and points of every run, and the
+// bonus of every block whose frames over the sites reach what it has left
+// (frames wanted less done less executed anywhere). The check of tests and
+// benchmarks.
 func networkValue(in *NetworkInput, pl *NetworkPlan) float64 {
 	v := 0.0
 	frames := make([]int, len(in.Blocks))
-	bonus := make([]float64, len(in.Blocks))
-	rem := make([]int, len(in.Blocks))
-	for g := range in.Blocks {
-		rem[g] = -1
-	}
+	w := make([]float64, len(in.Blocks))
+	bonusFrac := 0.0
 	for _, sp := range pl.Sites {
 		v += sp.Plan.Objective.Weighted + sp.Plan.Objective.Cadence
 		for _, a := range sp.Plan.Assignments {
@@ -723,33 +730,23 @@ func networkValue(in *NetworkInput, pl *NetworkPlan) float64 {
 			}
 		}
 		for i, g := range sp.Blocks {
-			r := sp.Problem.bd[i].rem + networkTaken(pl, g, sp.Name)
-			rem[g] = r
-			if r > 0 {
-				bonus[g] = sp.Problem.Options.CompletionBonus * sp.Problem.bd[i].w * float64(r)
-			}
+			w[g] = sp.Problem.bd[i].w
 		}
+		bonusFrac = sp.Problem.Options.CompletionBonus
 	}
 	for g := range in.Blocks {
-		if rem[g] > 0 && frames[g] >= rem[g] {
-			v += bonus[g]
+		b := &in.Blocks[g]
+		left := b.FramesWanted - b.FramesDone
+		for _, s := range in.Sites {
+			for _, a := range s.Executed {
+				if a.ID == b.ID {
+					left -= a.Frames
+				}
+			}
+		}
+		if left > 0 && frames[g] >= left {
+			v += bonusFrac * w[g] * float64(left)
 		}
 	}
 	return v
-}
-
-// networkTaken is what the sites other than name plan of block g.
-func networkTaken(pl *NetworkPlan, g int, name string) int {
-	n := 0
-	for _, sp := range pl.Sites {
-		if sp.Name == name {
-			continue
-		}
-		for _, a := range sp.Plan.Assignments {
-			if !a.Executed && sp.Blocks[a.Block] == g {
-				n += a.Frames
-			}
-		}
-	}
-	return n
 }

@@ -229,3 +229,109 @@ func TestNetworkClosureMovesBlock(t *testing.T) {
 		t.Errorf("north closed: frames per site %v, want all 6 at south", got)
 	}
 }
+
+// netSites are the invented sites of generated networks: the three
+// latitudes of the instance generator (38 N, 28 S, 55 N; site k takes
+// generator site k % 3 for its horizon, mount and sky) at longitudes on
+// several continents.
+var netSites = []struct {
+	name   string
+	lonDeg float64
+	zone   string
+}{
+	{"Ravensgate Ridge", -106.95, "America/Denver"},
+	{"Cerro Piedra Tenue", -67.92, "America/Argentina/Catamarca"},
+	{"Skerrow Fell", -3.1, "Europe/London"},
+	{"Pelagos Heights", 22.4, "Europe/Athens"},
+	{"Karroo Flats", 21.1, "Africa/Johannesburg"},
+	{"Tomsk Steppe", 84.9, "Asia/Novosibirsk"},
+	{"Kumo Plateau", 138.2, "Asia/Tokyo"},
+	{"Mulga Downs", 149.1, "Australia/Brisbane"},
+	{"Caribou Lake", -122.6, "America/Vancouver"},
+	{"Zanskar Gate", 77.6, "Asia/Kolkata"},
+}
+
+// netFilterSets: not every wheel holds every filter (site k takes set k % 3).
+var netFilterSets = [][]string{
+	{"L", "R", "G", "B", "Ha", "OIII", "SII", "V"},
+	{"L", "R", "G", "B", "V"},
+	{"L", "R", "G", "B", "Ha", "OIII", "SII"},
+}
+
+// genNetwork makes a deterministic invented network of nSites sites, each
+// contributing perSite blocks from GenerateInstance (placed for its own
+// sky, so that most are visible from several sites), over nights nights
+// from 2027-02-10 with 2 min steps. Every seventh block needs a 300 mm
+// aperture (sites have 250 or 400 mm) and every eleventh names its own
+// site only.
+func genNetwork(tb testing.TB, seed uint64, nSites, perSite, nights int, load float64) NetworkInput {
+	tb.Helper()
+	var in NetworkInput
+	var all []Block
+	for k := 0; k < nSites; k++ {
+		ns := netSites[k%len(netSites)]
+		gi, err := GenerateInstance(GenSpec{Name: fmt.Sprintf("s%d", k), Seed: seed + uint64(k), Site: k % 3,
+			Night: "2027-02-10", Nights: nights, Blocks: perSite, StepS: 120, Load: load, Cadence: 0.05, NoSky: true})
+		if err != nil {
+			tb.Fatal(err)
+		}
+		gi.Site.Name, gi.Site.LonDeg, gi.Site.Zone = ns.name+" (invented)", ns.lonDeg, ns.zone
+		site, err := gi.SiteOf()
+		if err != nil {
+			tb.Fatal(err)
+		}
+		blocks, err := gi.BlocksOf()
+		if err != nil {
+			tb.Fatal(err)
+		}
+		for i, b := range blocks {
+			nb := NetworkBlock{Block: b}
+			if i%7 == 3 {
+				nb.Needs.MinApertureMM = 300
+			}
+			if i%11 == 5 {
+				nb.Sites = []string{ns.name}
+			}
+			in.Blocks = append(in.Blocks, nb)
+			all = append(all, b)
+		}
+		in.Sites = append(in.Sites, NetworkSite{Name: ns.name, Site: site,
+			Capability: Capability{Filters: netFilterSets[k%3], ApertureMM: []float64{400, 250}[k%2]}})
+	}
+	dark := WeakestDarkness(all)
+	for k := range in.Sites {
+		s := &in.Sites[k]
+		g, err := NightGrid(s.Site.Site, netNight.Year(), netNight.Month(), netNight.Day(), dark, 2*time.Minute,
+			constraints.Options{NoSkyBrightness: true})
+		if err != nil {
+			tb.Fatal(err)
+		}
+		s.Grid = g
+	}
+	return in
+}
+
+// A generated network of three sites: every site's plan is valid, frames
+// are never exceeded over the network, and the joint plan is at least the
+// separate one.
+func TestNetworkGenerated(t *testing.T) {
+	in := genNetwork(t, 11, 3, 40, 1, 1.5)
+	in.Options = netOptions()
+	pl, err := SolveNetwork(in)
+	if err != nil {
+		t.Fatal(err)
+	}
+	checkNetworkPlan(t, &in, pl)
+	t.Logf("objective %.0f, separate %.0f (x%.3f); rounds %d, steps kept %d, relocations %d/%d, unplaced %d",
+		pl.Objective, pl.Separate, pl.Objective/pl.Separate, pl.Rounds, pl.StepsKept, pl.MovesKept, pl.Moves, len(pl.Unplaced))
+	for _, u := range pl.Unplaced {
+		if len(u.Sites) != len(in.Sites) {
+			t.Errorf("unplaced %s: %d reasons for %d sites", u.ID, len(u.Sites), len(in.Sites))
+		}
+		for _, r := range u.Sites {
+			if r.Why == 0 {
+				t.Errorf("unplaced %s at %s: no reason", u.ID, r.Site)
+			}
+		}
+	}
+}
