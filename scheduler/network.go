@@ -606,7 +606,10 @@ func (nw *network) relocate(limit int) (tried, kept int) {
 				if t == s || nt.loc[g] < 0 {
 					continue
 				}
-				if qt := nt.base.peakQuality(nt.loc[g]); qt > mean {
+				// Every eligible site that sees the block is a candidate,
+				// the ones that see it better first: a move that looks
+				// worse for the block may free time for a better plan.
+				if qt := nt.base.peakQuality(nt.loc[g]); qt > 0 {
 					cands = append(cands, relocation{g: g, s: s, t: t, gain: w * float64(n) * (qt - mean)})
 				}
 			}

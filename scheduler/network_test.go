@@ -335,3 +335,101 @@ func TestNetworkGenerated(t *testing.T) {
 		}
 	}
 }
+
+// The exact optimum of tiny networks: 2 sites, 3 or 4 blocks of a few
+// frames, the last 80-100 minutes of the night, no completion bonus and
+// MinRun 1. The objective is then the sum of the sites' weighted exposure
+// and a plan's value at a site only grows with the frames it may take, so
+// the network optimum is the best, over every split of each block's frames
+// between the two sites (c at the first, left - c at the second), of the
+// sum of the two sites' exact optima (Exact) under those caps. The joint
+// solver must reach it.
+func TestNetworkExactTiny(t *testing.T) {
+	north := testNetSite(t, "north", 38, -106.95, nil, 0)
+	south := testNetSite(t, "south", 5, -106.95, nil, 0)
+	for _, c := range []struct {
+		decs    []float64
+		frames  int
+		minutes int
+	}{
+		{[]float64{40, -10, 15}, 4, 100},
+		{[]float64{30, 0, 20, -5}, 3, 80},
+		{[]float64{45, 25, -15, 5}, 3, 90},
+	} {
+		t.Run(fmt.Sprintf("%dblocks-%dmin", len(c.decs), c.minutes), func(t *testing.T) {
+			exactTiny(t, north, south, c.decs, c.frames, c.minutes)
+		})
+	}
+}
+
+func exactTiny(t *testing.T, north, south NetworkSite, decs []float64, frames, minutes int) {
+	from := north.Grid.End().Add(-time.Duration(minutes) * time.Minute)
+	snap := ephem.Prepare(ephem.NewInstant(from.Add(time.Duration(minutes/2) * time.Minute)))
+	ra := snap.Local(&north.Site.Observer).LAST * ephem.Rad2Deg
+	var blocks []NetworkBlock
+	for i, dec := range decs {
+		b := testNetBlock(t, fmt.Sprintf("t%d", i), ra+float64(i-1)*12, dec, []string{"R", "G"}[i%2], frames)
+		b.Exposure = 600 * time.Second
+		b.MinRun, b.MaxRun = 1, frames
+		blocks = append(blocks, b)
+	}
+	opts := Options{Seed: 5, Iterations: 400, Budget: -1, Quantum: time.Minute, CompletionBonus: -1}
+	in := NetworkInput{Sites: []NetworkSite{north, south}, Blocks: blocks, From: from, Options: opts}
+	pl, err := SolveNetwork(in)
+	if err != nil {
+		t.Fatal(err)
+	}
+	checkNetworkPlan(t, &in, pl)
+
+	nw, err := newNetwork(&in)
+	if err != nil {
+		t.Fatal(err)
+	}
+	// best[s][code]: site s's exact optimum when it may take c_b frames of
+	// block b, code = sum c_b splits^b.
+	splits := frames + 1
+	n := 1
+	for range blocks {
+		n *= splits
+	}
+	var best [2][]float64
+	for s := range best {
+		best[s] = make([]float64, n)
+		for code := 0; code < n; code++ {
+			taken := make([]int, len(blocks))
+			for b, c := 0, code; b < len(blocks); b, c = b+1, c/splits {
+				taken[nw.sites[s].loc[b]] = frames - c%splits
+			}
+			q := capped(nw.sites[s].base, taken)
+			ex, err := Exact(q, ExactLimits{MaxStates: 2_000_000})
+			if err != nil {
+				t.Fatal(err)
+			}
+			best[s][code] = ex.Objective.Value
+		}
+	}
+	opt := 0.0
+	for code := 0; code < n; code++ {
+		other := 0
+		for b, c, m := 0, code, 1; b < len(blocks); b, c, m = b+1, c/splits, m*splits {
+			other += (frames - c%splits) * m
+		}
+		opt = math.Max(opt, best[0][code]+best[1][other])
+	}
+	code0, m := 0, 1
+	for b := range blocks {
+		code0 += framesAt(pl, b)["north"] * m
+		m *= splits
+	}
+	t.Logf("exact at the joint plan's split: north %.1f (plan %.1f), south %.1f (plan %.1f)", best[0][code0], pl.Sites[0].Plan.Objective.Value,
+		best[1][n-1-code0], pl.Sites[1].Plan.Objective.Value)
+	// The solver and Exact sum the same run values; only rounding differs.
+	const optTol = 1e-9 // relative
+	t.Logf("joint %.1f, exact optimum %.1f (ratio %.6f), separate %.1f", pl.Objective, opt, pl.Objective/opt, pl.Separate)
+	if pl.Objective > opt*(1+optTol) {
+		t.Errorf("joint objective %v above the exact optimum %v: the enumeration is wrong", pl.Objective, opt)
+	}
+	if pl.Objective < opt*(1-optTol) {
+		t.Errorf("joint objective %v below the exact optimum %v (ratio %.6f)", pl.Objective, opt, pl.Objective/opt)
+	}
+}
