@@ -100,8 +100,8 @@ type NetworkInput struct {
 	From     time.Time
 	Programs []Program
 	// Options for every site's search. Iterations and Budget apply to each
-	// site's first plan; a re-solve in a round runs a third of them
-	// (warm-started).
+	// site's first plan; a coordinate step's re-solve runs a third of them,
+	// one inside a relocation a fifteenth (both warm-started).
 	Options Options
 	// Rounds of coordinate steps and relocations (default 3).
 	Rounds int
@@ -230,7 +230,8 @@ type network struct {
 	minRun []int
 	x      [][]int // frames planned per site and network block
 	opts   Options // first solves
-	re     Options // re-solves
+	re     Options // re-solves of coordinate steps
+	mv     Options // re-solves inside a relocation
 }
 
 // SolveNetwork plans every site of a network jointly (see the method
@@ -336,6 +337,11 @@ func newNetwork(in *NetworkInput) (*network, error) {
 		nw.re.Budget = max(time.Millisecond, o.Budget/3)
 	} else if o.Budget == 0 {
 		nw.re.Budget = DefaultBudget / 3
+	}
+	nw.mv = nw.re
+	nw.mv.Iterations = max(1, nw.re.Iterations/5)
+	if nw.re.Budget > 0 {
+		nw.mv.Budget = max(time.Millisecond, nw.re.Budget/5)
 	}
 	for g := range in.Blocks {
 		b := &in.Blocks[g].Block
@@ -532,20 +538,14 @@ func (nw *network) consistent() bool {
 	return true
 }
 
-// resolve re-solves site k against the others' current frames, warm
-// started from its plan (or from start when not nil), and returns the
-// problem and plan without making them current.
-func (nw *network) resolve(k int, start *sched, iters int) (*Problem, *sched) {
+// resolve re-solves site k against the others' current frames with the
+// search options o, warm started from its plan, and returns the problem
+// and plan without making them current.
+func (nw *network) resolve(k int, o Options) (*Problem, *sched) {
 	ns := nw.sites[k]
 	q := capped(ns.base, nw.capsFor(k))
-	q.Options = nw.re
-	if iters > 0 {
-		q.Options.Iterations = iters
-	}
-	if start == nil {
-		start = ns.sc
-	}
-	sc, _, _ := q.solve(carry(q, start), 0)
+	q.Options = o
+	sc, _, _ := q.solve(carry(q, ns.sc), 0)
 	q.Options = ns.base.Options
 	return q, sc
 }
@@ -564,7 +564,7 @@ func (nw *network) restore(k int, s siteSnap) { nw.set(k, s.q, s.sc) }
 func (nw *network) step(k int) bool {
 	before := nw.objective()
 	old := nw.snap(k)
-	q, sc := nw.resolve(k, nil, 0)
+	q, sc := nw.resolve(k, nw.re)
 	nw.set(k, q, sc)
 	if after := nw.objective(); after > before*(1+1e-12) && nw.consistent() {
 		return true
@@ -649,14 +649,14 @@ func (nw *network) move(c relocation) bool {
 	i := ns.loc[c.g]
 	taken[i] = nw.rem[c.g]
 	q := capped(ns.base, taken)
-	q.Options = nw.re
+	q.Options = nw.mv
 	sc, _, _ := q.solve(carry(q, ns.sc), 0)
 	q.Options = ns.base.Options
 	nw.set(c.s, q, sc)
 	// t with the frames freed; then s once more with what t left.
-	qt, sct := nw.resolve(c.t, nil, 0)
+	qt, sct := nw.resolve(c.t, nw.mv)
 	nw.set(c.t, qt, sct)
-	qs, scs := nw.resolve(c.s, nil, 0)
+	qs, scs := nw.resolve(c.s, nw.mv)
 	nw.set(c.s, qs, scs)
 	if nw.objective() > before*(1+1e-12) && nw.consistent() {
 		return true

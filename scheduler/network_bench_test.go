@@ -1,0 +1,59 @@
+package scheduler
+
+import (
+	"fmt"
+	"testing"
+)
+
+var sinkNetwork *NetworkPlan
+
+// BenchmarkNetwork plans generated networks (genNetwork: invented sites on
+// several continents, 200 blocks generated per site, load 1.5 nights of
+// exposure per site) over the night of 2027-02-10 with the default search
+// options. The timed call is the whole SolveNetwork: visibility at every
+// site, the separate start and the joint rounds. Metrics:
+//
+//   - joint/separate: the joint objective over that of the separate plan
+//     of the same run (each block given to its best-quality site, every
+//     site planned alone by Solve on its share);
+//   - joint/sum-bounds: the joint objective over the sum of the sites'
+//     UpperBound, each with every frame available (computed once, outside
+//     the timer). It is a reference, not a bound of the network: the sites
+//     may not all take the same frames, and a block completed only by
+//     frames at two sites earns a bonus no site's bound counts.
+func BenchmarkNetwork(b *testing.B) {
+	for _, nSites := range []int{2, 5, 10} {
+		b.Run(fmt.Sprintf("sites=%d/blocks=%d", nSites, 200*nSites), func(b *testing.B) {
+			in := genNetwork(b, 21, nSites, 200, 1, 1.5)
+			in.Options = Options{Seed: 1}
+			bound := 0.0
+			if nSites <= 5 {
+				nw, err := newNetwork(&in)
+				if err != nil {
+					b.Fatal(err)
+				}
+				for _, ns := range nw.sites {
+					bound += UpperBound(ns.base)
+				}
+			}
+			b.ReportAllocs()
+			b.ResetTimer()
+			var pl *NetworkPlan
+			for i := 0; i < b.N; i++ {
+				var err error
+				pl, err = SolveNetwork(in)
+				if err != nil {
+					b.Fatal(err)
+				}
+			}
+			b.StopTimer()
+			sinkNetwork = pl
+			b.ReportMetric(pl.Objective/pl.Separate, "joint/separate")
+			if bound > 0 {
+				b.ReportMetric(pl.Objective/bound, "joint/sum-bounds")
+			}
+			b.ReportMetric(float64(len(pl.Unplaced)), "unplaced")
+			b.ReportMetric(float64(pl.MovesKept), "moves-kept")
+		})
+	}
+}
