@@ -433,3 +433,43 @@ func exactTiny(t *testing.T, north, south NetworkSite, decs []float64, frames, m
 		t.Errorf("joint objective %v below the exact optimum %v (ratio %.6f)", pl.Objective, opt, pl.Objective/opt)
 	}
 }
+
+// A light curve handed over as the Earth turns: a circumpolar target
+// (declination +70, above 18 deg all night from 38 N) with one frame every
+// 30 minutes and more points wanted than one site's night holds is
+// followed from a site in Europe and then one in North America (nights
+// about 8.5 hours apart in UTC); each site's runs form a series on the
+// block's rhythm (Validate) and the frames add up to at most those wanted.
+func TestNetworkCadenceHandOver(t *testing.T) {
+	east := testNetSite(t, "east", 38, 20, nil, 0)
+	west := testNetSite(t, "west", 38, -106.95, nil, 0)
+	b := testNetBlock(t, "lc", midnightLST(&east), 70, "V", 40)
+	b.Exposure = 120 * time.Second
+	b.MinRun, b.MaxRun = 1, 1
+	b.Priority = 8
+	b.Cadence = &Cadence{Every: 30 * time.Minute, Tolerance: 5 * time.Minute}
+	b.Set.MinAltDeg = 15
+	in := NetworkInput{Sites: []NetworkSite{east, west}, Blocks: []NetworkBlock{b}, Options: netOptions()}
+	pl, err := SolveNetwork(in)
+	if err != nil {
+		t.Fatal(err)
+	}
+	checkNetworkPlan(t, &in, pl)
+	got := framesAt(pl, 0)
+	var first, last [2]time.Time
+	for k, sp := range pl.Sites {
+		for _, a := range sp.Plan.Assignments {
+			if first[k].IsZero() {
+				first[k] = a.Start
+			}
+			last[k] = a.Start
+		}
+	}
+	t.Logf("points: east %d (%s-%s UTC), west %d (%s-%s UTC)", got["east"], first[0].Format("15:04"), last[0].Format("15:04"),
+		got["west"], first[1].Format("15:04"), last[1].Format("15:04"))
+	// Consecutive points may be 25 min apart (Every - Tolerance), so one
+	// night of at most 12 hours holds at most 12 h / 25 min + 1 = 29.
+	if got["east"] == 0 || got["west"] == 0 || got["east"]+got["west"] <= 29 {
+		t.Errorf("points per site %v: want the series followed at both sites beyond one night's 29", got)
+	}
+}
