@@ -1,6 +1,7 @@
 package scheduler
 
 import (
+	"errors"
 	"fmt"
 	"math"
 	"testing"
@@ -471,5 +472,54 @@ func TestNetworkCadenceHandOver(t *testing.T) {
 	// night of at most 12 hours holds at most 12 h / 25 min + 1 = 29.
 	if got["east"] == 0 || got["west"] == 0 || got["east"]+got["west"] <= 29 {
 		t.Errorf("points per site %v: want the series followed at both sites beyond one night's 29", got)
+	}
+}
+
+// Frames kept tonight at one site count at every other: the south site
+// reports 4 of a block's 6 frames, so the north site (which sees it
+// better) plans at most the 2 left, and the south plan validates with its
+// executed run.
+func TestNetworkExecutedElsewhere(t *testing.T) {
+	north := testNetSite(t, "north", 38, -106.95, nil, 0)
+	south := testNetSite(t, "south", 5, -106.95, nil, 0)
+	ra := midnightLST(&north)
+	b := testNetBlock(t, "b", ra, 50, "R", 6)
+	start := south.Grid.Start.Add(3 * time.Hour)
+	south.Executed = []Assignment{{ID: "b", Start: start, End: start.Add(4 * 304 * time.Second), Frames: 4}}
+	in := NetworkInput{Sites: []NetworkSite{north, south}, Blocks: []NetworkBlock{b}, Options: netOptions(),
+		From: start.Add(30 * time.Minute)}
+	pl, err := SolveNetwork(in)
+	if err != nil {
+		t.Fatal(err)
+	}
+	checkNetworkPlan(t, &in, pl)
+	if got := framesAt(pl, 0); got["north"]+got["south"] != 2 {
+		t.Errorf("frames per site %v after 4 executed at south: want 2 in total", got)
+	}
+}
+
+// Bad network input is refused with the error naming what is wrong.
+func TestNetworkInputErrors(t *testing.T) {
+	north := testNetSite(t, "north", 38, -106.95, []string{"R"}, 0)
+	b := testNetBlock(t, "b", 0, 50, "R", 6)
+	ha := testNetBlock(t, "ha", 0, 50, "Ha", 6)
+	other := b
+	other.Sites = []string{"nowhere"}
+	exec := north
+	exec.Executed = []Assignment{{ID: "ha", Start: north.Grid.Start, End: north.Grid.Start.Add(time.Minute), Frames: 1}}
+	for _, c := range []struct {
+		name string
+		in   NetworkInput
+		want error
+	}{
+		{"no sites", NetworkInput{Blocks: []NetworkBlock{b}}, ErrNetwork},
+		{"site twice", NetworkInput{Sites: []NetworkSite{north, north}}, ErrNetwork},
+		{"block twice", NetworkInput{Sites: []NetworkSite{north}, Blocks: []NetworkBlock{b, b}}, ErrBlock},
+		{"unknown site", NetworkInput{Sites: []NetworkSite{north}, Blocks: []NetworkBlock{other}}, ErrBlock},
+		{"executed, cannot take", NetworkInput{Sites: []NetworkSite{exec}, Blocks: []NetworkBlock{b, ha}}, ErrNetwork},
+	} {
+		if _, err := SolveNetwork(c.in); !errors.Is(err, c.want) {
+			t.Errorf("%s: error %v, want %v", c.name, err, c.want)
+		}
 	}
 }
