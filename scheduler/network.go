@@ -2,6 +2,7 @@ package scheduler
 
 import (
 	"fmt"
+	"math"
 	"slices"
 	"sort"
 	"time"
@@ -752,4 +753,129 @@ func networkValue(in *NetworkInput, pl *NetworkPlan) float64 {
 		}
 	}
 	return v
+}
+
+// NetworkBound returns an upper bound on the network objective of every
+// plan of in: the Lagrangian bound of BoundDP (Sousa & Wolsey 1992; the
+// subgradient method of Held, Wolfe & Crowder 1974) with one frame-budget
+// multiplier per network block shared by all sites,
+//
+//	L(mu) = sum_b mu_b rem_b + sum_sites max over sequences of runs at the site of
+//	        sum_runs (val + (bonus_b/rem_b - mu_b) n - rho_w(run)) + sum_windows rho_w,
+//
+// each site's inner maximum the dynamic programming of BoundDP. The
+// network's relaxations on top of BoundDP's: a run of any length from one
+// frame (a site's share may end in a short run), and the completion bonus
+// spread over the frames wherever the sites together can hold the frames
+// left. lb (a known plan's objective) steers the Polyak steps; iters
+// bounds the subgradient iterations (0: 120).
+func NetworkBound(in NetworkInput, lb float64, iters int) (float64, error) {
+	nw, err := newNetwork(&in)
+	if err != nil {
+		return 0, err
+	}
+	if iters <= 0 {
+		iters = 120
+	}
+	return nw.bound(lb, iters), nil
+}
+
+func (nw *network) bound(lb float64, iters int) float64 {
+	type siteDP struct {
+		x    *lagDP
+		glob []int     // active block -> network block
+		cad  []float64 // cadence window multipliers
+		mu   []float64
+		nu   []float64 // zero: with runs from one frame there are no short runs
+	}
+	possible := make([]int, len(nw.rem))
+	for _, ns := range nw.sites {
+		for i, g := range ns.glob {
+			possible[g] += ns.base.framesPossible(i)
+		}
+	}
+	var ss []siteDP
+	for _, ns := range nw.sites {
+		q := *ns.base
+		q.bd = append([]bdat(nil), ns.base.bd...)
+		for i := range q.bd {
+			q.bd[i].minRun = 1
+		}
+		x := newLagDP(&q)
+		sd := siteDP{x: x, glob: make([]int, len(x.active)), cad: make([]float64, x.nCad),
+			mu: make([]float64, len(x.active)), nu: make([]float64, len(x.active))}
+		for a, b := range x.active {
+			g := ns.glob[b]
+			sd.glob[a] = g
+			x.bpf[a] = 0
+			if r := nw.rem[g]; r > 0 && possible[g] >= r {
+				x.bpf[a] = nw.bonus[g] / float64(r)
+			}
+		}
+		ss = append(ss, sd)
+	}
+	mu := make([]float64, len(nw.rem))
+	gmu := make([]float64, len(nw.rem))
+	gcad := make([][]float64, len(ss))
+	for k := range ss {
+		gcad[k] = make([]float64, len(ss[k].cad))
+	}
+	best := math.Inf(1)
+	theta, stall := 1.0, 0
+	for it := 0; it < iters; it++ {
+		L := 0.0
+		for g, r := range nw.rem {
+			L += mu[g] * float64(r)
+			gmu[g] = float64(r)
+		}
+		for k := range ss {
+			sd := &ss[k]
+			if len(sd.x.active) == 0 {
+				continue
+			}
+			for a, g := range sd.glob {
+				sd.mu[a] = mu[g]
+			}
+			val, frames, _, starts := sd.x.solve(sd.mu, sd.nu, sd.cad)
+			L += val
+			for a, g := range sd.glob {
+				gmu[g] -= float64(frames[a])
+			}
+			for j, n := range starts {
+				L += sd.cad[j]
+				gcad[k][j] = 1 - float64(n)
+			}
+		}
+		if math.IsInf(best, 1) || L < best-1e-9*math.Abs(best) {
+			best, stall = L, 0
+		} else if stall++; stall >= 6 {
+			theta, stall = theta/2, 0
+		}
+		norm := 0.0
+		for g := range mu {
+			if mu[g] > 0 || gmu[g] < 0 {
+				norm += gmu[g] * gmu[g]
+			}
+		}
+		for k := range ss {
+			for j := range ss[k].cad {
+				if ss[k].cad[j] > 0 || gcad[k][j] < 0 {
+					norm += gcad[k][j] * gcad[k][j]
+				}
+			}
+		}
+		if norm == 0 || theta < 1e-3 {
+			break
+		}
+		step := theta * math.Max(L-lb, 1e-6*L) / norm
+		for g := range mu {
+			mu[g] = math.Max(0, mu[g]-step*gmu[g])
+		}
+		for k := range ss {
+			for j := range ss[k].cad {
+				ss[k].cad[j] = math.Max(0, ss[k].cad[j]-step*gcad[k][j])
+			}
+		}
+	}
+	return best
 }

@@ -424,6 +424,16 @@ func exactTiny(t *testing.T, north, south NetworkSite, decs []float64, frames, m
 	}
 	t.Logf("exact at the joint plan's split: north %.1f (plan %.1f), south %.1f (plan %.1f)", best[0][code0], pl.Sites[0].Plan.Objective.Value,
 		best[1][n-1-code0], pl.Sites[1].Plan.Objective.Value)
+	bound, err := NetworkBound(in, pl.Objective, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Logf("network bound %.1f (optimum / bound %.4f)", bound, opt/bound)
+	// The bound's dynamic programming keeps run values in float32.
+	const boundTol = 1e-6 // relative
+	if bound < opt*(1-boundTol) {
+		t.Errorf("NetworkBound %v below the exact optimum %v", bound, opt)
+	}
 	// The solver and Exact sum the same run values; only rounding differs.
 	const optTol = 1e-9 // relative
 	t.Logf("joint %.1f, exact optimum %.1f (ratio %.6f), separate %.1f", pl.Objective, opt, pl.Objective/opt, pl.Separate)
