@@ -764,10 +764,10 @@ func networkValue(in *NetworkInput, pl *NetworkPlan) float64 {
 //	        sum_runs (val + (bonus_b/rem_b - mu_b) n - rho_w(run)) + sum_windows rho_w,
 //
 // each site's inner maximum the dynamic programming of BoundDP. The
-// network's relaxations on top of BoundDP's: a run of any length from one
-// frame (a site's share may end in a short run), and the completion bonus
-// spread over the frames wherever the sites together can hold the frames
-// left. lb (a known plan's objective) steers the Polyak steps; iters
+// network's relaxations on top of BoundDP's: one run shorter than MinRun
+// per block at every site (a site's share may end in one), and the
+// completion bonus spread over the frames wherever the sites together can
+// hold the frames left. lb (a known plan's objective) steers the Polyak steps; iters
 // bounds the subgradient iterations (0: 120).
 func NetworkBound(in NetworkInput, lb float64, iters int) (float64, error) {
 	nw, err := newNetwork(&in)
@@ -786,7 +786,7 @@ func (nw *network) bound(lb float64, iters int) float64 {
 		glob []int     // active block -> network block
 		cad  []float64 // cadence window multipliers
 		mu   []float64
-		nu   []float64 // zero: with runs from one frame there are no short runs
+		nu   []float64 // at most one run shorter than MinRun per block and site
 	}
 	possible := make([]int, len(nw.rem))
 	for _, ns := range nw.sites {
@@ -799,7 +799,13 @@ func (nw *network) bound(lb float64, iters int) float64 {
 		q := *ns.base
 		q.bd = append([]bdat(nil), ns.base.bd...)
 		for i := range q.bd {
-			q.bd[i].minRun = 1
+			// A site's share may end in a run shorter than MinRun even when
+			// the block's frames left are no more than MinRun: then let
+			// the DP see a budget above MinRun, so that it builds runs of
+			// every length, short ones counted by nu (one per site).
+			if d := &q.bd[i]; d.rem > 0 && d.rem <= d.minRun {
+				d.rem = d.minRun + 1
+			}
 		}
 		x := newLagDP(&q)
 		sd := siteDP{x: x, glob: make([]int, len(x.active)), cad: make([]float64, x.nCad),
@@ -817,8 +823,10 @@ func (nw *network) bound(lb float64, iters int) float64 {
 	mu := make([]float64, len(nw.rem))
 	gmu := make([]float64, len(nw.rem))
 	gcad := make([][]float64, len(ss))
+	gnu := make([][]float64, len(ss))
 	for k := range ss {
 		gcad[k] = make([]float64, len(ss[k].cad))
+		gnu[k] = make([]float64, len(ss[k].nu))
 	}
 	best := math.Inf(1)
 	theta, stall := 1.0, 0
@@ -836,10 +844,12 @@ func (nw *network) bound(lb float64, iters int) float64 {
 			for a, g := range sd.glob {
 				sd.mu[a] = mu[g]
 			}
-			val, frames, _, starts := sd.x.solve(sd.mu, sd.nu, sd.cad)
+			val, frames, shorts, starts := sd.x.solve(sd.mu, sd.nu, sd.cad)
 			L += val
 			for a, g := range sd.glob {
 				gmu[g] -= float64(frames[a])
+				L += sd.nu[a]
+				gnu[k][a] = 1 - float64(shorts[a])
 			}
 			for j, n := range starts {
 				L += sd.cad[j]
@@ -863,6 +873,11 @@ func (nw *network) bound(lb float64, iters int) float64 {
 					norm += gcad[k][j] * gcad[k][j]
 				}
 			}
+			for a := range ss[k].nu {
+				if ss[k].nu[a] > 0 || gnu[k][a] < 0 {
+					norm += gnu[k][a] * gnu[k][a]
+				}
+			}
 		}
 		if norm == 0 || theta < 1e-3 {
 			break
@@ -874,6 +889,9 @@ func (nw *network) bound(lb float64, iters int) float64 {
 		for k := range ss {
 			for j := range ss[k].cad {
 				ss[k].cad[j] = math.Max(0, ss[k].cad[j]-step*gcad[k][j])
+			}
+			for a := range ss[k].nu {
+				ss[k].nu[a] = math.Max(0, ss[k].nu[a]-step*gnu[k][a])
 			}
 		}
 	}
