@@ -533,3 +533,31 @@ func TestNetworkInputErrors(t *testing.T) {
 		}
 	}
 }
+
+// Three nights of a small network: every night's plans are valid, and the
+// frames planned over all nights and sites never exceed what a block
+// wants.
+func TestNetworkHorizon(t *testing.T) {
+	in := genNetwork(t, 5, 2, 25, 3, 1)
+	in.Options = Options{Seed: 2, Iterations: 150, Budget: -1}
+	nights, err := NetworkHorizon(NetworkHorizonInput{Network: in, First: netNight, Nights: 3, NoSky: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	total := make([]int, len(in.Blocks))
+	for _, n := range nights {
+		for _, sp := range n.Plan.Sites {
+			if err := Validate(sp.Plan, sp.Problem); err != nil {
+				t.Errorf("%s, site %s: %v", n.Date.Format(time.DateOnly), sp.Name, err)
+			}
+		}
+		for g, f := range n.Plan.Frames {
+			total[g] += f
+		}
+	}
+	for g, b := range in.Blocks {
+		if total[g] > b.FramesWanted-b.FramesDone {
+			t.Errorf("block %s: %d frames over 3 nights, %d left", b.ID, total[g], b.FramesWanted-b.FramesDone)
+		}
+	}
+}
