@@ -3,6 +3,7 @@ package scheduler
 import (
 	"fmt"
 	"math"
+	"runtime"
 	"slices"
 	"sort"
 	"time"
@@ -456,7 +457,11 @@ func (nw *network) start() {
 	owner := nw.bestSites()
 	plans := make([]*sched, len(nw.sites))
 	qs := make([]*Problem, len(nw.sites))
-	parallel(len(nw.sites), nw.opts.Workers, func(k int) {
+	workers := nw.opts.Workers
+	if workers <= 0 {
+		workers = runtime.GOMAXPROCS(0)
+	}
+	parallel(len(nw.sites), workers, func(k int) {
 		ns := nw.sites[k]
 		taken := make([]int, len(ns.glob))
 		for i, g := range ns.glob {

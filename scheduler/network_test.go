@@ -358,6 +358,9 @@ func TestNetworkExactTiny(t *testing.T) {
 		{[]float64{45, 25, -15, 5}, 3, 90},
 	} {
 		t.Run(fmt.Sprintf("%dblocks-%dmin", len(c.decs), c.minutes), func(t *testing.T) {
+			if testing.Short() && len(c.decs) > 3 {
+				t.Skip("-short: the 3-block network only")
+			}
 			exactTiny(t, north, south, c.decs, c.frames, c.minutes)
 		})
 	}
