@@ -489,3 +489,57 @@ func TestFileURI(t *testing.T) {
 		t.Fatalf("site written through the URI not in the file: %v", err)
 	}
 }
+
+// TestCopyCoversEveryTable lists every table and column the migrations
+// create and fails for one that Copy does not write, so a migration that
+// adds a table or a column must extend Copy (its typed records or
+// rawTables) in the same change.
+func TestCopyCoversEveryTable(t *testing.T) {
+	db := openT(t, filepath.Join(t.TempDir(), "cover.db"), Options{})
+	copied := map[string]map[string]bool{}
+	for _, tb := range (&records{}).rows() {
+		cols := map[string]bool{}
+		for _, c := range strings.Split(tb.cols, ",") {
+			cols[strings.TrimSpace(c)] = true
+		}
+		copied[tb.table] = cols
+	}
+	rows, err := db.w.Query(`SELECT name FROM sqlite_master WHERE type = 'table'
+		AND name NOT LIKE 'sqlite_%' AND name <> 'schema_migrations' ORDER BY name`)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var tables []string
+	for rows.Next() {
+		var n string
+		if err := rows.Scan(&n); err != nil {
+			t.Fatal(err)
+		}
+		tables = append(tables, n)
+	}
+	rows.Close()
+	if len(tables) < 10 {
+		t.Fatalf("found only %d tables (%v): the listing is wrong", len(tables), tables)
+	}
+	for _, tb := range tables {
+		cols, ok := copied[tb]
+		if !ok {
+			t.Errorf("table %s is not copied by Copy", tb)
+			continue
+		}
+		crow, err := db.w.Query(`SELECT name FROM pragma_table_info(?)`, tb)
+		if err != nil {
+			t.Fatal(err)
+		}
+		for crow.Next() {
+			var c string
+			if err := crow.Scan(&c); err != nil {
+				t.Fatal(err)
+			}
+			if !cols[c] {
+				t.Errorf("column %s.%s is not copied by Copy", tb, c)
+			}
+		}
+		crow.Close()
+	}
+}

@@ -76,6 +76,26 @@ func fillWorkload(t *testing.T, db *store.DB) {
 	}
 	_, err = db.RevokeToken(ctx, "kviewer")
 	must(t, err)
+	// The records of migrations 0004-0007: a target import, magnitudes and
+	// fits, a block's audit trail.
+	fp := make([]byte, 32)
+	fp[31] = 7
+	_, _, err = db.ImportTargets(ctx, "imp-1", fp, []store.Target{{ID: "c2", Name: "comet two", Kind: store.KindOrbit}})
+	must(t, err)
+	var obs []store.MagnitudeObservation
+	for i := range 3 {
+		obs = append(obs, store.MagnitudeObservation{ID: fmt.Sprintf("m%d", i), TargetID: "com",
+			ObservedAt: t0.Add(time.Duration(i) * time.Hour), Magnitude: 9.25 + float64(i)/8, Sigma: 0.1, Note: "note"})
+	}
+	_, err = db.AddMagnitudeObservations(ctx, obs)
+	must(t, err)
+	_, err = db.CreateMagnitudeFit(ctx, store.MagnitudeFit{ID: "f1", TargetID: "com", Spec: []byte("fit")}, nil)
+	must(t, err)
+	b, err := db.GetBlock(ctx, "b25")
+	must(t, err)
+	b.Priority = 7.5
+	_, err = db.UpdateBlock(ctx, b, "kadmin", "priority")
+	must(t, err)
 }
 
 // dumpAll reads every record through the API, in list order.
@@ -92,6 +112,26 @@ func dumpAll(t *testing.T, db *store.DB) []any {
 	tokens, _, err := db.ListTokens(ctx, big)
 	must(t, err)
 	out := []any{sites, targets, blocks, tokens}
+	for _, x := range targets {
+		obs, err := db.MagnitudeObservations(ctx, x.ID, 100)
+		must(t, err)
+		fits, err := db.MagnitudeFits(ctx, x.ID)
+		must(t, err)
+		out = append(out, obs, fits)
+	}
+	for _, b := range blocks {
+		es, err := db.BlockEdits(ctx, b.ID)
+		must(t, err)
+		out = append(out, es)
+	}
+	fp := make([]byte, 32)
+	fp[31] = 7
+	replayed, replay, err := db.ImportTargets(ctx, "imp-1", fp, []store.Target{{ID: "c2", Name: "comet two", Kind: store.KindOrbit}})
+	must(t, err)
+	if !replay {
+		t.Errorf("the import request imp-1 is not stored")
+	}
+	out = append(out, replayed)
 	for _, b := range blocks {
 		rs, _, err := db.ListProgressReports(ctx, b.ID, big)
 		must(t, err)
@@ -119,8 +159,8 @@ func TestCopyRoundTrip(t *testing.T) {
 	st, err := store.Copy(ctx, src, pg)
 	must(t, err)
 	t.Logf("SQLite -> PostgreSQL: %v", st)
-	if st.Blocks != 30 || st.ProgressReports != 40 || st.Plans != 5 || st.Tokens != 3 {
-		t.Errorf("copied %v, want 30 blocks, 40 reports, 5 plans, 3 tokens", st)
+	if st.Blocks != 30 || st.ProgressReports != 40 || st.Plans != 5 || st.Tokens != 3 || st.Others != 6 {
+		t.Errorf("copied %v, want 30 blocks, 40 reports, 5 plans, 3 tokens, 6 other records", st)
 	}
 	back := openFile(t)
 	_, err = store.Copy(ctx, pg, back)
