@@ -177,12 +177,6 @@ func (e *executor) execute(ctx context.Context, resp *pb.NextAssignmentResponse)
 		}
 	}
 	now := e.now()
-	if err := e.sky.checkSlew(a, now, maxTime(now, start), end); err != nil {
-		e.log.Warn("slew refused by the executor's own safety check", "block", a.GetBlockId(), "target", a.GetTargetName(), "err", err)
-		e.m.refusals.Inc()
-		e.refused[key] = end
-		return nil
-	}
 	night := e.sky.nightOf(now)
 	rec := &runRecord{
 		RunID: runIDFor(planID, a.GetBlockId(), start, kept), PlanID: planID, BlockID: a.GetBlockId(),
@@ -191,6 +185,18 @@ func (e *executor) execute(ctx context.Context, resp *pb.NextAssignmentResponse)
 		SlewModelS: a.GetOverheads().GetSlew().AsDuration().Seconds(),
 	}
 	rec.ReportID = "nlx-" + rec.RunID
+	if err := e.sky.checkSlew(a, now, maxTime(now, start), end); err != nil {
+		e.log.Warn("slew refused by the executor's own safety check", "block", a.GetBlockId(), "target", a.GetTargetName(), "err", err)
+		e.m.refusals.Inc()
+		e.refused[key] = end
+		// Tell the server the run was not started and why, so that the
+		// operator sees it and a replan knows.
+		rec.Outcome, rec.Note = "skipped", "refused by the executor's safety check: "+err.Error()
+		if err := e.j.save(rec); err != nil {
+			return err
+		}
+		return e.report(ctx, rec)
+	}
 	e.log.Info("run", "block", rec.BlockID, "target", rec.Target, "filter", rec.Filter, "frames", frames,
 		"planned_start", start.Format(time.RFC3339), "plan", planID, "run_id", rec.RunID)
 	if e.cfg.dryRun {
@@ -212,13 +218,13 @@ func (e *executor) execute(ctx context.Context, resp *pb.NextAssignmentResponse)
 	octx, cancel := context.WithTimeout(ctx, 5*time.Minute)
 	defer cancel()
 	if err := e.dev.openDome(octx); err != nil {
-		return e.abandon(rec, fmt.Errorf("opening the dome: %w", err))
+		return e.abandon(ctx, rec, fmt.Errorf("opening the dome: %w", err))
 	}
 	if err := e.dev.unparkMount(octx); err != nil {
-		return e.abandon(rec, fmt.Errorf("unparking: %w", err))
+		return e.abandon(ctx, rec, fmt.Errorf("unparking: %w", err))
 	}
 	if ok, _ := e.dev.weatherSafe(); !ok {
-		return e.abandon(rec, errWeather)
+		return e.abandon(ctx, rec, errWeather)
 	}
 	slewEnd := e.now().Add(a.GetOverheads().GetSlew().AsDuration())
 	ra, dec, _ := pointingAt(a, maxTime(slewEnd, start))
@@ -228,7 +234,7 @@ func (e *executor) execute(ctx context.Context, resp *pb.NextAssignmentResponse)
 		err = e.dev.setTracking(octx, false, 0, 0, dec)
 	}
 	if err != nil {
-		return e.abandon(rec, fmt.Errorf("setting the tracking rate: %w", err))
+		return e.abandon(ctx, rec, fmt.Errorf("setting the tracking rate: %w", err))
 	}
 	if fra, fdec, ok := e.dev.mountPosition(); ok {
 		rec.SlewDegrees = ephem.Separation(ephem.SphericalToVec(fra*deg, fdec*deg), ephem.SphericalToVec(ra*deg, dec*deg)) / deg
@@ -237,38 +243,41 @@ func (e *executor) execute(ctx context.Context, resp *pb.NextAssignmentResponse)
 	t0 := e.now()
 	off, err := e.dev.slew(octx, ra, dec)
 	if err != nil {
-		return e.abandon(rec, fmt.Errorf("slewing: %w", err))
+		return e.abandon(ctx, rec, fmt.Errorf("slewing: %w", err))
 	}
 	rec.PointingOffArcsec = off * 3600
 	rec.SlewActualS = e.now().Sub(t0).Seconds()
 	if rec.SlewDegrees > 0 {
 		settle := e.site.GetMount().GetSettle().AsDuration()
 		if err := e.pause(ctx, settle); err != nil {
-			return e.abandon(rec, err)
+			return e.abandon(ctx, rec, err)
 		}
 	}
 	if err := e.dev.setFilter(octx, a.GetFilter()); err != nil {
-		return e.abandon(rec, fmt.Errorf("filter: %w", err))
+		return e.abandon(ctx, rec, fmt.Errorf("filter: %w", err))
 	}
 	if a.GetOverheads().GetFocus().AsDuration() > 0 {
 		if err := e.dev.focusRun(octx, e.cfg.focusSteps); err != nil {
-			return e.abandon(rec, fmt.Errorf("focus run: %w", err))
+			return e.abandon(ctx, rec, fmt.Errorf("focus run: %w", err))
 		}
 		e.lastFocus = e.now()
 	}
 	if wait := start.Sub(e.now()); wait > 0 {
 		if err := e.pause(ctx, wait); err != nil {
-			return e.abandon(rec, err)
+			return e.abandon(ctx, rec, err)
 		}
 	}
 	return e.expose(ctx, a, rec, frames)
 }
 
 // abandon ends a run before its first frame: nothing to report.
-func (e *executor) abandon(rec *runRecord, err error) error {
-	rec.Outcome, rec.Note, rec.Reported = "failed", err.Error(), true
+func (e *executor) abandon(ctx context.Context, rec *runRecord, err error) error {
+	rec.Outcome, rec.Note = "failed", err.Error()
 	if err2 := e.j.save(rec); err2 != nil {
 		e.log.Error("journal", "err", err2)
+	}
+	if err2 := e.report(ctx, rec); err2 != nil {
+		e.log.Error("report", "run_id", rec.RunID, "err", err2)
 	}
 	return err
 }
@@ -419,13 +428,24 @@ func (e *executor) report(ctx context.Context, rec *runRecord) error {
 	if rec.Reported {
 		return nil
 	}
-	if len(rec.Files) == 0 || !rec.End.After(rec.Start) {
+	start, end := rec.Start, rec.End
+	switch {
+	case len(rec.Files) > 0 && end.After(start):
+	case len(rec.Files) == 0 && (rec.Outcome == "failed" || rec.Outcome == "skipped"):
+		// No frame, but the server should know the run did not happen
+		// and why: from the preparation to now (at least a millisecond,
+		// as the interval must not be empty).
+		start, end = rec.PrepareStart, e.now()
+		if !end.After(start) {
+			end = start.Add(time.Millisecond)
+		}
+	default:
 		rec.Reported = true // no frame: nothing to count
 		return e.j.save(rec)
 	}
 	req := &pb.ReportProgressRequest{Report: &pb.ProgressReport{
 		ReportId: rec.ReportID, BlockId: rec.BlockID, FramesKept: int32(len(rec.Files)),
-		Interval: &pb.TimeInterval{Start: timestamppb.New(rec.Start), End: timestamppb.New(rec.End)},
+		Interval: &pb.TimeInterval{Start: timestamppb.New(start), End: timestamppb.New(end)},
 		Outcome:  outcomes[rec.Outcome], PlanId: rec.PlanID, Note: truncate(rec.Note, 500),
 	}}
 	var err error
