@@ -272,44 +272,143 @@ func (x *skyService) Visibility(ctx context.Context, req *nightloomv1.Visibility
 		}
 		vis.Windows = nil
 	}
-	capEnd := func(t time.Time) time.Time {
-		if t.After(ivEnd) {
-			return ivEnd
-		}
-		return t
+	// Windows are the continuous intervals the planner uses (edges to
+	// constraints.EdgeResolution, every instant certified), not the grid's
+	// samples, so that what Visibility shows is what a plan may use.
+	var ivs []constraints.Interval
+	if len(vis.Windows) > 0 {
+		ivs = g.Intervals(tr, request, vis)
 	}
 	var shortest time.Duration
 	if block != nil {
 		shortest = shortestRun(site, block)
 	}
 	var visible time.Duration
-	for _, w := range vis.Windows {
-		t0, t1 := g.Time(w.Start), capEnd(g.Time(w.End))
+	for _, iv := range ivs {
+		t0, t1 := maxTime(iv.Start, ivStart), minTime(iv.End, ivEnd)
+		if !t1.After(t0) {
+			continue
+		}
 		win := &nightloomv1.VisibilityWindow{Interval: &nightloomv1.TimeInterval{Start: timestamppb.New(t0), End: timestamppb.New(t1)},
 			MinAirmass: math.Inf(1), MaxAltitudeDeg: math.Inf(-1), FitsShortestRun: true}
-		sum := 0.0
-		for i := w.Start; i < w.End; i++ {
+		// Statistics over the grid's observable samples inside the window
+		// (the nearest one for a window shorter than a step).
+		var samples []int
+		for i := g.Index(t0); i <= g.Index(t1.Add(-time.Nanosecond)); i++ {
+			if t := g.Time(i); !t.Before(t0) && t.Before(t1) && vis.Reason[i] == constraints.OK {
+				samples = append(samples, i)
+			}
+		}
+		if len(samples) == 0 {
+			samples = []int{g.Index(t0.Add(t1.Sub(t0) / 2))}
+		}
+		sum, n := 0.0, 0
+		for _, i := range samples {
 			q := float64(vis.Quality[i])
 			sum += q
+			n++
 			win.BestQuality = math.Max(win.BestQuality, q)
 			win.MaxAltitudeDeg = math.Max(win.MaxAltitudeDeg, float64(tr.Alt[i])*ephem.Rad2Deg)
 			win.MinAirmass = math.Min(win.MinAirmass, float64(tr.Airmass[i]))
 		}
-		win.MeanQuality = sum / float64(w.Len())
+		win.MeanQuality = sum / float64(max(n, 1))
 		if block != nil {
 			win.FitsShortestRun = t1.Sub(t0) >= shortest
 		}
 		visible += t1.Sub(t0)
 		resp.Windows = append(resp.Windows, win)
 	}
-	for _, sp := range vis.Spans(g) {
-		if sp.Reason == constraints.OK {
-			continue
-		}
-		resp.Blocked = append(resp.Blocked, &nightloomv1.BlockedSpan{
-			Interval: &nightloomv1.TimeInterval{Start: timestamppb.New(sp.From), End: timestamppb.New(capEnd(sp.To))},
-			Reason:   reasonProto(sp.Reason)})
-	}
+	resp.Blocked = blockedSpans(g, vis, resp.Windows, ivStart, ivEnd, func(t time.Time) constraints.Reason {
+		return g.CheckAt(target, request, t)
+	})
 	resp.VisibleTime = durationpb.New(visible)
 	return resp, nil
+}
+
+// blockedSpans tiles the time of [from, to) outside the windows with the
+// reasons it is not observable: the grid's failing spans clipped to the
+// gaps, and, where the grid's samples said observable but the continuous
+// edges did not, the reason checked at that piece's middle. Neighbours
+// with one reason merge.
+func blockedSpans(g *constraints.Grid, vis *constraints.Visibility, wins []*nightloomv1.VisibilityWindow, from, to time.Time,
+	check func(time.Time) constraints.Reason) []*nightloomv1.BlockedSpan {
+	type piece struct {
+		a, b time.Time
+		r    constraints.Reason
+	}
+	var gaps []piece
+	at := from
+	for _, w := range wins {
+		if s := w.GetInterval().GetStart().AsTime(); s.After(at) {
+			gaps = append(gaps, piece{a: at, b: s})
+		}
+		at = w.GetInterval().GetEnd().AsTime()
+	}
+	if to.After(at) {
+		gaps = append(gaps, piece{a: at, b: to})
+	}
+	spans := vis.Spans(g)
+	var out []piece
+	add := func(p piece) {
+		if !p.b.After(p.a) {
+			return
+		}
+		if n := len(out); n > 0 && out[n-1].r == p.r && out[n-1].b.Equal(p.a) {
+			out[n-1].b = p.b
+			return
+		}
+		out = append(out, p)
+	}
+	for _, gp := range gaps {
+		for _, sp := range spans {
+			a, b := maxTime(gp.a, sp.From), minTime(gp.b, sp.To)
+			if !b.After(a) {
+				continue
+			}
+			r := sp.Reason
+			if r == constraints.OK {
+				r = failing(check, a, b, vis)
+			}
+			add(piece{a: a, b: b, r: r})
+		}
+		// The grid's last step may end before to.
+		if last := g.End(); gp.b.After(last) {
+			a := maxTime(gp.a, last)
+			add(piece{a: a, b: gp.b, r: failing(check, a, gp.b, vis)})
+		}
+	}
+	res := make([]*nightloomv1.BlockedSpan, 0, len(out))
+	for _, p := range out {
+		res = append(res, &nightloomv1.BlockedSpan{Interval: &nightloomv1.TimeInterval{Start: timestamppb.New(p.a), End: timestamppb.New(p.b)},
+			Reason: reasonProto(p.r)})
+	}
+	return res
+}
+
+// failing is the reason a piece [a, b) outside the continuous windows is
+// not observable although the grid's samples around it were: checked at
+// its middle, then just inside either end; if every check passes (the
+// failure lies between them) the night's dominant reason.
+func failing(check func(time.Time) constraints.Reason, a, b time.Time, vis *constraints.Visibility) constraints.Reason {
+	const inset = 100 * time.Millisecond
+	for _, t := range []time.Time{a.Add(b.Sub(a) / 2), a.Add(min(inset, b.Sub(a)/4)), b.Add(-min(inset, b.Sub(a)/4))} {
+		if r := check(t); r != constraints.OK {
+			return r
+		}
+	}
+	return vis.Dominant()
+}
+
+func maxTime(a, b time.Time) time.Time {
+	if a.After(b) {
+		return a
+	}
+	return b
+}
+
+func minTime(a, b time.Time) time.Time {
+	if a.Before(b) {
+		return a
+	}
+	return b
 }

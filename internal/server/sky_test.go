@@ -1,6 +1,7 @@
 package server
 
 import (
+	"github.com/nightloom/nightloom/constraints"
 	"math"
 	"testing"
 	"time"
@@ -283,6 +284,49 @@ func TestVisibility(t *testing.T) {
 	if visible != v.GetVisibleTime().AsDuration() {
 		t.Errorf("visible time %v, windows add up to %v", v.GetVisibleTime().AsDuration(), visible)
 	}
+	// The windows are the planner's continuous intervals: checked directly
+	// at single instants, each window holds at its start, middle and last
+	// second, and fails within constraints.EdgeResolution beyond either
+	// edge that is not the interval's; every blocked span fails at its
+	// middle.
+	sm, _, err := e.srv.loadSite(ctx, f.site.GetId())
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, tgt, err := e.srv.loadTarget(ctx, f.targets[1].GetId())
+	if err != nil {
+		t.Fatal(err)
+	}
+	ivA, ivB := v.GetInterval().GetStart().AsTime(), v.GetInterval().GetEnd().AsTime()
+	g, err := constraints.NewGrid(sm.cons, ivA, ivB, v.GetStep().AsDuration(), constraints.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	req := constraints.Request{Set: constraintSet(cons, false)}
+	for _, w := range v.GetWindows() {
+		a, b := w.GetInterval().GetStart().AsTime(), w.GetInterval().GetEnd().AsTime()
+		for _, at := range []time.Time{a, a.Add(b.Sub(a) / 2), b.Add(-time.Second)} {
+			if r := g.CheckAt(tgt, req, at); r != constraints.OK {
+				t.Errorf("window %v-%v: %v at %v", a, b, r, at)
+			}
+		}
+		if a.After(ivA) && g.CheckAt(tgt, req, a.Add(-constraints.EdgeResolution)) == constraints.OK {
+			t.Errorf("window %v-%v: observable %v before its start", a, b, constraints.EdgeResolution)
+		}
+		if b.Before(ivB) && g.CheckAt(tgt, req, b.Add(constraints.EdgeResolution)) == constraints.OK {
+			t.Errorf("window %v-%v: observable %v after its end", a, b, constraints.EdgeResolution)
+		}
+		if a.Sub(ivA)%v.GetStep().AsDuration() == 0 && b.Sub(ivA)%v.GetStep().AsDuration() == 0 {
+			t.Logf("window %v-%v: both edges on the grid", a, b)
+		}
+	}
+	for _, bs := range v.GetBlocked() {
+		a, b := bs.GetInterval().GetStart().AsTime(), bs.GetInterval().GetEnd().AsTime()
+		if r := g.CheckAt(tgt, req, a.Add(b.Sub(a)/2)); r == constraints.OK {
+			t.Errorf("blocked span %v-%v (%v) is observable at its middle", a, b, bs.GetReason())
+		}
+	}
+
 	// At the start of the night the sky is not dark enough.
 	if r := v.GetBlocked()[0].GetReason(); r != nightloomv1.Reason_REASON_TOO_BRIGHT_TWILIGHT {
 		t.Errorf("first blocked span: %v, want TOO_BRIGHT_TWILIGHT", r)
