@@ -131,45 +131,44 @@ func (d *DB) rawRows(ctx context.Context, table, cols, order string) ([][]any, e
 	q := `SELECT ` + cols + ` FROM ` + table + ` ORDER BY ` + order
 	n := strings.Count(cols, ",") + 1
 	var out [][]any
-	scan := func(next func() bool, scan func(...any) error) error {
-		for next() {
-			row := make([]any, n)
-			ptrs := make([]any, n)
+	// drain reads a query's rows; both drivers' row sets have these methods.
+	drain := func(rows interface {
+		Next() bool
+		Scan(...any) error
+		Err() error
+	}) error {
+		for rows.Next() {
+			row, ptrs := make([]any, n), make([]any, n)
 			for i := range row {
 				ptrs[i] = &row[i]
 			}
-			if err := scan(ptrs...); err != nil {
+			if err := rows.Scan(ptrs...); err != nil {
 				return err
 			}
 			out = append(out, row)
 		}
-		return nil
+		return rows.Err()
 	}
+	var err error
 	if d.pg != nil {
-		err := d.pg.read(ctx, "copy", func(tx pgx.Tx) error {
+		err = d.pg.read(ctx, "copy", func(tx pgx.Tx) error {
 			rows, err := tx.Query(ctx, q)
 			if err != nil {
 				return err
 			}
 			defer rows.Close()
-			if err := scan(rows.Next, rows.Scan); err != nil {
+			return drain(rows)
+		})
+	} else {
+		err = d.sqliteDB.read(ctx, "copy", func(tx *sql.Tx) error {
+			rows, err := tx.QueryContext(ctx, q)
+			if err != nil {
 				return err
 			}
-			return rows.Err()
+			defer rows.Close()
+			return drain(rows)
 		})
-		return out, err
 	}
-	err := d.sqliteDB.read(ctx, "copy", func(tx *sql.Tx) error {
-		rows, err := tx.QueryContext(ctx, q)
-		if err != nil {
-			return err
-		}
-		defer rows.Close()
-		if err := scan(rows.Next, rows.Scan); err != nil {
-			return err
-		}
-		return rows.Err()
-	})
 	return out, err
 }
 
