@@ -214,8 +214,12 @@ func (x *planService) MakePlan(ctx context.Context, req *nightloomv1.MakePlanReq
 
 	resp := &nightloomv1.MakePlanResponse{}
 	for _, sp := range spans {
+		programs, err := x.s.planPrograms(ctx, site.pb.GetId(), sp.start)
+		if err != nil {
+			return nil, err
+		}
 		job := &planJob{site: site, start: sp.start, end: sp.end, from: sp.start, closures: cls,
-			args: perNight, origin: nightloomv1.PlanOrigin_PLAN_ORIGIN_MAKE_PLAN}
+			args: perNight, origin: nightloomv1.PlanOrigin_PLAN_ORIGIN_MAKE_PLAN, programs: programs}
 		if byNight {
 			job.night = dateOf(sp.date)
 		}
@@ -613,8 +617,13 @@ func (s *Server) replanLocked(ctx context.Context, site *siteModel, old *nightlo
 		}
 		blocks = in
 	}
+	programs, err := s.planPrograms(ctx, site.pb.GetId(), start)
+	if err != nil {
+		return nil, replanOutcome{}, err
+	}
 	job := &planJob{site: site, start: start, end: end, from: from, night: old.GetNight(), closures: cls,
-		blocks: blocks, kept: kept, inProgress: inProgress, previous: previous, args: args, origin: origin}
+		blocks: blocks, kept: kept, inProgress: inProgress, previous: previous, args: args, origin: origin,
+		programs: programs}
 	began := time.Now()
 	body, err := s.planner.plan(ctx, job)
 	s.metrics.observeSolve(strings.ToLower(strings.TrimPrefix(origin.String(), "PLAN_ORIGIN_")), time.Since(began))
