@@ -45,6 +45,7 @@ func runBlockQueue(args []string, stdout, stderr io.Writer) error {
 	r := newRemote("block queue", stderr)
 	file := r.fs.String("file", "", "QueueBlocksRequest as protobuf JSON (- for stdin); required")
 	site := r.fs.String("site", "", "site id for blocks whose siteId is empty")
+	program := r.fs.String("program", "", "name of the program whose time the blocks spend, for blocks whose program is empty")
 	if err := parseFlags(r.fs, args); err != nil {
 		return err
 	}
@@ -54,6 +55,13 @@ func runBlockQueue(args []string, stdout, stderr io.Writer) error {
 	req := &pb.QueueBlocksRequest{}
 	if err := readRequest(*file, req); err != nil {
 		return err
+	}
+	if *program != "" {
+		for _, b := range req.GetBlocks() {
+			if b.GetProgram() == "" {
+				b.Program = *program
+			}
+		}
 	}
 	a, err := r.conn.dial(stderr)
 	if err != nil {
