@@ -16,6 +16,7 @@ import (
 	"os/exec"
 	"path/filepath"
 	"regexp"
+	"strconv"
 	"strings"
 	"sync"
 	"testing"
@@ -532,6 +533,14 @@ func mustRead(t *testing.T, path string) string {
 	return string(b)
 }
 
+// Demo figures that issue 12 asks for (its "done when").
+const (
+	minDemoCadenceRuns = 4
+	minDemoKeptShare   = 0.70
+)
+
+func atoi(s string) int { n, _ := strconv.Atoi(s); return n }
+
 // The demo end to end, as `go run ./cmd/nightloom demo` runs it: plan,
 // unplaced blocks with reasons, chart, interruption, replan.
 func TestDemo(t *testing.T) {
@@ -558,6 +567,23 @@ func TestDemo(t *testing.T) {
 		t.Errorf("demo output lacks the last run's end and civil dawn")
 	} else if !strings.HasPrefix(m[1], "Comet") || m[2] > m[3] {
 		t.Errorf("last run %s ends %s, civil dawn %s: want the comet, ending before dawn", m[1], m[2], m[3])
+	}
+	// Issue 12's figures: the variable star's light curve gets at least 4
+	// runs in both plans, and the replan keeps at least 70 % of the old
+	// runs that are still feasible.
+	series := regexp.MustCompile(`NLV 59\s+2h00m\s+(\d+)\s`).FindAllStringSubmatch(r.stdout, -1)
+	if len(series) != 2 {
+		t.Errorf("demo output has %d cadence series of NLV 59, want 2 (plan and replan)", len(series))
+	}
+	for i, m := range series {
+		if n, _ := strconv.Atoi(m[1]); n < minDemoCadenceRuns {
+			t.Errorf("plan %d: the variable star gets %d runs, want at least %d", i+1, n, minDemoCadenceRuns)
+		}
+	}
+	if m := regexp.MustCompile(`(\d+) of (\d+) still feasible kept`).FindStringSubmatch(r.stdout); m == nil {
+		t.Errorf("demo output lacks the replan's kept runs")
+	} else if kept, feasible := atoi(m[1]), atoi(m[2]); feasible == 0 || float64(kept) < minDemoKeptShare*float64(feasible) {
+		t.Errorf("replan kept %d of %d still-feasible runs, want at least %.0f %%", kept, feasible, 100*minDemoKeptShare)
 	}
 	if elapsed > 20*time.Second {
 		t.Errorf("demo took %v, want under 20 s", elapsed)
