@@ -171,6 +171,42 @@ func TestProgramsFairShareEndToEnd(t *testing.T) {
 			t.Errorf("%s: period starts %v, want 2031-03-01", name, got)
 		}
 	}
+	// The telescope stops the first run of "under" halfway (clouds) and
+	// reports the frames it kept; a replan from then starts from that use
+	// and still adds up.
+	var first *nightloomv1.Assignment
+	for _, a := range plan.GetAssignments() {
+		if a.GetBlockId() == underBlk.GetId() {
+			first = a
+			break
+		}
+	}
+	kept := first.GetFrames() / 2
+	stop := first.GetStart().AsTime().Add(time.Duration(kept) * (first.GetExposure().AsDuration() + in.GetReadout().AsDuration()))
+	e.clock.Set(stop.Add(time.Minute))
+	if _, err := e.queue.ReportProgress(as(RoleTelescope, e), &nightloomv1.ReportProgressRequest{Report: &nightloomv1.ProgressReport{
+		ReportId: "run-1", BlockId: first.GetBlockId(), FramesKept: kept, Outcome: nightloomv1.ProgressOutcome_PROGRESS_OUTCOME_INTERRUPTED,
+		Interval: &nightloomv1.TimeInterval{Start: first.GetStart(), End: ts(stop)}, PlanId: plan.GetId()}}); err != nil {
+		t.Fatal(err)
+	}
+	rp, err := e.plans.Replan(op, &nightloomv1.ReplanRequest{SiteId: site, From: ts(stop), TimeBudget: dur(0)})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var rsum time.Duration
+	for _, c := range rp.GetPlan().GetCharges() {
+		rsum += c.GetExposure().AsDuration() + c.GetOverheads().AsDuration()
+		if c.GetProgram() == "under" {
+			if want := stop.Sub(first.GetStart().AsTime()); c.GetUsed().AsDuration() != want {
+				t.Errorf("replan: under used %v before it, want the reported run's %v", c.GetUsed().AsDuration(), want)
+			}
+		}
+	}
+	ro := rp.GetPlan().GetObjective()
+	if want := ro.GetExposureTime().AsDuration() + ro.GetOverheadTime().AsDuration(); !near(rsum, want) || rsum == 0 {
+		t.Errorf("replan: charges add up to %v; its exposure plus overheads are %v (tolerance %v)", rsum, want, chargeTolerance)
+	}
+
 	// A month later the allocation renewed: nothing used, no current plan.
 	u, err = programs.GetProgramUsage(as(RoleViewer, e), &nightloomv1.GetProgramUsageRequest{At: ts(t0.AddDate(0, 1, 0))})
 	if err != nil {
