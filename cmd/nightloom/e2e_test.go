@@ -435,6 +435,9 @@ func TestClientErrors(t *testing.T) {
 	badLat := write("lat.json", strings.Replace(mustRead(t, demoFile("site.json")), `"latitudeDeg": 44.12`, `"latitudeDeg": 95`, 1))
 	badRef := write("blocks.json", `{"blocks": [{"targetId": "@No Such Target", "filter": "L", "exposure": "60s", "framesWanted": 1, "priority": 1}]}`)
 	missing := filepath.Join(dir, "missing.json")
+	var ptr pb.CreateTargetResponse
+	parse(t, d.cli(t, "target", "create", "--name", "NLD 7001", "--ra", "10", "--dec", "40", "--json").ok(t, "target create").stdout, &ptr)
+	oneBlock := write("one.json", `{"blocks": [{"targetId": "`+ptr.GetTarget().GetId()+`", "filter": "L", "exposure": "60s", "framesWanted": 1, "priority": 1}]}`)
 
 	cases := []struct {
 		name  string
@@ -458,6 +461,13 @@ func TestClientErrors(t *testing.T) {
 		{"server field violation", []string{"site", "create", "--file", badLat}, 1, []string{"CreateSite: INVALID_ARGUMENT", "field site.latitude_deg"}},
 		{"server not found", []string{"plan", "show", "--plan", "no-such-plan"}, 1, []string{"GetPlan: NOT_FOUND"}},
 		{"bad make-plan limit", []string{"plan", "make", "--site", site, "--night", "2027-01-14", "--step", "5s"}, 1, []string{"INVALID_ARGUMENT", "field grid_step"}},
+		{"program without a name", []string{"program", "create", "--allocation", "2h", "--period", "month"}, 2, []string{"flag --name"}},
+		{"program bad period", []string{"program", "create", "--name", "x", "--allocation", "2h", "--period", "weekly"}, 2, []string{"flag --period", "weekly"}},
+		{"program fixed without dates", []string{"program", "create", "--name", "x", "--allocation", "2h", "--period", "fixed"}, 2, []string{"flag --from"}},
+		{"program bad date", []string{"program", "create", "--name", "x", "--allocation", "2h", "--period", "fixed", "--from", "2027-13-01", "--to", "2027-02-01"}, 2, []string{"flag --from"}},
+		{"program update of nothing", []string{"program", "update", "--name", "x"}, 2, []string{"nothing to change"}},
+		{"program server field violation", []string{"program", "create", "--name", "my share", "--allocation", "2h", "--period", "month"}, 1, []string{"CreateProgram: INVALID_ARGUMENT", "field program.name"}},
+		{"queue for an unknown program", []string{"block", "queue", "--file", oneBlock, "--site", site, "--program", "nosuch"}, 1, []string{"INVALID_ARGUMENT", "field blocks[0].program", "program \"nosuch\" does not exist"}},
 	}
 	for _, c := range cases {
 		r := d.cli(t, c.args...)
