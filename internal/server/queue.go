@@ -422,12 +422,16 @@ func (x *queueService) ReportProgress(ctx context.Context, req *nightloomv1.Repo
 	if err != nil {
 		return nil, err
 	}
-	// Exposure is what the run charges to the block's program (with the
-	// rest of the interval as overheads; program.proto).
+	setup, err := x.s.reportSetup(ctx, r, start, end)
+	if err != nil {
+		return nil, err
+	}
+	// Exposure is what the run charges to the block's program, with the
+	// rest of the interval and the setup as overheads (program.proto).
 	after, dup, err := x.s.db.ReportProgress(ctx, store.ProgressReport{
 		ReportID: r.GetReportId(), BlockID: r.GetBlockId(), FramesKept: int(r.GetFramesKept()),
 		Start: start, End: end, Outcome: r.GetOutcome().String(),
-		Exposure: time.Duration(r.GetFramesKept()) * exposure,
+		Exposure: time.Duration(r.GetFramesKept()) * exposure, Setup: setup,
 	})
 	if errors.Is(err, store.ErrConflict) {
 		return nil, status.Errorf(codes.AlreadyExists, "report_id %q was used before with different content", r.GetReportId())
@@ -482,4 +486,40 @@ func (s *Server) checkBlockProgram(ctx context.Context, v *violations, path stri
 		v.add(path, "program %q is held to site %s, not %s", name, p.GetSiteId(), b.GetSiteId())
 	}
 	return nil
+}
+
+// reportSetup is the setup (slew, settle, filter change, focus, acquisition)
+// before a reported run, as the plan the report names predicted it: the
+// time from prepare_start to start of that plan's assignment of the block
+// that overlaps the reported interval (the one starting nearest to it). It
+// is 0 when the report names no plan, the plan is unknown, and when no
+// assignment matches: the report's interval alone is charged then.
+func (s *Server) reportSetup(ctx context.Context, r *nightloomv1.ProgressReport, start, end time.Time) (time.Duration, error) {
+	if r.GetPlanId() == "" {
+		return 0, nil
+	}
+	rec, err := s.db.GetPlan(ctx, r.GetPlanId())
+	if errors.Is(err, store.ErrNotFound) {
+		return 0, nil
+	}
+	if err != nil {
+		return 0, err
+	}
+	p, err := planFromRecord(rec)
+	if err != nil {
+		return 0, err
+	}
+	var best *nightloomv1.Assignment
+	for _, a := range p.GetAssignments() {
+		if a.GetBlockId() != r.GetBlockId() || !overlaps(a.GetStart().AsTime(), a.GetEnd().AsTime(), start, end) {
+			continue
+		}
+		if best == nil || a.GetStart().AsTime().Sub(start).Abs() < best.GetStart().AsTime().Sub(start).Abs() {
+			best = a
+		}
+	}
+	if best == nil || best.GetPrepareStart() == nil {
+		return 0, nil
+	}
+	return max(0, best.GetStart().AsTime().Sub(best.GetPrepareStart().AsTime())), nil
 }

@@ -63,13 +63,13 @@ func scanCharge(s scanner) (Charge, error) {
 	return x, nil
 }
 
-// charge splits a report's interval into the exposure and the overheads it
-// charges to the block's program: Exposure capped at the interval, and the
-// rest of the interval.
+// charge splits what a report charges to the block's program into exposure
+// (Exposure capped at the interval) and overheads (the rest of the
+// interval, plus Setup).
 func (r ProgressReport) charge() (exposure, overheads time.Duration) {
 	span := r.End.Sub(r.Start)
 	exposure = min(max(r.Exposure, 0), span)
-	return exposure, span - exposure
+	return exposure, span - exposure + max(r.Setup, 0)
 }
 
 // CreateProgram stores a new program. The store sets CreatedAt, UpdatedAt

@@ -27,6 +27,11 @@ type ProgressReport struct {
 	// of the interval. Not stored with the report, not part of its
 	// identity.
 	Exposure time.Duration
+	// Setup is the time spent getting to the run (slew, settle, filter
+	// change, focus, acquisition) when the caller knows it, charged as
+	// overheads on top of the interval; like Exposure, not stored with the
+	// report.
+	Setup time.Duration
 }
 
 const reportCols = `report_id, block_id, frames_kept, frames_applied, start_at, end_at, outcome, received_at`
@@ -51,9 +56,9 @@ func scanReport(s scanner) (ProgressReport, error) {
 // frames were taken), adding what is still missing and leaving the state
 // alone.
 //
-// When the block has a program, the report charges it (ProgramUsage) in the
-// same transaction: Exposure, capped at the interval, and the rest of the
-// interval as overheads.
+// When the block has a program, the report charges it (ProgramCharges) in
+// the same transaction: Exposure, capped at the interval, and as overheads
+// the rest of the interval plus Setup.
 //
 // Reports are idempotent on ReportID: a report whose id is stored already,
 // with the same block, frames, interval and outcome, changes nothing and

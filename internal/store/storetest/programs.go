@@ -109,9 +109,10 @@ func testProgramCharges(t *testing.T, db *store.DB) {
 	if !dup {
 		t.Fatal("second r1 is not a duplicate")
 	}
-	// An exposure longer than the interval is capped at it.
+	// An exposure longer than the interval is capped at it; a setup is
+	// charged as overheads on top.
 	r2 := report("r2", "b1", 2)
-	r2.Start, r2.End, r2.Exposure = t0.Add(time.Hour), t0.Add(time.Hour+90*time.Second), 2*time.Minute
+	r2.Start, r2.End, r2.Exposure, r2.Setup = t0.Add(time.Hour), t0.Add(time.Hour+90*time.Second), 2*time.Minute, 45*time.Second
 	_, _, err = db.ReportProgress(ctx, r2)
 	noErr(t, "report r2", err)
 	r3 := report("r3", "b2", 4)
@@ -123,7 +124,7 @@ func testProgramCharges(t *testing.T, db *store.DB) {
 	noErr(t, "charges", err)
 	want := []store.Charge{
 		{ReportID: "r1", Program: "alpha", BlockID: "b1", Start: t0, Exposure: 5 * time.Minute, Overheads: 2 * time.Minute},
-		{ReportID: "r2", Program: "alpha", BlockID: "b1", Start: t0.Add(time.Hour), Exposure: 90 * time.Second},
+		{ReportID: "r2", Program: "alpha", BlockID: "b1", Start: t0.Add(time.Hour), Exposure: 90 * time.Second, Overheads: 45 * time.Second},
 	}
 	if len(cs) != len(want) {
 		t.Fatalf("charges %+v, want %+v", cs, want)

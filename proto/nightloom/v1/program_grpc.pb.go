@@ -6,10 +6,11 @@
 // Charged time. Every accepted progress report of a block with a program
 // charges the program with the run's time: exposure (frames kept times the
 // block's exposure) plus overheads (the rest of the reported interval:
-// readouts, dithers, flips inside the run). A plan charges its programs the
-// same way for the runs it plans, with the setup before each run (slew,
-// settle, filter change, focus, acquisition) counted as overheads too
-// (Plan.charges). Time when nothing runs is nobody's.
+// readouts, dithers, flips inside the run; and, when the report names its
+// plan, the setup before the run as that plan's assignment had it). A plan
+// charges its programs the same way for the runs it plans, with the setup
+// before each run (slew, settle, filter change, focus, acquisition) counted
+// as overheads too (Plan.charges). Time when nothing runs is nobody's.
 //
 // Fair share. When a site is planned, each program's blocks carry the
 // factor f = clamp(1 + w * (1 - used / allocation), 0.25, 2) on every part
