@@ -119,7 +119,9 @@ type Program struct {
 	// required for that kind and refused for the others.
 	FixedPeriod *TimeInterval `protobuf:"bytes,5,opt,name=fixed_period,json=fixedPeriod,proto3" json:"fixed_period,omitempty"`
 	// When set, only blocks of this site may spend the program's time;
-	// empty for a program open to every site.
+	// empty for a program open to every site. Checked when a block is
+	// queued: a change does not touch blocks already queued (those of
+	// another site then plan at fair-share factor 1).
 	SiteId string `protobuf:"bytes,6,opt,name=site_id,json=siteId,proto3" json:"site_id,omitempty"`
 	// When the program was created. Output only.
 	CreateTime *timestamppb.Timestamp `protobuf:"bytes,7,opt,name=create_time,json=createTime,proto3" json:"create_time,omitempty"`
