@@ -213,8 +213,9 @@ func (x *planService) MakePlan(ctx context.Context, req *nightloomv1.MakePlanReq
 	cls := mergeClosures(req.GetClosures())
 
 	resp := &nightloomv1.MakePlanResponse{}
+	var planned []plannedCharge // what earlier nights of this call charge
 	for _, sp := range spans {
-		programs, err := x.s.planPrograms(ctx, site.pb.GetId(), sp.start)
+		programs, err := x.s.planPrograms(ctx, site.pb.GetId(), sp.start, planned)
 		if err != nil {
 			return nil, err
 		}
@@ -273,6 +274,7 @@ func (x *planService) MakePlan(ctx context.Context, req *nightloomv1.MakePlanReq
 			return nil, err
 		}
 		resp.Plans = append(resp.Plans, stored)
+		planned = append(planned, chargesPlanned(stored)...)
 		// Later nights count this night's assignments as done.
 		byID := map[string]*planBlock{}
 		for _, b := range blocks {
@@ -617,7 +619,7 @@ func (s *Server) replanLocked(ctx context.Context, site *siteModel, old *nightlo
 		}
 		blocks = in
 	}
-	programs, err := s.planPrograms(ctx, site.pb.GetId(), start)
+	programs, err := s.planPrograms(ctx, site.pb.GetId(), start, nil)
 	if err != nil {
 		return nil, replanOutcome{}, err
 	}

@@ -307,17 +307,44 @@ func (s *Server) programStates(ctx context.Context, site string, t time.Time) ([
 	}
 }
 
+// plannedCharge is what an earlier night of the same MakePlan call charges
+// a program: the time, and the start of that night's plan.
+type plannedCharge struct {
+	program string
+	at      time.Time
+	charged time.Duration
+}
+
+// chargesPlanned lists what a plan body charges per named program.
+func chargesPlanned(body *nightloomv1.Plan) []plannedCharge {
+	var out []plannedCharge
+	for _, c := range body.GetCharges() {
+		if c.GetProgram() != "" {
+			out = append(out, plannedCharge{program: c.GetProgram(), at: body.GetInterval().GetStart().AsTime(),
+				charged: c.GetExposure().AsDuration() + c.GetOverheads().AsDuration()})
+		}
+	}
+	return out
+}
+
 // planPrograms is what the scheduler needs of the programs for a plan of
 // site starting at t: each program's allocation for its period at t and
-// the time used in it.
-func (s *Server) planPrograms(ctx context.Context, site string, t time.Time) ([]scheduler.Program, error) {
+// the time used in it, from the reports plus what earlier nights of the
+// same call plan in that period (earlier; nil for none).
+func (s *Server) planPrograms(ctx context.Context, site string, t time.Time, earlier []plannedCharge) ([]scheduler.Program, error) {
 	states, err := s.programStates(ctx, site, t)
 	if err != nil {
 		return nil, err
 	}
 	out := make([]scheduler.Program, len(states))
 	for i, ps := range states {
-		out[i] = scheduler.Program{Name: ps.pb.GetName(), Allocation: ps.allocation, Used: ps.exposure + ps.overheads}
+		used := ps.exposure + ps.overheads
+		for _, c := range earlier {
+			if ps.inPeriod && c.program == ps.pb.GetName() && !c.at.Before(ps.start) && c.at.Before(ps.end) {
+				used += c.charged
+			}
+		}
+		out[i] = scheduler.Program{Name: ps.pb.GetName(), Allocation: ps.allocation, Used: used}
 	}
 	return out, nil
 }

@@ -331,3 +331,46 @@ func TestProgramValidation(t *testing.T) {
 		t.Errorf("withdrawn block after its program's deletion: program %q, err %v; want none", gb.GetBlock().GetProgram(), err)
 	}
 }
+
+// TestProgramsAcrossNights: a MakePlan of several nights counts what its
+// earlier nights plan for a program as used by the later ones, so a
+// program's share falls night by night as its allocation is planned away.
+func TestProgramsAcrossNights(t *testing.T) {
+	e := newEnv(t, "", func(c *Config) { c.ReplanPriority = -1 })
+	f := e.seed(t, 0)
+	site := f.site.GetId()
+	programs := nightloomv1.NewProgramServiceClient(e.conn)
+	if _, err := programs.CreateProgram(e.admin(), &nightloomv1.CreateProgramRequest{Program: testProgram("club", 4*time.Hour)}); err != nil {
+		t.Fatal(err)
+	}
+	b := testBlock(site, f.targets[0].GetId(), "L", 400, 5)
+	b.Program = "club"
+	op := as(RoleOperator, e)
+	if _, err := e.queue.QueueBlocks(op, &nightloomv1.QueueBlocksRequest{Blocks: []*nightloomv1.Block{b}}); err != nil {
+		t.Fatal(err)
+	}
+	mp, err := e.plans.MakePlan(op, &nightloomv1.MakePlanRequest{SiteId: site, Span: &nightloomv1.MakePlanRequest_Night{Night: testNight},
+		Nights: 3, LookaheadNights: proto.Int32(0), TimeBudget: dur(0)})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var before time.Duration // planned by the earlier nights
+	for i, p := range mp.GetPlans() {
+		if len(p.GetCharges()) != 1 || p.GetCharges()[0].GetProgram() != "club" {
+			t.Fatalf("night %d: charges %v, want club's alone", i+1, p.GetCharges())
+		}
+		c := p.GetCharges()[0]
+		if c.GetUsed().AsDuration() != before {
+			t.Errorf("night %d: used before it %v, want what the earlier nights plan, %v", i+1, c.GetUsed().AsDuration(), before)
+		}
+		// Fair-share factor, program.proto, with the allocation of 4 h.
+		want := min(2, max(0.25, 1+0.5*(1-before.Seconds()/(4*time.Hour).Seconds())))
+		if d := c.GetFairShare() - want; d > 1e-12 || d < -1e-12 {
+			t.Errorf("night %d: fair share %v, want %v", i+1, c.GetFairShare(), want)
+		}
+		before += c.GetExposure().AsDuration() + c.GetOverheads().AsDuration()
+	}
+	if before == 0 {
+		t.Fatal("the nights plan nothing for club")
+	}
+}

@@ -15,7 +15,8 @@
 // Fair share. When a site is planned, each program's blocks carry the
 // factor f = clamp(1 + w * (1 - used / allocation), 0.25, 2) on every part
 // of their value, with used the time charged to the program in its current
-// period before the plan and w the fair-share weight (0.5): above 1 under
+// period before the plan (a MakePlan of several nights counts its earlier
+// nights' charges too) and w the fair-share weight (0.5): above 1 under
 // the allocation, below 1 over it, so that at equal priority a program under
 // its allocation gets the time first. A block without a program, or whose
 // program has no period containing the plan's start, plans at f = 1.
