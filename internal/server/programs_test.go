@@ -374,3 +374,44 @@ func TestProgramsAcrossNights(t *testing.T) {
 		t.Fatal("the nights plan nothing for club")
 	}
 }
+
+// FuzzProgram feeds arbitrary CreateProgramRequest bytes to the program
+// validator: it must not panic, and a program it accepts has a period that
+// contains its own start (a fixed program's interval start, or any instant
+// for a monthly one) and no period longer than MaxFixedPeriod.
+func FuzzProgram(f *testing.F) {
+	for _, p := range []*nightloomv1.Program{
+		testProgram("club", 20*time.Hour),
+		{Name: "thesis", Allocation: dur(6 * time.Hour), Period: nightloomv1.PeriodKind_PERIOD_KIND_FIXED, SiteId: "site-1",
+			FixedPeriod: &nightloomv1.TimeInterval{Start: ts(time.Date(2026, 10, 1, 0, 0, 0, 0, time.UTC)), End: ts(time.Date(2027, 4, 1, 0, 0, 0, 0, time.UTC))}},
+	} {
+		b, err := proto.Marshal(&nightloomv1.CreateProgramRequest{Program: p})
+		if err != nil {
+			f.Fatal(err)
+		}
+		f.Add(b)
+	}
+	f.Fuzz(func(t *testing.T, data []byte) {
+		var req nightloomv1.CreateProgramRequest
+		if proto.Unmarshal(data, &req) != nil {
+			return
+		}
+		var v violations
+		checkProgram(&v, "program", req.GetProgram())
+		if !v.ok() {
+			return
+		}
+		p := req.GetProgram()
+		at := time.Date(2031, 3, 15, 0, 0, 0, 0, time.UTC)
+		if p.GetPeriod() == nightloomv1.PeriodKind_PERIOD_KIND_FIXED {
+			at = p.GetFixedPeriod().GetStart().AsTime()
+		}
+		start, end, ok := programPeriod(p, at)
+		if !ok || start.After(at) || !end.After(at) || end.Sub(start) > MaxFixedPeriod {
+			t.Fatalf("accepted program %v: period at %v is %v..%v (ok %v)", p, at, start, end, ok)
+		}
+		if p.GetAllocation().AsDuration() <= 0 {
+			t.Fatalf("accepted program %v with allocation %v", p, p.GetAllocation().AsDuration())
+		}
+	})
+}
