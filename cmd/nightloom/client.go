@@ -78,7 +78,9 @@ type api struct {
 	queue   pb.QueueServiceClient
 	plans   pb.PlanServiceClient
 	sky     pb.SkyServiceClient
-	timeout time.Duration
+	// programs keeps the programs of a shared telescope.
+	programs pb.ProgramServiceClient
+	timeout  time.Duration
 	// tlsOn and clientCert: how the connection was made (for messages).
 	tlsOn, clientCert bool
 }
@@ -183,13 +185,14 @@ func keyFileWarning(path string) string {
 
 func newAPI(cc *grpc.ClientConn, timeout time.Duration) *api {
 	return &api{
-		cc:      cc,
-		sites:   pb.NewSiteServiceClient(cc),
-		targets: pb.NewTargetServiceClient(cc),
-		queue:   pb.NewQueueServiceClient(cc),
-		plans:   pb.NewPlanServiceClient(cc),
-		sky:     pb.NewSkyServiceClient(cc),
-		timeout: timeout,
+		cc:       cc,
+		sites:    pb.NewSiteServiceClient(cc),
+		targets:  pb.NewTargetServiceClient(cc),
+		queue:    pb.NewQueueServiceClient(cc),
+		plans:    pb.NewPlanServiceClient(cc),
+		sky:      pb.NewSkyServiceClient(cc),
+		programs: pb.NewProgramServiceClient(cc),
+		timeout:  timeout,
 	}
 }
 

@@ -45,6 +45,7 @@ func runBlockQueue(args []string, stdout, stderr io.Writer) error {
 	r := newRemote("block queue", stderr)
 	file := r.fs.String("file", "", "QueueBlocksRequest as protobuf JSON (- for stdin); required")
 	site := r.fs.String("site", "", "site id for blocks whose siteId is empty")
+	program := r.fs.String("program", "", "name of the program whose time the blocks spend, for blocks whose program is empty")
 	if err := parseFlags(r.fs, args); err != nil {
 		return err
 	}
@@ -54,6 +55,13 @@ func runBlockQueue(args []string, stdout, stderr io.Writer) error {
 	req := &pb.QueueBlocksRequest{}
 	if err := readRequest(*file, req); err != nil {
 		return err
+	}
+	if *program != "" {
+		for _, b := range req.GetBlocks() {
+			if b.GetProgram() == "" {
+				b.Program = *program
+			}
+		}
 	}
 	a, err := r.conn.dial(stderr)
 	if err != nil {
@@ -291,7 +299,16 @@ func runBlockWithdraw(args []string, stdout, stderr io.Writer) error {
 
 func printBlocks(w io.Writer, blocks []*pb.Block, names map[string]string) error {
 	tw := newTable(w)
-	fmt.Fprintln(tw, "id\ttarget\tfilter\texposure\tframes done/wanted\trun frames\tpriority\tstate\tnights\tcadence\tlabel")
+	// A program column only when some block spends a program's time.
+	programs := false
+	for _, b := range blocks {
+		programs = programs || b.GetProgram() != ""
+	}
+	progHead := ""
+	if programs {
+		progHead = "\tprogram"
+	}
+	fmt.Fprintln(tw, "id\ttarget\tfilter\texposure\tframes done/wanted\trun frames\tpriority\tstate\tnights\tcadence"+progHead+"\tlabel")
 	for _, b := range blocks {
 		name := names[b.GetTargetId()]
 		if name == "" {
@@ -309,9 +326,13 @@ func printBlocks(w io.Writer, blocks []*pb.Block, names map[string]string) error
 		if c := b.GetCadence(); c != nil {
 			cad = "every " + dur(c.GetInterval()) + " ±" + dur(c.GetTolerance())
 		}
-		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%d/%d\t%s\t%d\t%s\t%s\t%s\t%s\n", b.GetId(), name, b.GetFilter(), dur(b.GetExposure()),
+		prog := ""
+		if programs {
+			prog = "\t" + b.GetProgram()
+		}
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%d/%d\t%s\t%d\t%s\t%s\t%s%s\t%s\n", b.GetId(), name, b.GetFilter(), dur(b.GetExposure()),
 			b.GetFramesDone(), b.GetFramesWanted(), run, b.GetPriority(), enumName(b.GetState().String(), "BLOCK_STATE_"),
-			nights, cad, b.GetLabel())
+			nights, cad, prog, b.GetLabel())
 	}
 	if len(blocks) == 0 {
 		fmt.Fprintln(tw, "(no blocks)")

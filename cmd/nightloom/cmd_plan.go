@@ -740,6 +740,9 @@ func printPlan(w io.Writer, p *pb.Plan, pc *planContext, after *time.Time) error
 			return err
 		}
 	}
+	if err := printCharges(w, p.GetCharges()); err != nil {
+		return err
+	}
 	if o := p.GetObjective(); o != nil {
 		fmt.Fprintf(w, "\nexposure %s, overheads %s, idle %s; objective %.0f (weighted exposure %.0f + cadence points %.0f + completion bonus %.0f)\n",
 			dur(o.GetExposureTime()), dur(o.GetOverheadTime()), dur(o.GetIdleTime()), o.GetTotal(), o.GetWeightedExposure(),

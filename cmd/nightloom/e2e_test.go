@@ -16,6 +16,7 @@ import (
 	"os/exec"
 	"path/filepath"
 	"regexp"
+	"strconv"
 	"strings"
 	"sync"
 	"testing"
@@ -434,6 +435,9 @@ func TestClientErrors(t *testing.T) {
 	badLat := write("lat.json", strings.Replace(mustRead(t, demoFile("site.json")), `"latitudeDeg": 44.12`, `"latitudeDeg": 95`, 1))
 	badRef := write("blocks.json", `{"blocks": [{"targetId": "@No Such Target", "filter": "L", "exposure": "60s", "framesWanted": 1, "priority": 1}]}`)
 	missing := filepath.Join(dir, "missing.json")
+	var ptr pb.CreateTargetResponse
+	parse(t, d.cli(t, "target", "create", "--name", "NLD 7001", "--ra", "10", "--dec", "40", "--json").ok(t, "target create").stdout, &ptr)
+	oneBlock := write("one.json", `{"blocks": [{"targetId": "`+ptr.GetTarget().GetId()+`", "filter": "L", "exposure": "60s", "framesWanted": 1, "priority": 1}]}`)
 
 	cases := []struct {
 		name  string
@@ -457,6 +461,13 @@ func TestClientErrors(t *testing.T) {
 		{"server field violation", []string{"site", "create", "--file", badLat}, 1, []string{"CreateSite: INVALID_ARGUMENT", "field site.latitude_deg"}},
 		{"server not found", []string{"plan", "show", "--plan", "no-such-plan"}, 1, []string{"GetPlan: NOT_FOUND"}},
 		{"bad make-plan limit", []string{"plan", "make", "--site", site, "--night", "2027-01-14", "--step", "5s"}, 1, []string{"INVALID_ARGUMENT", "field grid_step"}},
+		{"program without a name", []string{"program", "create", "--allocation", "2h", "--period", "month"}, 2, []string{"flag --name"}},
+		{"program bad period", []string{"program", "create", "--name", "x", "--allocation", "2h", "--period", "weekly"}, 2, []string{"flag --period", "weekly"}},
+		{"program fixed without dates", []string{"program", "create", "--name", "x", "--allocation", "2h", "--period", "fixed"}, 2, []string{"flag --from"}},
+		{"program bad date", []string{"program", "create", "--name", "x", "--allocation", "2h", "--period", "fixed", "--from", "2027-13-01", "--to", "2027-02-01"}, 2, []string{"flag --from"}},
+		{"program update of nothing", []string{"program", "update", "--name", "x"}, 2, []string{"nothing to change"}},
+		{"program server field violation", []string{"program", "create", "--name", "my share", "--allocation", "2h", "--period", "month"}, 1, []string{"CreateProgram: INVALID_ARGUMENT", "field program.name"}},
+		{"queue for an unknown program", []string{"block", "queue", "--file", oneBlock, "--site", site, "--program", "nosuch"}, 1, []string{"INVALID_ARGUMENT", "field blocks[0].program", "program \"nosuch\" does not exist"}},
 	}
 	for _, c := range cases {
 		r := d.cli(t, c.args...)
@@ -532,6 +543,14 @@ func mustRead(t *testing.T, path string) string {
 	return string(b)
 }
 
+// Demo figures that issue 12 asks for (its "done when").
+const (
+	minDemoCadenceRuns = 4
+	minDemoKeptShare   = 0.70
+)
+
+func atoi(s string) int { n, _ := strconv.Atoi(s); return n }
+
 // The demo end to end, as `go run ./cmd/nightloom demo` runs it: plan,
 // unplaced blocks with reasons, chart, interruption, replan.
 func TestDemo(t *testing.T) {
@@ -558,6 +577,23 @@ func TestDemo(t *testing.T) {
 		t.Errorf("demo output lacks the last run's end and civil dawn")
 	} else if !strings.HasPrefix(m[1], "Comet") || m[2] > m[3] {
 		t.Errorf("last run %s ends %s, civil dawn %s: want the comet, ending before dawn", m[1], m[2], m[3])
+	}
+	// Issue 12's figures: the variable star's light curve gets at least 4
+	// runs in both plans, and the replan keeps at least 70 % of the old
+	// runs that are still feasible.
+	series := regexp.MustCompile(`NLV 59\s+2h00m\s+(\d+)\s`).FindAllStringSubmatch(r.stdout, -1)
+	if len(series) != 2 {
+		t.Errorf("demo output has %d cadence series of NLV 59, want 2 (plan and replan)", len(series))
+	}
+	for i, m := range series {
+		if n, _ := strconv.Atoi(m[1]); n < minDemoCadenceRuns {
+			t.Errorf("plan %d: the variable star gets %d runs, want at least %d", i+1, n, minDemoCadenceRuns)
+		}
+	}
+	if m := regexp.MustCompile(`(\d+) of (\d+) still feasible kept`).FindStringSubmatch(r.stdout); m == nil {
+		t.Errorf("demo output lacks the replan's kept runs")
+	} else if kept, feasible := atoi(m[1]), atoi(m[2]); feasible == 0 || float64(kept) < minDemoKeptShare*float64(feasible) {
+		t.Errorf("replan kept %d of %d still-feasible runs, want at least %.0f %%", kept, feasible, 100*minDemoKeptShare)
 	}
 	if elapsed > 20*time.Second {
 		t.Errorf("demo took %v, want under 20 s", elapsed)

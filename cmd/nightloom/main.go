@@ -18,6 +18,7 @@
 //	nightloom block    queue|get|list|withdraw
 //	nightloom plan     make|show|list|replan|next|watch|chart
 //	nightloom progress report
+//	nightloom program  create|show|list|update|delete|usage
 //	nightloom ephemeris | visibility | events
 //
 // Input files are request messages of the API in the canonical protobuf
@@ -71,6 +72,7 @@ func commands() []command {
 		{name: "target", summary: "fixed, orbit and body targets: create, get, list, update, delete, import", sub: targetCommands()},
 		{name: "block", summary: "the queue of imaging blocks: queue, get, list, withdraw", sub: blockCommands()},
 		{name: "plan", summary: "plans: make, show, list, replan, next, watch, chart", sub: planCommands()},
+		{name: "program", summary: "programs of a shared telescope: create, show, list, update, delete, usage", sub: programCommands()},
 		{name: "comet", summary: "a comet's measured magnitudes: report, refit the magnitude law, history", sub: cometCommands()},
 		{name: "progress", summary: "progress reports from the telescope control software: report", sub: progressCommands()},
 		{name: "ephemeris", summary: "tabulate a target seen from a site (daemon)", run: runEphemeris},

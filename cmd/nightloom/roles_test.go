@@ -46,7 +46,9 @@ var commandRoles = map[string][]string{
 	"ephemeris":       {rViewer, rOperator, rAdmin}, "visibility": {rViewer, rOperator, rAdmin}, "events": {rViewer, rOperator, rAdmin},
 	"target import":   {rAdmin},
 	"comet magnitude": {rTelescope, rOperator, rAdmin}, "comet refit": {rOperator, rAdmin}, "comet history": {rViewer, rOperator, rAdmin},
-	"outlook": {rViewer, rOperator, rAdmin},
+	"outlook":        {rViewer, rOperator, rAdmin},
+	"program create": {rAdmin}, "program update": {rAdmin}, "program delete": {rAdmin},
+	"program show": {rViewer, rOperator, rAdmin}, "program list": {rViewer, rOperator, rAdmin}, "program usage": {rViewer, rOperator, rAdmin},
 }
 
 func TestCommandsByRole(t *testing.T) {
@@ -119,6 +121,13 @@ func TestCommandsByRole(t *testing.T) {
 		parse(t, d.cli(t, "block", "queue", "--file", oneBlock, "--site", sid, "--json").ok(t, "fresh block").stdout, &r)
 		return r.GetBlocks()[0].GetId()
 	}
+	freshProgram := func() string {
+		n++
+		name := fmt.Sprintf("share-%d", n)
+		d.cli(t, "program", "create", "--name", name, "--allocation", "10h", "--period", "month").ok(t, "fresh program")
+		return name
+	}
+	shared := freshProgram()
 	reportRun := map[string]int{rTelescope: 1, rOperator: 2, rAdmin: 3, rViewer: 4}
 	commands := map[string]func(role string) []string{
 		"site create": func(string) []string { return []string{"site", "create", "--file", demoFile("site.json")} },
@@ -189,8 +198,18 @@ func TestCommandsByRole(t *testing.T) {
 			at := fmt.Sprintf("2027-01-%02dT06:00:00Z", 10+reportRun[r])
 			return []string{"comet", "magnitude", "--target", cometID, "--at", at, "--mag", fmt.Sprint(5 + reportRun[r]), "--sigma-mag", "0.2"}
 		},
-		"comet refit":   func(string) []string { return []string{"comet", "refit", "--target", cometID} },
-		"comet history": func(string) []string { return []string{"comet", "history", "--target", cometID} },
+		"program create": func(r string) []string {
+			return []string{"program", "create", "--name", "club-" + r, "--allocation", "4h", "--period", "fixed", "--from", "2027-01-01", "--to", "2027-07-01"}
+		},
+		"program update": func(string) []string {
+			return []string{"program", "update", "--name", freshProgram(), "--allocation", "6h"}
+		},
+		"program delete": func(string) []string { return []string{"program", "delete", "--name", freshProgram()} },
+		"program show":   func(string) []string { return []string{"program", "show", "--name", shared} },
+		"program list":   func(string) []string { return []string{"program", "list"} },
+		"program usage":  func(string) []string { return []string{"program", "usage", "--at", "2027-01-15"} },
+		"comet refit":    func(string) []string { return []string{"comet", "refit", "--target", cometID} },
+		"comet history":  func(string) []string { return []string{"comet", "history", "--target", cometID} },
 		"outlook": func(string) []string {
 			return []string{"outlook", "--site", sid, "--target", cometID, "--from", "2027-01-14", "--nights", "2"}
 		},

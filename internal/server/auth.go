@@ -107,6 +107,13 @@ var methodRoles = map[string][]Role{
 	nightloomv1.ApparitionService_ReportMagnitudes_FullMethodName:  reporters,
 	nightloomv1.ApparitionService_RefitMagnitudeLaw_FullMethodName: planners,
 	nightloomv1.ApparitionService_MagnitudeHistory_FullMethodName:  readers,
+
+	nightloomv1.ProgramService_CreateProgram_FullMethodName:   administrator,
+	nightloomv1.ProgramService_GetProgram_FullMethodName:      readers,
+	nightloomv1.ProgramService_ListPrograms_FullMethodName:    readers,
+	nightloomv1.ProgramService_UpdateProgram_FullMethodName:   administrator,
+	nightloomv1.ProgramService_DeleteProgram_FullMethodName:   administrator,
+	nightloomv1.ProgramService_GetProgramUsage_FullMethodName: readers,
 }
 
 // MethodRoles returns the roles allowed to call a full method name, and

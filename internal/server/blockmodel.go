@@ -195,6 +195,9 @@ func checkBlockStatic(v *violations, path string, b *nightloomv1.Block) {
 		}
 	}
 	intRange(v, path+".dither_every_frames", int64(b.GetDitherEveryFrames()), 0, MaxDitherEvery)
+	if b.GetProgram() != "" {
+		checkProgramName(v, path+".program", b.GetProgram())
+	}
 }
 
 // checkBlockRefs validates what depends on the block's site and target:
@@ -225,6 +228,9 @@ func blockProto(rec store.Block, site *siteModel, now time.Time) (*nightloomv1.B
 	}
 	b.Id = rec.ID
 	b.SiteId, b.TargetId = rec.SiteID, rec.TargetID
+	// The store's reference is the truth: it is cleared when the program
+	// is deleted.
+	b.Program = rec.Program
 	b.FramesWanted, b.FramesDone = int32(rec.FramesWanted), int32(rec.FramesDone)
 	b.CreateTime, b.UpdateTime = timestamppb.New(rec.CreatedAt), timestamppb.New(rec.UpdatedAt)
 	switch rec.State {

@@ -33,14 +33,14 @@
 // base64url after "nlt_"; only their SHA-256 is stored, and neither the
 // token nor its hash is logged (logs name the token's id). The roles:
 //
-//   - viewer: Get/List of sites, targets, blocks and plans; SkyService;
-//     CatalogueService;
+//   - viewer: Get/List of sites, targets, blocks, plans and programs,
+//     GetProgramUsage; SkyService; CatalogueService;
 //     NextAssignment and WatchPlans (both read-only);
 //   - operator: what viewer may, plus QueueBlocks, WithdrawBlock,
 //     ReportProgress, MakePlan and Replan;
 //   - telescope: GetBlock, ListBlocks, GetPlan, ListPlans, NextAssignment,
 //     WatchPlans and ReportProgress;
-//   - admin: everything, sites and targets included.
+//   - admin: everything, sites, targets and programs included.
 //
 // methodRoles in auth.go is the one table; a method missing from it is
 // refused for everyone, and a test walks the service descriptors so that a

@@ -310,6 +310,13 @@ func (e *env) snapshot(t testing.TB) snapshot {
 	if err != nil {
 		t.Fatal(err)
 	}
+	programs, _, err := db.ListPrograms(ctx, store.Page{Size: store.MaxPageSize})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, x := range programs {
+		dig = append(dig, fmt.Sprintf("program %s %d %x", x.Name, x.Revision, x.Spec))
+	}
 	s.sites, s.targets, s.blocks, s.tokens = len(sites), len(targets), len(blocks), len(tokens)
 	s.digest = fmt.Sprint(dig)
 	return s

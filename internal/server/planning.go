@@ -59,6 +59,9 @@ type planJob struct {
 	previous   []*nightloomv1.Assignment // replans: the old version's runs after from, the starting timeline
 	args       planArgs
 	origin     nightloomv1.PlanOrigin
+	// programs are the allocations and use the fair-share factor balances
+	// (programs.go); nil when there are none.
+	programs []scheduler.Program
 	// report is set by the planner for a replan: what became of each of
 	// the old version's runs after from.
 	report *scheduler.ReplanReport
@@ -108,6 +111,7 @@ func schedBlock(b *planBlock, byNight bool) scheduler.Block {
 		FramesWanted: int(pb.GetFramesWanted()), FramesDone: b.framesDone,
 		MinRun: int(pb.GetMinRunFrames()), MaxRun: int(pb.GetMaxRunFrames()), DitherEvery: int(pb.GetDitherEveryFrames()),
 		Priority: float64(pb.GetPriority()), Set: set, NonSidereal: pb.GetNonSiderealTracking(),
+		Program: pb.GetProgram(),
 	}
 	if c := pb.GetCadence(); c != nil {
 		sb.Cadence = &scheduler.Cadence{Every: c.GetInterval().AsDuration(), Tolerance: c.GetTolerance().AsDuration()}
@@ -174,7 +178,8 @@ func (sp0 schedulerPlanner) plan(ctx context.Context, job *planJob) (*nightloomv
 	}
 	opts := scheduler.Options{Seed: uint64(job.args.seed), Budget: budget, Workers: runtime.GOMAXPROCS(0), Cancel: ctx.Done(),
 		LookaheadNights: max(1, job.args.lookahead)}
-	in := scheduler.Input{Site: site, Grid: grid, Blocks: blocks, Closures: closures, Executed: executed, From: from, Options: opts}
+	in := scheduler.Input{Site: site, Grid: grid, Blocks: blocks, Closures: closures, Executed: executed, From: from, Options: opts,
+		Programs: job.programs}
 	if job.args.lookahead > 0 && len(blocks) > 0 {
 		first := job.start.In(job.site.loc())
 		if job.night != nil {
@@ -262,6 +267,7 @@ func (sp0 schedulerPlanner) plan(ctx context.Context, job *planJob) (*nightloomv
 		Iterations: int64(sp.Iterations), Seed: job.args.seed, GridStep: durationpb.New(job.args.gridStep),
 		GridSteps: int32(grid.N), BlocksConsidered: int32(len(blocks)), StopReason: sp.Stopped}
 	body.Objective = objectiveOf(job, body, &sp.Objective)
+	body.Charges = chargesOf(sp.Charged)
 	for _, c := range sp.Cadence {
 		cs := &nightloomv1.CadenceSeries{BlockId: c.ID, Interval: durationpb.New(c.Every), RunsDelivered: int32(c.Delivered)}
 		for _, s := range c.Skipped {

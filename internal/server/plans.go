@@ -213,9 +213,14 @@ func (x *planService) MakePlan(ctx context.Context, req *nightloomv1.MakePlanReq
 	cls := mergeClosures(req.GetClosures())
 
 	resp := &nightloomv1.MakePlanResponse{}
+	var planned []plannedCharge // what earlier nights of this call charge
 	for _, sp := range spans {
+		programs, err := x.s.planPrograms(ctx, site.pb.GetId(), sp.start, planned)
+		if err != nil {
+			return nil, err
+		}
 		job := &planJob{site: site, start: sp.start, end: sp.end, from: sp.start, closures: cls,
-			args: perNight, origin: nightloomv1.PlanOrigin_PLAN_ORIGIN_MAKE_PLAN}
+			args: perNight, origin: nightloomv1.PlanOrigin_PLAN_ORIGIN_MAKE_PLAN, programs: programs}
 		if byNight {
 			job.night = dateOf(sp.date)
 		}
@@ -269,6 +274,7 @@ func (x *planService) MakePlan(ctx context.Context, req *nightloomv1.MakePlanReq
 			return nil, err
 		}
 		resp.Plans = append(resp.Plans, stored)
+		planned = append(planned, chargesPlanned(stored)...)
 		// Later nights count this night's assignments as done.
 		byID := map[string]*planBlock{}
 		for _, b := range blocks {
@@ -613,8 +619,13 @@ func (s *Server) replanLocked(ctx context.Context, site *siteModel, old *nightlo
 		}
 		blocks = in
 	}
+	programs, err := s.planPrograms(ctx, site.pb.GetId(), start, nil)
+	if err != nil {
+		return nil, replanOutcome{}, err
+	}
 	job := &planJob{site: site, start: start, end: end, from: from, night: old.GetNight(), closures: cls,
-		blocks: blocks, kept: kept, inProgress: inProgress, previous: previous, args: args, origin: origin}
+		blocks: blocks, kept: kept, inProgress: inProgress, previous: previous, args: args, origin: origin,
+		programs: programs}
 	began := time.Now()
 	body, err := s.planner.plan(ctx, job)
 	s.metrics.observeSolve(strings.ToLower(strings.TrimPrefix(origin.String(), "PLAN_ORIGIN_")), time.Since(began))

@@ -76,6 +76,7 @@ func (x *queueService) QueueBlocks(ctx context.Context, req *nightloomv1.QueueBl
 	// checks that depend on them.
 	sites := x.s.newSiteCache()
 	targets := map[string]*nightloomv1.Target{}
+	programs := map[string]*nightloomv1.Program{}
 	for i, b := range req.GetBlocks() {
 		site, err := sites.get(ctx, b.GetSiteId())
 		if errors.Is(err, store.ErrNotFound) {
@@ -99,6 +100,9 @@ func (x *queueService) QueueBlocks(ctx context.Context, req *nightloomv1.QueueBl
 			targets[b.GetTargetId()] = t
 		}
 		checkBlockRefs(&v, idx("blocks", i), b, site.pb, t)
+		if err := x.s.checkBlockProgram(ctx, &v, idx("blocks", i)+".program", b, programs); err != nil {
+			return nil, err
+		}
 	}
 	if err := v.err(); err != nil {
 		return nil, err
@@ -114,7 +118,7 @@ func (x *queueService) QueueBlocks(ctx context.Context, req *nightloomv1.QueueBl
 			id = requestBlockID(req.GetRequestId(), i)
 		}
 		recs[i] = store.Block{ID: id, SiteID: b.GetSiteId(), TargetID: b.GetTargetId(), Priority: float64(b.GetPriority()),
-			FramesWanted: int(b.GetFramesWanted()), Spec: spec}
+			FramesWanted: int(b.GetFramesWanted()), Spec: spec, Program: b.GetProgram()}
 	}
 	var over error
 	perSite := map[string]int{}
@@ -367,21 +371,22 @@ const (
 	reportFitTolerance = 2 * time.Second
 )
 
-// checkReportFacts refuses a report that cannot be true: frames whose
+// checkReportFacts refuses a report that cannot be true (and returns the
+// block's exposure): frames whose
 // exposures alone do not fit its interval, an interval that ends in the
 // future beyond ReportClockTolerance, starts before the block was queued
 // or lasts longer than MaxReportSpan. Nothing is stored for a refused
 // report. The site's readout is a planning figure that real cameras may
 // beat (the INDI simulator reads a frame out in 0.03 s where the test site
 // models 1 s), so only the exposures, which the block fixes, must fit.
-func (s *Server) checkReportFacts(ctx context.Context, r *nightloomv1.ProgressReport, start, end time.Time) error {
+func (s *Server) checkReportFacts(ctx context.Context, r *nightloomv1.ProgressReport, start, end time.Time) (time.Duration, error) {
 	rec, err := s.db.GetBlock(ctx, r.GetBlockId())
 	if err != nil {
-		return err
+		return 0, err
 	}
 	b, err := blockProto(rec, nil, s.now())
 	if err != nil {
-		return err
+		return 0, err
 	}
 	var v violations
 	now := s.now()
@@ -403,7 +408,7 @@ func (s *Server) checkReportFacts(ctx context.Context, r *nightloomv1.ProgressRe
 				n, exp, need, end.Sub(start))
 		}
 	}
-	return v.err()
+	return b.GetExposure().AsDuration(), v.err()
 }
 
 func (x *queueService) ReportProgress(ctx context.Context, req *nightloomv1.ReportProgressRequest) (*nightloomv1.ReportProgressResponse, error) {
@@ -413,12 +418,20 @@ func (x *queueService) ReportProgress(ctx context.Context, req *nightloomv1.Repo
 		return nil, err
 	}
 	r := req.GetReport()
-	if err := x.s.checkReportFacts(ctx, r, start, end); err != nil {
+	exposure, err := x.s.checkReportFacts(ctx, r, start, end)
+	if err != nil {
 		return nil, err
 	}
+	setup, err := x.s.reportSetup(ctx, r, start, end)
+	if err != nil {
+		return nil, err
+	}
+	// Exposure is what the run charges to the block's program, with the
+	// rest of the interval and the setup as overheads (program.proto).
 	after, dup, err := x.s.db.ReportProgress(ctx, store.ProgressReport{
 		ReportID: r.GetReportId(), BlockID: r.GetBlockId(), FramesKept: int(r.GetFramesKept()),
 		Start: start, End: end, Outcome: r.GetOutcome().String(),
+		Exposure: time.Duration(r.GetFramesKept()) * exposure, Setup: setup,
 	})
 	if errors.Is(err, store.ErrConflict) {
 		return nil, status.Errorf(codes.AlreadyExists, "report_id %q was used before with different content", r.GetReportId())
@@ -442,4 +455,71 @@ func (x *queueService) ReportProgress(ctx context.Context, req *nightloomv1.Repo
 		resp.FramesCounted = int32(stored.FramesApplied)
 	}
 	return resp, nil
+}
+
+// checkBlockProgram checks a queued block's program (path names the field):
+// it must exist and be open to the block's site. cache holds the programs
+// looked up so far.
+func (s *Server) checkBlockProgram(ctx context.Context, v *violations, path string, b *nightloomv1.Block,
+	cache map[string]*nightloomv1.Program) error {
+	name := b.GetProgram()
+	if name == "" {
+		return nil
+	}
+	p, ok := cache[name]
+	if !ok {
+		rec, err := s.db.GetProgram(ctx, name)
+		if errors.Is(err, store.ErrNotFound) {
+			v.add(path, "program %q does not exist (create it with CreateProgram)", name)
+			cache[name] = nil
+			return nil
+		}
+		if err != nil {
+			return err
+		}
+		if p, err = programProto(rec); err != nil {
+			return err
+		}
+		cache[name] = p
+	}
+	if p != nil && !openTo(p, b.GetSiteId()) {
+		v.add(path, "program %q is held to site %s, not %s", name, p.GetSiteId(), b.GetSiteId())
+	}
+	return nil
+}
+
+// reportSetup is the setup (slew, settle, filter change, focus, acquisition)
+// before a reported run, as the plan the report names predicted it: the
+// time from prepare_start to start of that plan's assignment of the block
+// that overlaps the reported interval (the one starting nearest to it). It
+// is 0 when the report names no plan, the plan is unknown, and when no
+// assignment matches: the report's interval alone is charged then.
+func (s *Server) reportSetup(ctx context.Context, r *nightloomv1.ProgressReport, start, end time.Time) (time.Duration, error) {
+	if r.GetPlanId() == "" {
+		return 0, nil
+	}
+	rec, err := s.db.GetPlan(ctx, r.GetPlanId())
+	if errors.Is(err, store.ErrNotFound) {
+		return 0, nil
+	}
+	if err != nil {
+		return 0, err
+	}
+	p, err := planFromRecord(rec)
+	if err != nil {
+		return 0, err
+	}
+	var best *nightloomv1.Assignment
+	for _, a := range p.GetAssignments() {
+		if a.GetBlockId() != r.GetBlockId() || !overlaps(a.GetStart().AsTime(), a.GetEnd().AsTime(), start, end) {
+			continue
+		}
+		if best == nil || a.GetStart().AsTime().Sub(start).Abs() < best.GetStart().AsTime().Sub(start).Abs() {
+			best = a
+		}
+	}
+	if best == nil || best.GetPrepareStart() == nil {
+		return 0, nil
+	}
+	return max(0, best.GetStart().AsTime().Sub(best.GetPrepareStart().AsTime())), nil
 }

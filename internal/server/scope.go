@@ -15,6 +15,10 @@ package server
 //     without a site are narrowed to it.
 //   - sky: Night and Ephemeris at its own site; Visibility of its own site's
 //     blocks, or of a target at its own site.
+//   - programs: GetProgram of a program open to its site (held to it or to
+//     none); ListPrograms lists those only; GetProgramUsage of its own site
+//     (narrowed to it without a site); CreateProgram, UpdateProgram and
+//     DeleteProgram are refused (a program may span sites).
 
 import (
 	"context"
@@ -125,6 +129,28 @@ func (s *Server) checkScope(ctx context.Context, site string, req any) error {
 	case *nightloomv1.ExportPlanRequest:
 		return planSite(r.GetPlanId())
 
+	case *nightloomv1.GetProgramRequest:
+		if r.GetName() == "" {
+			return nil
+		}
+		p, err := s.db.GetProgram(ctx, r.GetName())
+		if err != nil {
+			return err
+		}
+		if p.SiteID != "" && p.SiteID != site {
+			return scopeDenied(site, fmt.Sprintf("program %q is held to another site", r.GetName()))
+		}
+		return nil
+	case *nightloomv1.ListProgramsRequest:
+		return nil // the response is narrowed (scopeResponse)
+	case *nightloomv1.GetProgramUsageRequest:
+		if r.GetSiteId() == "" {
+			r.SiteId = site
+		}
+		return same("site_id", r.GetSiteId())
+	case *nightloomv1.CreateProgramRequest, *nightloomv1.UpdateProgramRequest, *nightloomv1.DeleteProgramRequest:
+		return scopeDenied(site, "programs may span sites, so it cannot change them")
+
 	case *nightloomv1.NightRequest:
 		return same("site_id", r.GetSiteId())
 	case *nightloomv1.EphemerisRequest:
@@ -153,6 +179,15 @@ func scopeResponse(site string, resp any) {
 			}
 		}
 		r.Sites = kept
+	}
+	if r, ok := resp.(*nightloomv1.ListProgramsResponse); ok {
+		kept := r.Programs[:0]
+		for _, x := range r.GetPrograms() {
+			if openTo(x, site) {
+				kept = append(kept, x)
+			}
+		}
+		r.Programs = kept
 	}
 }
 

@@ -144,7 +144,50 @@ func validCalls(e *env, f fixture, plan *nightloomv1.Plan) map[string]validCall 
 		}
 		return r.GetTarget().GetId()
 	}
+	programs := nightloomv1.NewProgramServiceClient(e.conn)
+	newProgram := func(t *testing.T) string {
+		name := fmt.Sprintf("share-%d", next())
+		if _, err := programs.CreateProgram(adm, &nightloomv1.CreateProgramRequest{Program: testProgram(name, 10*time.Hour)}); err != nil {
+			t.Fatal(err)
+		}
+		return name
+	}
 	return map[string]validCall{
+		nightloomv1.ProgramService_CreateProgram_FullMethodName: now(func(ctx context.Context) error {
+			_, err := programs.CreateProgram(ctx, &nightloomv1.CreateProgramRequest{Program: testProgram(fmt.Sprintf("club-%d", next()), time.Hour)})
+			return err
+		}),
+		nightloomv1.ProgramService_GetProgram_FullMethodName: func(t *testing.T) func(ctx context.Context) error {
+			name := newProgram(t)
+			return func(ctx context.Context) error {
+				_, err := programs.GetProgram(ctx, &nightloomv1.GetProgramRequest{Name: name})
+				return err
+			}
+		},
+		nightloomv1.ProgramService_ListPrograms_FullMethodName: now(func(ctx context.Context) error {
+			_, err := programs.ListPrograms(ctx, &nightloomv1.ListProgramsRequest{})
+			return err
+		}),
+		nightloomv1.ProgramService_UpdateProgram_FullMethodName: func(t *testing.T) func(ctx context.Context) error {
+			name := newProgram(t)
+			return func(ctx context.Context) error {
+				_, err := programs.UpdateProgram(ctx, &nightloomv1.UpdateProgramRequest{
+					Program:    &nightloomv1.Program{Name: name, Allocation: dur(20 * time.Hour)},
+					UpdateMask: &fieldmaskpb.FieldMask{Paths: []string{"allocation"}}})
+				return err
+			}
+		},
+		nightloomv1.ProgramService_DeleteProgram_FullMethodName: func(t *testing.T) func(ctx context.Context) error {
+			name := newProgram(t)
+			return func(ctx context.Context) error {
+				_, err := programs.DeleteProgram(ctx, &nightloomv1.DeleteProgramRequest{Name: name})
+				return err
+			}
+		},
+		nightloomv1.ProgramService_GetProgramUsage_FullMethodName: now(func(ctx context.Context) error {
+			_, err := programs.GetProgramUsage(ctx, &nightloomv1.GetProgramUsageRequest{At: ts(p0)})
+			return err
+		}),
 		nightloomv1.SiteService_CreateSite_FullMethodName: now(func(ctx context.Context) error {
 			_, err := e.sites.CreateSite(ctx, &nightloomv1.CreateSiteRequest{Site: testSite()})
 			return err
@@ -401,6 +444,12 @@ var specRoles = func() map[string][]Role {
 		nightloomv1.QueueService_UpdateBlock_FullMethodName:            plan,
 		nightloomv1.QueueService_WithdrawBlocks_FullMethodName:         plan,
 		nightloomv1.ExportService_ExportPlan_FullMethodName:            queueRead,
+		nightloomv1.ProgramService_CreateProgram_FullMethodName:        admin,
+		nightloomv1.ProgramService_GetProgram_FullMethodName:           read,
+		nightloomv1.ProgramService_ListPrograms_FullMethodName:         read,
+		nightloomv1.ProgramService_UpdateProgram_FullMethodName:        admin,
+		nightloomv1.ProgramService_DeleteProgram_FullMethodName:        admin,
+		nightloomv1.ProgramService_GetProgramUsage_FullMethodName:      read,
 	}
 }()
 

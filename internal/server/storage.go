@@ -48,6 +48,13 @@ type Storage interface {
 	PlanByVersion(ctx context.Context, siteID string, v int64) (store.Plan, error)
 	LatestPlan(ctx context.Context, siteID string) (store.Plan, error)
 
+	CreateProgram(ctx context.Context, p store.Program) (store.Program, error)
+	GetProgram(ctx context.Context, name string) (store.Program, error)
+	ListPrograms(ctx context.Context, p store.Page) ([]store.Program, string, error)
+	UpdateProgram(ctx context.Context, p store.Program) (store.Program, error)
+	DeleteProgram(ctx context.Context, name string) error
+	ProgramCharges(ctx context.Context, program string, from, to time.Time) ([]store.Charge, error)
+
 	TokenStore
 }
 

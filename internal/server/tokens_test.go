@@ -85,6 +85,18 @@ func TestTokenSiteScope(t *testing.T) {
 	}
 	op := withToken(context.Background(), held[RoleOperator])
 	adm := withToken(context.Background(), held[RoleAdmin])
+	programs := nightloomv1.NewProgramServiceClient(e.conn)
+	for _, p := range []*nightloomv1.Program{testProgram("club", time.Hour), testProgram("thesis-a", time.Hour), testProgram("thesis-b", time.Hour)} {
+		switch p.GetName() {
+		case "thesis-a":
+			p.SiteId = siteA
+		case "thesis-b":
+			p.SiteId = siteB
+		}
+		if _, err := programs.CreateProgram(e.admin(), &nightloomv1.CreateProgramRequest{Program: p}); err != nil {
+			t.Fatal(err)
+		}
+	}
 
 	cases := []struct {
 		name string
@@ -164,6 +176,30 @@ func TestTokenSiteScope(t *testing.T) {
 			_, err = st.Recv()
 			return err
 		}, codes.OK},
+		{"GetProgram open to every site", func() error {
+			_, err := programs.GetProgram(op, &nightloomv1.GetProgramRequest{Name: "club"})
+			return err
+		}, codes.OK},
+		{"GetProgram held to its site", func() error {
+			_, err := programs.GetProgram(op, &nightloomv1.GetProgramRequest{Name: "thesis-a"})
+			return err
+		}, codes.OK},
+		{"GetProgram held to another site", func() error {
+			_, err := programs.GetProgram(op, &nightloomv1.GetProgramRequest{Name: "thesis-b"})
+			return err
+		}, codes.PermissionDenied},
+		{"CreateProgram", func() error {
+			_, err := programs.CreateProgram(adm, &nightloomv1.CreateProgramRequest{Program: testProgram("held", time.Hour)})
+			return err
+		}, codes.PermissionDenied},
+		{"DeleteProgram", func() error {
+			_, err := programs.DeleteProgram(adm, &nightloomv1.DeleteProgramRequest{Name: "thesis-a"})
+			return err
+		}, codes.PermissionDenied},
+		{"GetProgramUsage other", func() error {
+			_, err := programs.GetProgramUsage(op, &nightloomv1.GetProgramUsageRequest{SiteId: siteB})
+			return err
+		}, codes.PermissionDenied},
 	}
 	for _, c := range cases {
 		if got := status.Code(c.call()); got != c.want {
@@ -186,6 +222,21 @@ func TestTokenSiteScope(t *testing.T) {
 	}
 	if len(lb.GetBlocks()) != len(a.blocks) {
 		t.Errorf("ListBlocks of a held token: %d blocks, want %d", len(lb.GetBlocks()), len(a.blocks))
+	}
+	lp, err := programs.ListPrograms(op, &nightloomv1.ListProgramsRequest{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var names []string
+	for _, p := range lp.GetPrograms() {
+		names = append(names, p.GetName())
+	}
+	if strings.Join(names, ",") != "club,thesis-a" {
+		t.Errorf("ListPrograms of a held token: %v, want [club thesis-a]", names)
+	}
+	u, err := programs.GetProgramUsage(op, &nightloomv1.GetProgramUsageRequest{})
+	if err != nil || len(u.GetUsage()) != 2 {
+		t.Errorf("GetProgramUsage of a held token: %d programs, err %v; want club and thesis-a", len(u.GetUsage()), err)
 	}
 }
 

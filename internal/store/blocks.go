@@ -26,19 +26,34 @@ type Block struct {
 	Spec                     []byte
 	CreatedAt, UpdatedAt     time.Time
 	Revision                 int64
+	// Program is the name of the program whose time the block spends; ""
+	// for none. It must name a stored program (else ErrNotFound); it is
+	// set when the block is queued and cleared when the program is
+	// deleted.
+	Program string
 }
 
-const blockCols = `id, site_id, target_id, priority, state, frames_wanted, frames_done, spec, created_at, updated_at, revision`
+const blockCols = `id, site_id, target_id, priority, state, frames_wanted, frames_done, spec, created_at, updated_at, revision, program`
 
 func scanBlock(s scanner) (Block, error) {
 	var x Block
 	var created, updated int64
+	var program sql.NullString
 	if err := s.Scan(&x.ID, &x.SiteID, &x.TargetID, &x.Priority, &x.State, &x.FramesWanted, &x.FramesDone,
-		&x.Spec, &created, &updated, &x.Revision); err != nil {
+		&x.Spec, &created, &updated, &x.Revision, &program); err != nil {
 		return Block{}, err
 	}
 	x.CreatedAt, x.UpdatedAt = decTime(created), decTime(updated)
+	x.Program = program.String
 	return x, nil
+}
+
+// nullString binds "" as SQL NULL (an optional reference).
+func nullString(s string) any {
+	if s == "" {
+		return nil
+	}
+	return s
 }
 
 func validState(s string) bool {
@@ -97,19 +112,24 @@ func (d *sqliteDB) CreateBlocks(ctx context.Context, blocks []Block) ([]Block, e
 		out[i] = b
 	}
 	err := d.write(ctx, op, func(tx *sql.Tx) error {
-		ins, err := tx.PrepareContext(ctx, `INSERT INTO blocks (`+blockCols+`) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`)
+		ins, err := tx.PrepareContext(ctx, `INSERT INTO blocks (`+blockCols+`) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`)
 		if err != nil {
 			return err
 		}
 		defer ins.Close()
 		sites := map[string]bool{}
 		targets := map[string]bool{}
+		programs := map[string]bool{}
 		exists := func(table, id string, cache map[string]bool) (bool, error) {
 			if ok, hit := cache[id]; hit {
 				return ok, nil
 			}
+			key := "id"
+			if table == "programs" {
+				key = "name"
+			}
 			var n int
-			if err := tx.QueryRowContext(ctx, `SELECT COUNT(*) FROM `+table+` WHERE id = ?`, id).Scan(&n); err != nil {
+			if err := tx.QueryRowContext(ctx, `SELECT COUNT(*) FROM `+table+` WHERE `+key+` = ?`, id).Scan(&n); err != nil {
 				return false, err
 			}
 			cache[id] = n > 0
@@ -129,8 +149,16 @@ func (d *sqliteDB) CreateBlocks(ctx context.Context, blocks []Block) ([]Block, e
 			if !ok {
 				return fmt.Errorf("block %q: target %q: %w", b.ID, b.TargetID, ErrNotFound)
 			}
+			if b.Program != "" {
+				if ok, err = exists("programs", b.Program, programs); err != nil {
+					return err
+				}
+				if !ok {
+					return fmt.Errorf("block %q: program %q: %w", b.ID, b.Program, ErrNotFound)
+				}
+			}
 			if _, err := ins.ExecContext(ctx, b.ID, b.SiteID, b.TargetID, b.Priority, b.State, b.FramesWanted, b.FramesDone,
-				blob(b.Spec), b.CreatedAt.UnixNano(), b.UpdatedAt.UnixNano(), b.Revision); err != nil {
+				blob(b.Spec), b.CreatedAt.UnixNano(), b.UpdatedAt.UnixNano(), b.Revision, nullString(b.Program)); err != nil {
 				return mapErr(ctx, fmt.Sprintf("block %q", b.ID), err)
 			}
 		}

@@ -6,20 +6,21 @@ import (
 	"fmt"
 	"strconv"
 	"strings"
+	"time"
 
 	"github.com/jackc/pgx/v5"
 )
 
 // CopyStats counts the records Copy wrote.
 type CopyStats struct {
-	Sites, Targets, Blocks, ProgressReports, Plans, Tokens int
+	Sites, Targets, Blocks, ProgressReports, Plans, Tokens, Programs, Charges int
 	// Others counts the rows of the tables copied as they are (rawTables).
 	Others int
 }
 
 func (c CopyStats) String() string {
-	return fmt.Sprintf("%d sites, %d targets, %d blocks, %d progress reports, %d plans, %d tokens, %d other records",
-		c.Sites, c.Targets, c.Blocks, c.ProgressReports, c.Plans, c.Tokens, c.Others)
+	return fmt.Sprintf("%d sites, %d targets, %d blocks, %d progress reports, %d plans, %d tokens, %d programs, %d charges, %d other records",
+		c.Sites, c.Targets, c.Blocks, c.ProgressReports, c.Plans, c.Tokens, c.Programs, c.Charges, c.Others)
 }
 
 // rawTables are the tables Copy copies row by row as they are, in an order
@@ -54,7 +55,8 @@ func Copy(ctx context.Context, from, to *DB) (CopyStats, error) {
 		return st, fmt.Errorf("store: copy: %w", err)
 	}
 	st = CopyStats{Sites: len(recs.sites), Targets: len(recs.targets), Blocks: len(recs.blocks),
-		ProgressReports: len(recs.reports), Plans: len(recs.plans), Tokens: len(recs.tokens)}
+		ProgressReports: len(recs.reports), Plans: len(recs.plans), Tokens: len(recs.tokens),
+		Programs: len(recs.programs), Charges: len(recs.charges)}
 	for _, rs := range recs.raw {
 		st.Others += len(rs)
 	}
@@ -69,7 +71,10 @@ type records struct {
 	reports []ProgressReport
 	plans   []Plan
 	tokens  []Token
-	raw     [][][]any // rows of rawTables[i]
+	// programs and their ledger (migration 0009)
+	programs []Program
+	charges  []Charge
+	raw      [][][]any // rows of rawTables[i]
 }
 
 // all pages through one list.
@@ -113,6 +118,16 @@ func (r *records) read(ctx context.Context, d *DB) error {
 			return err
 		}
 		r.plans = append(r.plans, ps...)
+	}
+	if r.programs, err = all(func(p Page) ([]Program, string, error) { return d.ListPrograms(ctx, p) }); err != nil {
+		return err
+	}
+	for _, p := range r.programs {
+		cs, err := d.ProgramCharges(ctx, p.Name, time.Time{}, time.Time{})
+		if err != nil {
+			return err
+		}
+		r.charges = append(r.charges, cs...)
 	}
 	if r.tokens, err = all(func(p Page) ([]Token, string, error) { return d.ListTokens(ctx, p) }); err != nil {
 		return err
@@ -188,6 +203,11 @@ func (r *records) rows() []struct {
 		t.rows = append(t.rows, []any{s.ID, s.Name, blob(s.Spec), s.CreatedAt.UnixNano(), s.UpdatedAt.UnixNano(), s.Revision})
 	}
 	out = append(out, t)
+	t = tbl{table: "programs", cols: programCols}
+	for _, x := range r.programs {
+		t.rows = append(t.rows, []any{x.Name, nullString(x.SiteID), blob(x.Spec), x.CreatedAt.UnixNano(), x.UpdatedAt.UnixNano(), x.Revision})
+	}
+	out = append(out, t)
 	t = tbl{table: "targets", cols: targetCols}
 	for _, x := range r.targets {
 		t.rows = append(t.rows, []any{x.ID, x.Name, x.Kind, blob(x.Spec), x.CreatedAt.UnixNano(), x.UpdatedAt.UnixNano(), x.Revision})
@@ -196,13 +216,18 @@ func (r *records) rows() []struct {
 	t = tbl{table: "blocks", cols: blockCols}
 	for _, b := range r.blocks {
 		t.rows = append(t.rows, []any{b.ID, b.SiteID, b.TargetID, b.Priority, b.State, b.FramesWanted, b.FramesDone,
-			blob(b.Spec), b.CreatedAt.UnixNano(), b.UpdatedAt.UnixNano(), b.Revision})
+			blob(b.Spec), b.CreatedAt.UnixNano(), b.UpdatedAt.UnixNano(), b.Revision, nullString(b.Program)})
 	}
 	out = append(out, t)
 	t = tbl{table: "progress_reports", cols: reportCols}
 	for _, x := range r.reports {
 		t.rows = append(t.rows, []any{x.ReportID, x.BlockID, x.FramesKept, x.FramesApplied, x.Start.UnixNano(), x.End.UnixNano(),
 			x.Outcome, x.ReceivedAt.UnixNano()})
+	}
+	out = append(out, t)
+	t = tbl{table: "program_charges", cols: chargeCols}
+	for _, x := range r.charges {
+		t.rows = append(t.rows, []any{x.ReportID, x.Program, x.BlockID, x.Start.UnixNano(), x.Exposure.Nanoseconds(), x.Overheads.Nanoseconds()})
 	}
 	out = append(out, t)
 	t = tbl{table: "plans", cols: planCols}

@@ -52,6 +52,12 @@ type Store interface {
 	WithdrawMatching(ctx context.Context, siteID, targetID, actor string, keep func(Block) bool) ([]Block, error)
 	BlockEdits(ctx context.Context, blockID string) ([]BlockEdit, error)
 	TargetIDsByName(ctx context.Context, name string) ([]string, error)
+	CreateProgram(ctx context.Context, p Program) (Program, error)
+	GetProgram(ctx context.Context, name string) (Program, error)
+	ListPrograms(ctx context.Context, p Page) ([]Program, string, error)
+	UpdateProgram(ctx context.Context, p Program) (Program, error)
+	DeleteProgram(ctx context.Context, name string) error
+	ProgramCharges(ctx context.Context, program string, from, to time.Time) ([]Charge, error)
 }
 
 // DB is an open nightloom database, SQLite or PostgreSQL. Its methods are
@@ -217,4 +223,28 @@ func (d *DB) BlockEdits(ctx context.Context, blockID string) ([]BlockEdit, error
 
 func (d *DB) TargetIDsByName(ctx context.Context, name string) ([]string, error) {
 	return d.impl.TargetIDsByName(ctx, name)
+}
+
+func (d *DB) CreateProgram(ctx context.Context, p Program) (Program, error) {
+	return d.impl.CreateProgram(ctx, p)
+}
+
+func (d *DB) GetProgram(ctx context.Context, name string) (Program, error) {
+	return d.impl.GetProgram(ctx, name)
+}
+
+func (d *DB) ListPrograms(ctx context.Context, p Page) ([]Program, string, error) {
+	return d.impl.ListPrograms(ctx, p)
+}
+
+func (d *DB) UpdateProgram(ctx context.Context, p Program) (Program, error) {
+	return d.impl.UpdateProgram(ctx, p)
+}
+
+func (d *DB) DeleteProgram(ctx context.Context, name string) error {
+	return d.impl.DeleteProgram(ctx, name)
+}
+
+func (d *DB) ProgramCharges(ctx context.Context, program string, from, to time.Time) ([]Charge, error) {
+	return d.impl.ProgramCharges(ctx, program, from, to)
 }

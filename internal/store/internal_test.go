@@ -108,7 +108,9 @@ func TestUpgradeFromEachVersion(t *testing.T) {
 			if _, err := old.CreateTarget(ctx, Target{ID: "t", Name: "t", Kind: KindFixed}); err != nil {
 				t.Fatal(err)
 			}
-			if _, err := old.CreateBlocks(ctx, []Block{{ID: "b", SiteID: "s", TargetID: "t", FramesWanted: 2}}); err != nil {
+			// Blocks as version 1 has them (the program column came in 9).
+			if _, err := old.w.ExecContext(ctx, `INSERT INTO blocks (id, site_id, target_id, priority, state, frames_wanted,
+				frames_done, spec, created_at, updated_at, revision) VALUES ('b', 's', 't', 1, 'queued', 2, 0, x'', 1, 1, 1)`); err != nil {
 				t.Fatal(err)
 			}
 			if _, err := old.CreateToken(ctx, Token{ID: "k", Hash: make([]byte, 32), Role: "admin"}); n < 3 && err == nil {
@@ -146,7 +148,7 @@ func TestUpgradeFromEachVersion(t *testing.T) {
 				names = append(names, s)
 			}
 			rows.Close()
-			if got, want := strings.Join(names, ","), "1_init,2_plans,3_tokens,4_target_imports,5_magnitudes,6_token_limits,7_block_edits"; got != want {
+			if got, want := strings.Join(names, ","), "1_init,2_plans,3_tokens,4_target_imports,5_magnitudes,6_token_limits,7_block_edits,8_reserved,9_programs"; got != want {
 				t.Fatalf("schema_migrations: %s, want %s", got, want)
 			}
 			if err := db.IntegrityCheck(ctx); err != nil {

@@ -220,12 +220,17 @@ func (d *pgDB) CreateBlocks(ctx context.Context, blocks []Block) ([]Block, error
 	err := d.write(ctx, op, func(tx pgx.Tx) error {
 		sites := map[string]bool{}
 		targets := map[string]bool{}
+		programs := map[string]bool{}
 		exists := func(table, id string, cache map[string]bool) (bool, error) {
 			if ok, hit := cache[id]; hit {
 				return ok, nil
 			}
+			key := "id"
+			if table == "programs" {
+				key = "name"
+			}
 			var n int
-			if err := tx.QueryRow(ctx, `SELECT COUNT(*) FROM `+table+` WHERE id = $1`, id).Scan(&n); err != nil {
+			if err := tx.QueryRow(ctx, `SELECT COUNT(*) FROM `+table+` WHERE `+key+` = $1`, id).Scan(&n); err != nil {
 				return false, err
 			}
 			cache[id] = n > 0
@@ -245,14 +250,22 @@ func (d *pgDB) CreateBlocks(ctx context.Context, blocks []Block) ([]Block, error
 			if !ok {
 				return fmt.Errorf("block %q: target %q: %w", b.ID, b.TargetID, ErrNotFound)
 			}
+			if b.Program != "" {
+				if ok, err = exists("programs", b.Program, programs); err != nil {
+					return err
+				}
+				if !ok {
+					return fmt.Errorf("block %q: program %q: %w", b.ID, b.Program, ErrNotFound)
+				}
+			}
 		}
 		// One round trip for the whole batch; the first failing row names
 		// its block.
 		batch := &pgx.Batch{}
 		for _, b := range out {
-			batch.Queue(`INSERT INTO blocks (`+blockCols+`) VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11)`,
+			batch.Queue(`INSERT INTO blocks (`+blockCols+`) VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12)`,
 				b.ID, b.SiteID, b.TargetID, b.Priority, b.State, b.FramesWanted, b.FramesDone,
-				blob(b.Spec), b.CreatedAt.UnixNano(), b.UpdatedAt.UnixNano(), b.Revision)
+				blob(b.Spec), b.CreatedAt.UnixNano(), b.UpdatedAt.UnixNano(), b.Revision, nullString(b.Program))
 		}
 		res := tx.SendBatch(ctx, batch)
 		for _, b := range out {
@@ -426,6 +439,13 @@ func (d *pgDB) ReportProgress(ctx context.Context, r ProgressReport) (Block, boo
 			VALUES ($1, $2, $3, $4, $5, $6, $7, $8)`,
 			r.ReportID, r.BlockID, r.FramesKept, applied, start, end, r.Outcome, now.UnixNano()); err != nil {
 			return err
+		}
+		if b.Program != "" {
+			exp, over := r.charge()
+			if _, err := tx.Exec(ctx, `INSERT INTO program_charges (`+chargeCols+`) VALUES ($1, $2, $3, $4, $5, $6)`,
+				r.ReportID, b.Program, b.ID, start, exp.Nanoseconds(), over.Nanoseconds()); err != nil {
+				return err
+			}
 		}
 		out = b
 		return nil

@@ -49,16 +49,22 @@ func fillWorkload(t *testing.T, db *store.DB) {
 	must(t, err)
 	_, err = db.CreateTarget(ctx, store.Target{ID: "com", Name: "comet", Kind: store.KindOrbit})
 	must(t, err)
+	_, err = db.CreateProgram(ctx, store.Program{Name: "club", Spec: []byte("club share")})
+	must(t, err)
+	_, err = db.CreateProgram(ctx, store.Program{Name: "thesis", SiteID: "hill", Spec: []byte("thesis share")})
+	must(t, err)
 	var bs []store.Block
 	for i := range 30 {
 		bs = append(bs, store.Block{ID: fmt.Sprintf("b%02d", i), SiteID: []string{"hill", "dome"}[i%2],
-			TargetID: []string{"neb", "com"}[i%2], Priority: float64(i) / 3, FramesWanted: 4 + i%3, Spec: []byte{byte(i)}})
+			TargetID: []string{"neb", "com"}[i%2], Priority: float64(i) / 3, FramesWanted: 4 + i%3, Spec: []byte{byte(i)},
+			Program: []string{"thesis", "club", "", ""}[i%4]})
 	}
 	_, err = db.CreateBlocks(ctx, bs)
 	must(t, err)
 	for i := range 40 {
 		_, _, err := db.ReportProgress(ctx, store.ProgressReport{ReportID: fmt.Sprintf("r%02d", i), BlockID: bs[i%12].ID,
-			FramesKept: 1 + i%4, Start: t0.Add(time.Duration(i) * time.Hour), End: t0.Add(time.Duration(i)*time.Hour + time.Minute), Outcome: "ok"})
+			FramesKept: 1 + i%4, Start: t0.Add(time.Duration(i) * time.Hour), End: t0.Add(time.Duration(i)*time.Hour + time.Minute), Outcome: "ok",
+			Exposure: time.Duration(i) * time.Second})
 		must(t, err)
 	}
 	_, err = db.WithdrawBlock(ctx, "b20")
@@ -111,7 +117,14 @@ func dumpAll(t *testing.T, db *store.DB) []any {
 	must(t, err)
 	tokens, _, err := db.ListTokens(ctx, big)
 	must(t, err)
-	out := []any{sites, targets, blocks, tokens}
+	programs, _, err := db.ListPrograms(ctx, big)
+	must(t, err)
+	out := []any{sites, targets, blocks, tokens, programs}
+	for _, p := range programs {
+		cs, err := db.ProgramCharges(ctx, p.Name, time.Time{}, time.Time{})
+		must(t, err)
+		out = append(out, cs)
+	}
 	for _, x := range targets {
 		obs, err := db.MagnitudeObservations(ctx, x.ID, 100)
 		must(t, err)
@@ -159,8 +172,8 @@ func TestCopyRoundTrip(t *testing.T) {
 	st, err := store.Copy(ctx, src, pg)
 	must(t, err)
 	t.Logf("SQLite -> PostgreSQL: %v", st)
-	if st.Blocks != 30 || st.ProgressReports != 40 || st.Plans != 5 || st.Tokens != 3 || st.Others != 6 {
-		t.Errorf("copied %v, want 30 blocks, 40 reports, 5 plans, 3 tokens, 6 other records", st)
+	if st.Blocks != 30 || st.ProgressReports != 40 || st.Plans != 5 || st.Tokens != 3 || st.Programs != 2 || st.Charges != 20 || st.Others != 6 {
+		t.Errorf("copied %v, want 30 blocks, 40 reports, 5 plans, 3 tokens, 2 programs, 20 charges, 6 other records", st)
 	}
 	back := openFile(t)
 	_, err = store.Copy(ctx, pg, back)

@@ -21,6 +21,17 @@ type ProgressReport struct {
 	Start, End    time.Time
 	Outcome       string
 	ReceivedAt    time.Time
+	// Exposure is the exposure time of the frames kept (frames kept times
+	// the block's exposure), set by the caller for the program ledger: a
+	// block with a program charges it Exposure and, as overheads, the rest
+	// of the interval. Not stored with the report, not part of its
+	// identity.
+	Exposure time.Duration
+	// Setup is the time spent getting to the run (slew, settle, filter
+	// change, focus, acquisition) when the caller knows it, charged as
+	// overheads on top of the interval; like Exposure, not stored with the
+	// report.
+	Setup time.Duration
 }
 
 const reportCols = `report_id, block_id, frames_kept, frames_applied, start_at, end_at, outcome, received_at`
@@ -44,6 +55,10 @@ func scanReport(s scanner) (ProgressReport, error) {
 // report for a block that is completed or withdrawn is recorded too (the
 // frames were taken), adding what is still missing and leaving the state
 // alone.
+//
+// When the block has a program, the report charges it (ProgramCharges) in
+// the same transaction: Exposure, capped at the interval, and as overheads
+// the rest of the interval plus Setup.
 //
 // Reports are idempotent on ReportID: a report whose id is stored already,
 // with the same block, frames, interval and outcome, changes nothing and
@@ -104,6 +119,13 @@ func (d *sqliteDB) ReportProgress(ctx context.Context, r ProgressReport) (Block,
 			VALUES (?, ?, ?, ?, ?, ?, ?, ?)`,
 			r.ReportID, r.BlockID, r.FramesKept, applied, start, end, r.Outcome, now.UnixNano()); err != nil {
 			return err
+		}
+		if b.Program != "" {
+			exp, over := r.charge()
+			if _, err := tx.ExecContext(ctx, `INSERT INTO program_charges (`+chargeCols+`) VALUES (?, ?, ?, ?, ?, ?)`,
+				r.ReportID, b.Program, b.ID, start, exp.Nanoseconds(), over.Nanoseconds()); err != nil {
+				return err
+			}
 		}
 		out = b
 		return nil

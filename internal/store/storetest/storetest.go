@@ -48,6 +48,8 @@ func Run(t *testing.T, open func(t *testing.T) *store.DB) {
 		{"Tokens", testTokens},
 		{"ImportTargets", testImportTargets},
 		{"Magnitudes", testMagnitudes},
+		{"Programs", testPrograms},
+		{"ProgramCharges", testProgramCharges},
 		{"Paging", testPaging},
 		{"PagingTokens", testPagingTokens},
 		{"PagingWhileInserting", testPagingWhileInserting},
@@ -141,7 +143,7 @@ func checkBlock(t *testing.T, what string, got, want store.Block) {
 	if got.ID != want.ID || got.SiteID != want.SiteID || got.TargetID != want.TargetID || got.Priority != want.Priority ||
 		got.State != want.State || got.FramesWanted != want.FramesWanted || got.FramesDone != want.FramesDone ||
 		!bytes.Equal(got.Spec, want.Spec) || !sameTime(got.CreatedAt, want.CreatedAt) ||
-		!sameTime(got.UpdatedAt, want.UpdatedAt) || got.Revision != want.Revision {
+		!sameTime(got.UpdatedAt, want.UpdatedAt) || got.Revision != want.Revision || got.Program != want.Program {
 		t.Fatalf("%s:\n got %+v\nwant %+v", what, got, want)
 	}
 }

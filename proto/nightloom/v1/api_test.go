@@ -74,6 +74,8 @@ var dimensionless = []string{
 	"total", "weighted_exposure", "completion_bonus", "cadence_points",
 	// magnitudes of a comet's light curve and the statistics of their fit
 	"fitted_magnitude", "prior_magnitude", "sigma_mag", "sigma_m1", "sigma_k1", "covariance_m1_k1", "chi2",
+	// a program's fair-share factor (a ratio of weights)
+	"fair_share",
 }
 
 // forbiddenSuffixes are units the API does not use: angles are degrees,
@@ -184,8 +186,8 @@ func TestListCallsPage(t *testing.T) {
 			}
 		}
 	}
-	if n != 4 {
-		t.Errorf("found %d List RPCs, want 4 (sites, targets, blocks, plans)", n)
+	if n != 5 {
+		t.Errorf("found %d List RPCs, want 5 (sites, targets, blocks, plans, programs)", n)
 	}
 }
 
@@ -201,6 +203,7 @@ func TestServicesAndRPCs(t *testing.T) {
 		"SkyService":        {"Ephemeris", "Night", "Visibility"},
 		"ApparitionService": {"MagnitudeHistory", "Outlook", "RefitMagnitudeLaw", "ReportMagnitudes"},
 		"CatalogueService":  {"LookupName", "SearchCatalogue"},
+		"ProgramService":    {"CreateProgram", "DeleteProgram", "GetProgram", "GetProgramUsage", "ListPrograms", "UpdateProgram"},
 	}
 	got := map[string][]string{}
 	for _, fd := range apiFiles(t) {

@@ -11,6 +11,8 @@
 //     stream of new versions.
 //   - SkyService (sky.proto): ephemeris tables, night events, visibility.
 //   - ExportService (export.proto): a plan as CSV or iCalendar.
+//   - ProgramService (program.proto): programs of a shared telescope, their
+//     allocations per period, and the time used and planned.
 //
 // Shared messages and enums (intervals, dates, the constraint set, pointing,
 // reasons) are in common.proto, whose leading comment states the

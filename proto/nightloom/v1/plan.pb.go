@@ -1111,7 +1111,12 @@ type Plan struct {
 	// Number of unplaced blocks (set also in ListPlans summaries).
 	UnplacedCount int32 `protobuf:"varint,16,opt,name=unplaced_count,json=unplacedCount,proto3" json:"unplaced_count,omitempty"`
 	// Per cadence block with a run: points delivered and skipped slots.
-	Cadence       []*CadenceSeries `protobuf:"bytes,17,rep,name=cadence,proto3" json:"cadence,omitempty"`
+	Cadence []*CadenceSeries `protobuf:"bytes,17,rep,name=cadence,proto3" json:"cadence,omitempty"`
+	// Time the plan charges to each program (program.proto), in the order
+	// of the programs' creation, the blocks without a program last; their
+	// exposure and overheads add up to the plan's. Empty for plans stored
+	// before this field.
+	Charges       []*ProgramCharge `protobuf:"bytes,18,rep,name=charges,proto3" json:"charges,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -1261,6 +1266,13 @@ func (x *Plan) GetUnplacedCount() int32 {
 func (x *Plan) GetCadence() []*CadenceSeries {
 	if x != nil {
 		return x.Cadence
+	}
+	return nil
+}
+
+func (x *Plan) GetCharges() []*ProgramCharge {
+	if x != nil {
+		return x.Charges
 	}
 	return nil
 }
@@ -2333,7 +2345,7 @@ var File_nightloom_v1_plan_proto protoreflect.FileDescriptor
 
 const file_nightloom_v1_plan_proto_rawDesc = "" +
 	"\n" +
-	"\x17nightloom/v1/plan.proto\x12\fnightloom.v1\x1a\x1egoogle/protobuf/duration.proto\x1a\x1fgoogle/protobuf/timestamp.proto\x1a\x19nightloom/v1/common.proto\"Y\n" +
+	"\x17nightloom/v1/plan.proto\x12\fnightloom.v1\x1a\x1egoogle/protobuf/duration.proto\x1a\x1fgoogle/protobuf/timestamp.proto\x1a\x19nightloom/v1/common.proto\x1a\x1anightloom/v1/program.proto\"Y\n" +
 	"\aClosure\x126\n" +
 	"\binterval\x18\x01 \x01(\v2\x1a.nightloom.v1.TimeIntervalR\binterval\x12\x16\n" +
 	"\x06reason\x18\x02 \x01(\tR\x06reason\"\xdb\x02\n" +
@@ -2410,7 +2422,7 @@ const file_nightloom_v1_plan_proto_rawDesc = "" +
 	"\bblock_id\x18\x01 \x01(\tR\ablockId\x125\n" +
 	"\binterval\x18\x02 \x01(\v2\x19.google.protobuf.DurationR\binterval\x12%\n" +
 	"\x0eruns_delivered\x18\x03 \x01(\x05R\rrunsDelivered\x123\n" +
-	"\askipped\x18\x04 \x03(\v2\x19.nightloom.v1.SkippedSlotR\askipped\"\xa1\x06\n" +
+	"\askipped\x18\x04 \x03(\v2\x19.nightloom.v1.SkippedSlotR\askipped\"\xd8\x06\n" +
 	"\x04Plan\x12\x0e\n" +
 	"\x02id\x18\x01 \x01(\tR\x02id\x12\x17\n" +
 	"\asite_id\x18\x02 \x01(\tR\x06siteId\x12\x18\n" +
@@ -2431,7 +2443,8 @@ const file_nightloom_v1_plan_proto_rawDesc = "" +
 	"\tobjective\x18\x0e \x01(\v2\x1c.nightloom.v1.ObjectivePartsR\tobjective\x12)\n" +
 	"\x10assignment_count\x18\x0f \x01(\x05R\x0fassignmentCount\x12%\n" +
 	"\x0eunplaced_count\x18\x10 \x01(\x05R\runplacedCount\x125\n" +
-	"\acadence\x18\x11 \x03(\v2\x1b.nightloom.v1.CadenceSeriesR\acadence\"\xb5\x03\n" +
+	"\acadence\x18\x11 \x03(\v2\x1b.nightloom.v1.CadenceSeriesR\acadence\x125\n" +
+	"\acharges\x18\x12 \x03(\v2\x1b.nightloom.v1.ProgramChargeR\acharges\"\xb5\x03\n" +
 	"\x0fMakePlanRequest\x12\x17\n" +
 	"\asite_id\x18\x01 \x01(\tR\x06siteId\x12/\n" +
 	"\x05night\x18\x02 \x01(\v2\x17.nightloom.v1.LocalDateH\x00R\x05night\x128\n" +
@@ -2588,6 +2601,7 @@ var file_nightloom_v1_plan_proto_goTypes = []any{
 	(*NonSiderealRate)(nil),        // 32: nightloom.v1.NonSiderealRate
 	(Reason)(0),                    // 33: nightloom.v1.Reason
 	(*LocalDate)(nil),              // 34: nightloom.v1.LocalDate
+	(*ProgramCharge)(nil),          // 35: nightloom.v1.ProgramCharge
 }
 var file_nightloom_v1_plan_proto_depIdxs = []int32{
 	28, // 0: nightloom.v1.Closure.interval:type_name -> nightloom.v1.TimeInterval
@@ -2627,46 +2641,47 @@ var file_nightloom_v1_plan_proto_depIdxs = []int32{
 	8,  // 34: nightloom.v1.Plan.solver:type_name -> nightloom.v1.SolverStats
 	9,  // 35: nightloom.v1.Plan.objective:type_name -> nightloom.v1.ObjectiveParts
 	11, // 36: nightloom.v1.Plan.cadence:type_name -> nightloom.v1.CadenceSeries
-	34, // 37: nightloom.v1.MakePlanRequest.night:type_name -> nightloom.v1.LocalDate
-	28, // 38: nightloom.v1.MakePlanRequest.interval:type_name -> nightloom.v1.TimeInterval
-	29, // 39: nightloom.v1.MakePlanRequest.grid_step:type_name -> google.protobuf.Duration
-	29, // 40: nightloom.v1.MakePlanRequest.time_budget:type_name -> google.protobuf.Duration
-	3,  // 41: nightloom.v1.MakePlanRequest.closures:type_name -> nightloom.v1.Closure
-	12, // 42: nightloom.v1.MakePlanResponse.plans:type_name -> nightloom.v1.Plan
-	12, // 43: nightloom.v1.GetPlanResponse.plan:type_name -> nightloom.v1.Plan
-	34, // 44: nightloom.v1.ListPlansRequest.night:type_name -> nightloom.v1.LocalDate
-	12, // 45: nightloom.v1.ListPlansResponse.plans:type_name -> nightloom.v1.Plan
-	30, // 46: nightloom.v1.ReplanRequest.from:type_name -> google.protobuf.Timestamp
-	3,  // 47: nightloom.v1.ReplanRequest.closures:type_name -> nightloom.v1.Closure
-	29, // 48: nightloom.v1.ReplanRequest.time_budget:type_name -> google.protobuf.Duration
-	12, // 49: nightloom.v1.ReplanResponse.plan:type_name -> nightloom.v1.Plan
-	21, // 50: nightloom.v1.ReplanResponse.run_changes:type_name -> nightloom.v1.RunChange
-	30, // 51: nightloom.v1.RunChange.start:type_name -> google.protobuf.Timestamp
-	2,  // 52: nightloom.v1.RunChange.change:type_name -> nightloom.v1.RunChangeKind
-	30, // 53: nightloom.v1.RunChange.new_start:type_name -> google.protobuf.Timestamp
-	22, // 54: nightloom.v1.TelescopeState.position:type_name -> nightloom.v1.HorizontalPosition
-	30, // 55: nightloom.v1.TelescopeState.last_focus_time:type_name -> google.protobuf.Timestamp
-	30, // 56: nightloom.v1.NextAssignmentRequest.now:type_name -> google.protobuf.Timestamp
-	23, // 57: nightloom.v1.NextAssignmentRequest.state:type_name -> nightloom.v1.TelescopeState
-	6,  // 58: nightloom.v1.NextAssignmentResponse.assignment:type_name -> nightloom.v1.Assignment
-	12, // 59: nightloom.v1.WatchPlansResponse.plan:type_name -> nightloom.v1.Plan
-	13, // 60: nightloom.v1.PlanService.MakePlan:input_type -> nightloom.v1.MakePlanRequest
-	15, // 61: nightloom.v1.PlanService.GetPlan:input_type -> nightloom.v1.GetPlanRequest
-	17, // 62: nightloom.v1.PlanService.ListPlans:input_type -> nightloom.v1.ListPlansRequest
-	19, // 63: nightloom.v1.PlanService.Replan:input_type -> nightloom.v1.ReplanRequest
-	24, // 64: nightloom.v1.PlanService.NextAssignment:input_type -> nightloom.v1.NextAssignmentRequest
-	26, // 65: nightloom.v1.PlanService.WatchPlans:input_type -> nightloom.v1.WatchPlansRequest
-	14, // 66: nightloom.v1.PlanService.MakePlan:output_type -> nightloom.v1.MakePlanResponse
-	16, // 67: nightloom.v1.PlanService.GetPlan:output_type -> nightloom.v1.GetPlanResponse
-	18, // 68: nightloom.v1.PlanService.ListPlans:output_type -> nightloom.v1.ListPlansResponse
-	20, // 69: nightloom.v1.PlanService.Replan:output_type -> nightloom.v1.ReplanResponse
-	25, // 70: nightloom.v1.PlanService.NextAssignment:output_type -> nightloom.v1.NextAssignmentResponse
-	27, // 71: nightloom.v1.PlanService.WatchPlans:output_type -> nightloom.v1.WatchPlansResponse
-	66, // [66:72] is the sub-list for method output_type
-	60, // [60:66] is the sub-list for method input_type
-	60, // [60:60] is the sub-list for extension type_name
-	60, // [60:60] is the sub-list for extension extendee
-	0,  // [0:60] is the sub-list for field type_name
+	35, // 37: nightloom.v1.Plan.charges:type_name -> nightloom.v1.ProgramCharge
+	34, // 38: nightloom.v1.MakePlanRequest.night:type_name -> nightloom.v1.LocalDate
+	28, // 39: nightloom.v1.MakePlanRequest.interval:type_name -> nightloom.v1.TimeInterval
+	29, // 40: nightloom.v1.MakePlanRequest.grid_step:type_name -> google.protobuf.Duration
+	29, // 41: nightloom.v1.MakePlanRequest.time_budget:type_name -> google.protobuf.Duration
+	3,  // 42: nightloom.v1.MakePlanRequest.closures:type_name -> nightloom.v1.Closure
+	12, // 43: nightloom.v1.MakePlanResponse.plans:type_name -> nightloom.v1.Plan
+	12, // 44: nightloom.v1.GetPlanResponse.plan:type_name -> nightloom.v1.Plan
+	34, // 45: nightloom.v1.ListPlansRequest.night:type_name -> nightloom.v1.LocalDate
+	12, // 46: nightloom.v1.ListPlansResponse.plans:type_name -> nightloom.v1.Plan
+	30, // 47: nightloom.v1.ReplanRequest.from:type_name -> google.protobuf.Timestamp
+	3,  // 48: nightloom.v1.ReplanRequest.closures:type_name -> nightloom.v1.Closure
+	29, // 49: nightloom.v1.ReplanRequest.time_budget:type_name -> google.protobuf.Duration
+	12, // 50: nightloom.v1.ReplanResponse.plan:type_name -> nightloom.v1.Plan
+	21, // 51: nightloom.v1.ReplanResponse.run_changes:type_name -> nightloom.v1.RunChange
+	30, // 52: nightloom.v1.RunChange.start:type_name -> google.protobuf.Timestamp
+	2,  // 53: nightloom.v1.RunChange.change:type_name -> nightloom.v1.RunChangeKind
+	30, // 54: nightloom.v1.RunChange.new_start:type_name -> google.protobuf.Timestamp
+	22, // 55: nightloom.v1.TelescopeState.position:type_name -> nightloom.v1.HorizontalPosition
+	30, // 56: nightloom.v1.TelescopeState.last_focus_time:type_name -> google.protobuf.Timestamp
+	30, // 57: nightloom.v1.NextAssignmentRequest.now:type_name -> google.protobuf.Timestamp
+	23, // 58: nightloom.v1.NextAssignmentRequest.state:type_name -> nightloom.v1.TelescopeState
+	6,  // 59: nightloom.v1.NextAssignmentResponse.assignment:type_name -> nightloom.v1.Assignment
+	12, // 60: nightloom.v1.WatchPlansResponse.plan:type_name -> nightloom.v1.Plan
+	13, // 61: nightloom.v1.PlanService.MakePlan:input_type -> nightloom.v1.MakePlanRequest
+	15, // 62: nightloom.v1.PlanService.GetPlan:input_type -> nightloom.v1.GetPlanRequest
+	17, // 63: nightloom.v1.PlanService.ListPlans:input_type -> nightloom.v1.ListPlansRequest
+	19, // 64: nightloom.v1.PlanService.Replan:input_type -> nightloom.v1.ReplanRequest
+	24, // 65: nightloom.v1.PlanService.NextAssignment:input_type -> nightloom.v1.NextAssignmentRequest
+	26, // 66: nightloom.v1.PlanService.WatchPlans:input_type -> nightloom.v1.WatchPlansRequest
+	14, // 67: nightloom.v1.PlanService.MakePlan:output_type -> nightloom.v1.MakePlanResponse
+	16, // 68: nightloom.v1.PlanService.GetPlan:output_type -> nightloom.v1.GetPlanResponse
+	18, // 69: nightloom.v1.PlanService.ListPlans:output_type -> nightloom.v1.ListPlansResponse
+	20, // 70: nightloom.v1.PlanService.Replan:output_type -> nightloom.v1.ReplanResponse
+	25, // 71: nightloom.v1.PlanService.NextAssignment:output_type -> nightloom.v1.NextAssignmentResponse
+	27, // 72: nightloom.v1.PlanService.WatchPlans:output_type -> nightloom.v1.WatchPlansResponse
+	67, // [67:73] is the sub-list for method output_type
+	61, // [61:67] is the sub-list for method input_type
+	61, // [61:61] is the sub-list for extension type_name
+	61, // [61:61] is the sub-list for extension extendee
+	0,  // [0:61] is the sub-list for field type_name
 }
 
 func init() { file_nightloom_v1_plan_proto_init() }
@@ -2675,6 +2690,7 @@ func file_nightloom_v1_plan_proto_init() {
 		return
 	}
 	file_nightloom_v1_common_proto_init()
+	file_nightloom_v1_program_proto_init()
 	file_nightloom_v1_plan_proto_msgTypes[2].OneofWrappers = []any{}
 	file_nightloom_v1_plan_proto_msgTypes[10].OneofWrappers = []any{
 		(*MakePlanRequest_Night)(nil),

@@ -264,7 +264,11 @@ type Block struct {
 	// When the block was queued. Output only.
 	CreateTime *timestamppb.Timestamp `protobuf:"bytes,19,opt,name=create_time,json=createTime,proto3" json:"create_time,omitempty"`
 	// When the block last changed (progress, state). Output only.
-	UpdateTime    *timestamppb.Timestamp `protobuf:"bytes,20,opt,name=update_time,json=updateTime,proto3" json:"update_time,omitempty"`
+	UpdateTime *timestamppb.Timestamp `protobuf:"bytes,20,opt,name=update_time,json=updateTime,proto3" json:"update_time,omitempty"`
+	// Name of the program whose time the block spends (program.proto); empty
+	// for none. The program must exist and, when it is held to a site, be
+	// held to the block's site. Set when queued; UpdateBlock cannot change it.
+	Program       string `protobuf:"bytes,21,opt,name=program,proto3" json:"program,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -437,6 +441,13 @@ func (x *Block) GetUpdateTime() *timestamppb.Timestamp {
 		return x.UpdateTime
 	}
 	return nil
+}
+
+func (x *Block) GetProgram() string {
+	if x != nil {
+		return x.Program
+	}
+	return ""
 }
 
 // What the control software did for a block.
@@ -1326,7 +1337,7 @@ const file_nightloom_v1_queue_proto_rawDesc = "" +
 	"\x18nightloom/v1/queue.proto\x12\fnightloom.v1\x1a\x1egoogle/protobuf/duration.proto\x1a google/protobuf/field_mask.proto\x1a\x1fgoogle/protobuf/timestamp.proto\x1a\x19nightloom/v1/common.proto\"y\n" +
 	"\aCadence\x125\n" +
 	"\binterval\x18\x01 \x01(\v2\x19.google.protobuf.DurationR\binterval\x127\n" +
-	"\ttolerance\x18\x02 \x01(\v2\x19.google.protobuf.DurationR\ttolerance\"\xd6\x06\n" +
+	"\ttolerance\x18\x02 \x01(\v2\x19.google.protobuf.DurationR\ttolerance\"\xf0\x06\n" +
 	"\x05Block\x12\x0e\n" +
 	"\x02id\x18\x01 \x01(\tR\x02id\x12\x17\n" +
 	"\asite_id\x18\x02 \x01(\tR\x06siteId\x12\x1b\n" +
@@ -1352,7 +1363,8 @@ const file_nightloom_v1_queue_proto_rawDesc = "" +
 	"\vcreate_time\x18\x13 \x01(\v2\x1a.google.protobuf.TimestampR\n" +
 	"createTime\x12;\n" +
 	"\vupdate_time\x18\x14 \x01(\v2\x1a.google.protobuf.TimestampR\n" +
-	"updateTime\"\xc6\x02\n" +
+	"updateTime\x12\x18\n" +
+	"\aprogram\x18\x15 \x01(\tR\aprogram\"\xc6\x02\n" +
 	"\x0eProgressReport\x12\x1b\n" +
 	"\treport_id\x18\x01 \x01(\tR\breportId\x12\x19\n" +
 	"\bblock_id\x18\x02 \x01(\tR\ablockId\x12\x1f\n" +

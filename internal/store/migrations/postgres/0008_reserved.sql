@@ -1,0 +1,1 @@
+-- 0008 (PostgreSQL): reserved, as migrations/0008_reserved.sql.
