@@ -52,6 +52,11 @@ type Store interface {
 	WithdrawMatching(ctx context.Context, siteID, targetID, actor string, keep func(Block) bool) ([]Block, error)
 	BlockEdits(ctx context.Context, blockID string) ([]BlockEdit, error)
 	TargetIDsByName(ctx context.Context, name string) ([]string, error)
+	CreateNetwork(ctx context.Context, n Network) (Network, error)
+	GetNetwork(ctx context.Context, id string) (Network, error)
+	ListNetworks(ctx context.Context, p Page) ([]Network, string, error)
+	NetworksOfSite(ctx context.Context, siteID string) ([]string, error)
+	DeleteNetwork(ctx context.Context, id string) error
 }
 
 // DB is an open nightloom database, SQLite or PostgreSQL. Its methods are
@@ -218,3 +223,21 @@ func (d *DB) BlockEdits(ctx context.Context, blockID string) ([]BlockEdit, error
 func (d *DB) TargetIDsByName(ctx context.Context, name string) ([]string, error) {
 	return d.impl.TargetIDsByName(ctx, name)
 }
+
+func (d *DB) CreateNetwork(ctx context.Context, n Network) (Network, error) {
+	return d.impl.CreateNetwork(ctx, n)
+}
+
+func (d *DB) GetNetwork(ctx context.Context, id string) (Network, error) {
+	return d.impl.GetNetwork(ctx, id)
+}
+
+func (d *DB) ListNetworks(ctx context.Context, p Page) ([]Network, string, error) {
+	return d.impl.ListNetworks(ctx, p)
+}
+
+func (d *DB) NetworksOfSite(ctx context.Context, siteID string) ([]string, error) {
+	return d.impl.NetworksOfSite(ctx, siteID)
+}
+
+func (d *DB) DeleteNetwork(ctx context.Context, id string) error { return d.impl.DeleteNetwork(ctx, id) }
