@@ -240,4 +240,6 @@ func (d *DB) NetworksOfSite(ctx context.Context, siteID string) ([]string, error
 	return d.impl.NetworksOfSite(ctx, siteID)
 }
 
-func (d *DB) DeleteNetwork(ctx context.Context, id string) error { return d.impl.DeleteNetwork(ctx, id) }
+func (d *DB) DeleteNetwork(ctx context.Context, id string) error {
+	return d.impl.DeleteNetwork(ctx, id)
+}
