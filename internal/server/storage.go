@@ -48,6 +48,12 @@ type Storage interface {
 	PlanByVersion(ctx context.Context, siteID string, v int64) (store.Plan, error)
 	LatestPlan(ctx context.Context, siteID string) (store.Plan, error)
 
+	CreateNetwork(ctx context.Context, n store.Network) (store.Network, error)
+	GetNetwork(ctx context.Context, id string) (store.Network, error)
+	ListNetworks(ctx context.Context, p store.Page) ([]store.Network, string, error)
+	NetworksOfSite(ctx context.Context, siteID string) ([]string, error)
+	DeleteNetwork(ctx context.Context, id string) error
+
 	TokenStore
 }
 

@@ -381,7 +381,7 @@ func (x *GetNetworkResponse) GetNetwork() *Network {
 // Request of ListNetworks.
 type ListNetworksRequest struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
-	// Networks per page, 0..1000; 0 means 100.
+	// Networks per page, 0..500; 0 means 50.
 	PageSize int32 `protobuf:"varint,1,opt,name=page_size,json=pageSize,proto3" json:"page_size,omitempty"`
 	// Token of the page to read, from next_page_token; empty for the first.
 	PageToken     string `protobuf:"bytes,2,opt,name=page_token,json=pageToken,proto3" json:"page_token,omitempty"`
