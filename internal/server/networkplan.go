@@ -544,7 +544,45 @@ func (s *Server) lockSites(ctx context.Context, ids []string) (func(), error) {
 }
 
 // errNoNetworkPlan: no member has a network plan covering the instant.
-var errNoNetworkPlan = errors.New("no member has a plan of the network covering that instant")
+var errNoNetworkPlan = errors.New("no member has a plan covering that instant or starting within a day of it")
+
+// currentNetworkPlan is the plan of a member that a network replan from
+// `from` continues: the latest version whose interval contains from, else,
+// since the members' nights start at different instants, the one that
+// starts first within a day after from. nil when there is none.
+func (s *Server) currentNetworkPlan(ctx context.Context, siteID string, from time.Time) (*nightloomv1.Plan, error) {
+	latest, err := s.db.LatestPlan(ctx, siteID)
+	if errors.Is(err, store.ErrNotFound) {
+		return nil, nil
+	}
+	if err != nil {
+		return nil, err
+	}
+	var best *store.Plan
+	for ver, n := latest.Version, 0; ver >= 1 && n < maxPlanScan; ver, n = ver-1, n+1 {
+		rec := latest
+		if ver != latest.Version {
+			if rec, err = s.db.PlanByVersion(ctx, siteID, ver); errors.Is(err, store.ErrNotFound) {
+				continue
+			} else if err != nil {
+				return nil, err
+			}
+		}
+		if !rec.End.After(from) || !rec.Start.Before(from.Add(24*time.Hour)) {
+			continue
+		}
+		if !from.Before(rec.Start) {
+			return planFromRecord(rec) // contains from
+		}
+		if best == nil || rec.Start.Before(best.Start) {
+			best = &rec
+		}
+	}
+	if best == nil {
+		return nil, nil
+	}
+	return planFromRecord(*best)
+}
 
 // replanNetwork plans the network again from `from`: every member whose
 // latest version covering `from` is a plan of this network gets a new
@@ -573,7 +611,7 @@ func (s *Server) replanNetwork(ctx context.Context, networkID string, from time.
 	job := &netJob{network: n, from: from, args: args, origin: origin}
 	var night *nightloomv1.LocalDate
 	for _, m := range sites {
-		old, err := s.latestCovering(ctx, m.pb.GetId(), from)
+		old, err := s.currentNetworkPlan(ctx, m.pb.GetId(), from)
 		if err != nil {
 			return nil, err
 		}
@@ -601,6 +639,10 @@ func (s *Server) replanNetwork(ctx context.Context, networkID string, from time.
 		}
 		if night == nil {
 			night = old.GetNight()
+		}
+		if from.Before(old.GetInterval().GetStart().AsTime()) && night != nil && old.GetNight() != nil &&
+			!civilOf(old.GetNight()).Equal(civilOf(night)) {
+			continue // a later night than the others'
 		}
 		job.members = append(job.members, &netMember{site: m, start: old.GetInterval().GetStart().AsTime(),
 			end: old.GetInterval().GetEnd().AsTime(), night: old.GetNight(), closures: cls, old: old, kept: kept, inProgress: inProgress})
