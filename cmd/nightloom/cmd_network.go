@@ -453,18 +453,42 @@ func (a *api) printNetworkNight(w io.Writer, n *pb.Network, nn *pb.NetworkNight)
 		return err
 	}
 	if len(nn.GetUnplaced()) > 0 {
-		fmt.Fprintln(w, "\nunplaced\tframes left\twhy not, site by site")
+		// What each unplaced block is (the network's and the members'
+		// own blocks).
+		blocks := map[string]*pb.Block{}
+		for _, id := range n.GetSiteIds() {
+			bs, err := a.allBlocks(&pb.ListBlocksRequest{SiteId: id})
+			if err != nil {
+				return err
+			}
+			for _, b := range bs {
+				blocks[b.GetId()] = b
+			}
+		}
+		fmt.Fprintln(w)
 		tw = newTable(w)
+		fmt.Fprintln(tw, "unplaced\tfilter\tframes left\twhy not, at each site that may take it")
 		for _, u := range nn.GetUnplaced() {
+			what := u.GetBlockId()
+			b := blocks[u.GetBlockId()]
+			if b != nil {
+				what = names[b.GetTargetId()]
+			}
 			var why []string
 			for _, s := range u.GetSites() {
+				if s.GetReason() == pb.SiteReason_SITE_REASON_NOT_ALLOWED {
+					continue // another site's own block, or not among the block's sites
+				}
 				reason := strings.ToLower(strings.ReplaceAll(enumName(s.GetReason().String(), "SITE_REASON_"), "_", " "))
 				if s.GetConstraint() != pb.Reason_REASON_UNSPECIFIED {
 					reason += " (" + strings.ToLower(strings.ReplaceAll(enumName(s.GetConstraint().String(), "REASON_"), "_", " ")) + ")"
 				}
 				why = append(why, siteName(s.GetSiteId())+": "+reason)
 			}
-			fmt.Fprintf(tw, "%s\t%d\t%s\n", u.GetBlockId(), u.GetFramesLeft(), strings.Join(why, "; "))
+			if len(why) == 0 {
+				why = []string{"no member may take it"}
+			}
+			fmt.Fprintf(tw, "%s\t%s\t%d\t%s\n", what, b.GetFilter(), u.GetFramesLeft(), strings.Join(why, "; "))
 		}
 		return tw.Flush()
 	}
