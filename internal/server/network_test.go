@@ -20,6 +20,7 @@ import (
 	"google.golang.org/grpc/codes"
 	"google.golang.org/protobuf/proto"
 
+	"github.com/nightloom/nightloom/internal/pgtest"
 	nightloomv1 "github.com/nightloom/nightloom/proto/nightloom/v1"
 )
 
@@ -43,9 +44,15 @@ type netEnv struct {
 	south, nrth string // target ids: dec -20 and dec +65, both near the meridian at local midnight
 }
 
-func newNetEnv(t *testing.T) *netEnv {
+// newNetEnv starts the server on a fresh SQLite file, or on the
+// PostgreSQL database of dsn when given.
+func newNetEnv(t *testing.T, dsn ...string) *netEnv {
 	t.Helper()
-	e := newEnv(t, "", withTCP(), func(c *Config) { c.ReplanPriority = -1 })
+	db := ""
+	if len(dsn) > 0 {
+		db = dsn[0]
+	}
+	e := newEnv(t, db, withTCP(), func(c *Config) { c.ReplanPriority = -1 })
 	ne := &netEnv{env: e, nets: nightloomv1.NewNetworkServiceClient(e.conn)}
 	ctx := e.admin()
 	east := testSite()
@@ -213,8 +220,14 @@ func TestNetworkBlockOnlyOneSiteCanDo(t *testing.T) {
 	}
 }
 
+// TestNetworkFramesNeverExceededAcrossSites runs on both stores: a real
+// SQLite file and PostgreSQL (Debian's postgresql; internal/pgtest).
 func TestNetworkFramesNeverExceededAcrossSites(t *testing.T) {
-	ne := newNetEnv(t)
+	t.Run("sqlite", func(t *testing.T) { testNetworkFrames(t, newNetEnv(t)) })
+	t.Run("postgres", func(t *testing.T) { testNetworkFrames(t, newNetEnv(t, pgtest.NewDatabase(t))) })
+}
+
+func testNetworkFrames(t *testing.T, ne *netEnv) {
 	// More frames than one site's night holds of the northern target
 	// (300 x 120 s = 10 h): the sites share it, never beyond what is wanted.
 	const wanted = 300
@@ -330,9 +343,15 @@ func TestNetworkReportsSeenByOtherSites(t *testing.T) {
 // TestNetworkWeatherMovesBlock: the roof of the site that sees a block
 // best stays shut all night; a Replan there (as its executor sends it)
 // re-solves the network, the block moves to the other site, and a
-// watcher of the other site gets the new version.
+// watcher of the other site gets the new version. On both stores (with
+// PostgreSQL the version reaches the watcher through the store's
+// notifications, and the members' planning locks are the database's).
 func TestNetworkWeatherMovesBlock(t *testing.T) {
-	ne := newNetEnv(t)
+	t.Run("sqlite", func(t *testing.T) { testNetworkWeather(t, newNetEnv(t)) })
+	t.Run("postgres", func(t *testing.T) { testNetworkWeather(t, newNetEnv(t, pgtest.NewDatabase(t))) })
+}
+
+func testNetworkWeather(t *testing.T, ne *netEnv) {
 	bs := ne.queue(t, ne.block(ne.nrth, "R", 12))
 	id := bs[0].GetId()
 	nn := ne.makePlan(t)

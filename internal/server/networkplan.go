@@ -70,6 +70,9 @@ type netPlanned struct {
 	separate  float64
 }
 
+// networkRounds is SolveNetwork's default number of rounds.
+const networkRounds = 3
+
 // capabilityOf is what a site's telescope can do (scheduler.Capability):
 // its filter wheel (nil when the site lists none) and aperture.
 func capabilityOf(s *nightloomv1.Site) scheduler.Capability {
@@ -105,12 +108,18 @@ func siteReasonOf(w scheduler.SiteWhy) nightloomv1.SiteReason {
 // converts every member's part.
 func (s *Server) solveNetwork(ctx context.Context, job *netJob) (*netPlanned, error) {
 	began := time.Now()
-	budget := job.args.budget
+	// The call's budget is for the whole joint search: SolveNetwork gives
+	// each site's first solve its Options.Budget (the sites in parallel),
+	// each coordinate step a third of it and each relocation three
+	// re-solves of a fifteenth (scheduler.NetworkInput), over its default
+	// 3 rounds of one step per site and 4 relocations per site.
+	n := float64(len(job.members))
+	budget := time.Duration(float64(job.args.budget) / (1 + networkRounds*(n/3+4*n/5)))
 	if budget <= 0 {
 		budget = time.Nanosecond
 	}
 	opts := scheduler.Options{Seed: uint64(job.args.seed), Budget: budget, Workers: runtime.GOMAXPROCS(0), Cancel: ctx.Done()}
-	in := scheduler.NetworkInput{From: job.from, Options: opts}
+	in := scheduler.NetworkInput{From: job.from, Options: opts, Rounds: networkRounds}
 	index := map[string]int{}
 	blocks := make([]scheduler.NetworkBlock, len(job.blocks))
 	for g, b := range job.blocks {

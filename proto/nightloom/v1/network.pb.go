@@ -801,8 +801,9 @@ type MakeNetworkPlanRequest struct {
 	Nights int32 `protobuf:"varint,3,opt,name=nights,proto3" json:"nights,omitempty"`
 	// Step of the constraint grid, 10 s..10 min; unset means 60 s.
 	GridStep *durationpb.Duration `protobuf:"bytes,4,opt,name=grid_step,json=gridStep,proto3" json:"grid_step,omitempty"`
-	// Wall-time budget of each site's first solve, 0..60 s; unset means the
-	// daemon's default. The joint search's re-solves take fractions of it.
+	// Wall-time budget of the joint search for the whole call, 0..60 s
+	// (shared by the nights; each site's solves and re-solves get their part
+	// of it); unset means the daemon's default.
 	TimeBudget *durationpb.Duration `protobuf:"bytes,5,opt,name=time_budget,json=timeBudget,proto3" json:"time_budget,omitempty"`
 	// Seed of the solver's random choices.
 	Seed int64 `protobuf:"varint,6,opt,name=seed,proto3" json:"seed,omitempty"`
