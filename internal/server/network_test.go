@@ -454,6 +454,20 @@ func TestNetworkRefusals(t *testing.T) {
 		code  codes.Code
 		field string
 	}{
+		{"aperture out of range", func() error {
+			s := testSiteWest()
+			s.Instrument.ApertureMm = -5
+			_, err := ne.sites.CreateSite(ne.admin(), &nightloomv1.CreateSiteRequest{Site: s})
+			return err
+		}, codes.InvalidArgument, "site.instrument.aperture_mm"},
+		{"time budget out of range", func() error {
+			_, err := ne.nets.MakeNetworkPlan(op, &nightloomv1.MakeNetworkPlanRequest{NetworkId: ne.network, Night: testNight, TimeBudget: dur(time.Hour)})
+			return err
+		}, codes.InvalidArgument, "time_budget"},
+		{"no night", func() error {
+			_, err := ne.nets.MakeNetworkPlan(op, &nightloomv1.MakeNetworkPlanRequest{NetworkId: ne.network})
+			return err
+		}, codes.InvalidArgument, "night"},
 		{"nights out of range", func() error {
 			_, err := ne.nets.MakeNetworkPlan(op, &nightloomv1.MakeNetworkPlanRequest{NetworkId: ne.network, Night: testNight, Nights: 99})
 			return err
