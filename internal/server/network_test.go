@@ -571,3 +571,41 @@ func TestNetworkRefusals(t *testing.T) {
 func metadataCtx(ctx context.Context, e *env, r Role) context.Context {
 	return withToken(ctx, e.tokens[r])
 }
+
+// TestNetworkTwoNights: the second night counts the first night's frames as
+// done (over both sites), so the two never plan more than is wanted.
+func TestNetworkTwoNights(t *testing.T) {
+	ne := newNetEnv(t)
+	const wanted = 800 // 800 x 120 s = 26.7 h: more than both sites' nights together
+	bs := ne.queue(t, ne.block(ne.nrth, "L", wanted))
+	r, err := ne.nets.MakeNetworkPlan(as(RoleOperator, ne.env), &nightloomv1.MakeNetworkPlanRequest{NetworkId: ne.network,
+		Night: testNight, Nights: 2, TimeBudget: dur(400 * time.Millisecond), Seed: 3})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(r.GetNights()) != 2 {
+		t.Fatalf("%d nights, want 2", len(r.GetNights()))
+	}
+	total := 0
+	for i, nn := range r.GetNights() {
+		if d := nn.GetNight().GetDay(); d != testNight.GetDay()+int32(i) {
+			t.Errorf("night %d is the %d-th", i, d)
+		}
+		n := 0
+		for _, f := range framesAt(nn, bs[0].GetId()) {
+			n += f
+		}
+		if n == 0 {
+			t.Errorf("night %d plans none of the block", i)
+		}
+		for _, p := range nn.GetPlans() {
+			if !proto.Equal(p.GetNight(), nn.GetNight()) {
+				t.Errorf("plan of %s on night %d is for %v", p.GetSiteId(), i, p.GetNight())
+			}
+		}
+		total += n
+	}
+	if total > wanted {
+		t.Fatalf("two nights plan %d frames of the %d wanted", total, wanted)
+	}
+}
