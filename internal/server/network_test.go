@@ -454,6 +454,13 @@ func TestNetworkRefusals(t *testing.T) {
 		code  codes.Code
 		field string
 	}{
+		{"closure that ends before it starts", func() error {
+			t0 := time.Date(2031, 3, 15, 22, 0, 0, 0, time.UTC)
+			_, err := ne.nets.MakeNetworkPlan(op, &nightloomv1.MakeNetworkPlanRequest{NetworkId: ne.network, Night: testNight,
+				Closures: []*nightloomv1.SiteClosure{{SiteId: ne.east, Closure: &nightloomv1.Closure{Interval: &nightloomv1.TimeInterval{
+					Start: ts(t0), End: ts(t0.Add(-time.Hour))}}}}})
+			return err
+		}, codes.InvalidArgument, "closures[0].closure.interval.end"},
 		{"aperture out of range", func() error {
 			s := testSiteWest()
 			s.Instrument.ApertureMm = -5

@@ -370,7 +370,8 @@ func siteClosures(v *violations, path string, cs []*nightloomv1.SiteClosure, mem
 			v.add(p+".closure", "is required")
 			continue
 		}
-		closures(v, p, []*nightloomv1.Closure{c.GetClosure()}, 1)
+		interval(v, p+".closure.interval", c.GetClosure().GetInterval(), time.Nanosecond, 0)
+		text(v, p+".closure.reason", c.GetClosure().GetReason(), 0, MaxReasonBytes)
 		out[c.GetSiteId()] = append(out[c.GetSiteId()], c.GetClosure())
 	}
 	for k, cl := range out {
