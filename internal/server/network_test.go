@@ -296,6 +296,18 @@ func testNetworkFrames(t *testing.T, ne *netEnv) {
 		t.Fatalf("after %d frames offered by two sites: %d done, %d counted, state %v; want %d, %d, completed",
 			2*perSite*each, b.GetBlock().GetFramesDone(), sum, b.GetBlock().GetState(), wanted, wanted)
 	}
+	// An executor cannot report a run as another member's.
+	var westPlan string
+	for _, p := range nn.GetPlans() {
+		if p.GetSiteId() == ne.west {
+			westPlan = p.GetId()
+		}
+	}
+	_, err = ne.env.queue.ReportProgress(withToken(context.Background(), tokens[ne.east]), &nightloomv1.ReportProgressRequest{
+		Report: &nightloomv1.ProgressReport{ReportId: "east-as-west", BlockId: id, FramesKept: 1,
+			Interval: &nightloomv1.TimeInterval{Start: ts(end.Add(-time.Hour)), End: ts(end.Add(-50 * time.Minute))},
+			Outcome:  nightloomv1.ProgressOutcome_PROGRESS_OUTCOME_DONE, PlanId: westPlan}})
+	wantCode(t, err, codes.PermissionDenied, "a report naming another member's plan")
 }
 
 // TestNetworkReportsSeenByOtherSites: frames one site reports shrink what

@@ -29,12 +29,14 @@ package server
 
 import (
 	"context"
+	"errors"
 	"fmt"
 
 	"google.golang.org/grpc"
 	"google.golang.org/grpc/codes"
 	"google.golang.org/grpc/status"
 
+	"github.com/nightloom/nightloom/internal/store"
 	nightloomv1 "github.com/nightloom/nightloom/proto/nightloom/v1"
 )
 
@@ -158,7 +160,15 @@ func (s *Server) checkScope(ctx context.Context, site string, req any) error {
 	case *nightloomv1.WithdrawBlockRequest:
 		return blockSite(r.GetBlockId())
 	case *nightloomv1.ReportProgressRequest:
-		return blockMember(r.GetReport().GetBlockId())
+		if err := blockMember(r.GetReport().GetBlockId()); err != nil {
+			return err
+		}
+		// The plan a report names says which site ran it (networks.go):
+		// it must be one of this site's (an unknown id says nothing).
+		if err := planSite(r.GetReport().GetPlanId()); err != nil && !errors.Is(err, store.ErrNotFound) {
+			return err
+		}
+		return nil
 	case *nightloomv1.UpdateBlockRequest:
 		return blockSite(r.GetBlock().GetId())
 	case *nightloomv1.WithdrawBlocksRequest:
