@@ -628,3 +628,52 @@ func TestNetworkTwoNights(t *testing.T) {
 		t.Fatalf("two nights plan %d frames of the %d wanted", total, wanted)
 	}
 }
+
+// TestNetworkDispatchSeesOtherSitesReports: a member's executor asks for
+// its own next run only; when another member's reports have nearly filled
+// the block, the run it gets holds only the frames still wanted.
+func TestNetworkDispatchSeesOtherSitesReports(t *testing.T) {
+	ne := newNetEnv(t)
+	const wanted = 300
+	bs := ne.queue(t, ne.block(ne.nrth, "L", wanted))
+	id := bs[0].GetId()
+	nn := ne.makePlan(t)
+	var eastRun, westRun *nightloomv1.Assignment
+	var eastPlan string
+	for _, p := range nn.GetPlans() {
+		for _, a := range p.GetAssignments() {
+			if a.GetBlockId() != id {
+				continue
+			}
+			switch {
+			case p.GetSiteId() == ne.east && eastRun == nil:
+				eastRun, eastPlan = a, p.GetId()
+			case p.GetSiteId() == ne.west && westRun == nil && a.GetFrames() > 2:
+				westRun = a
+			}
+		}
+	}
+	if eastRun == nil || westRun == nil {
+		t.Fatalf("the block is not shared: east %v, west %v", eastRun, westRun)
+	}
+	now := westRun.GetPrepareStart().AsTime()
+	if !eastRun.GetEnd().AsTime().Before(now) {
+		t.Fatalf("the eastern run (%v) does not end before the western one starts (%v)", eastRun.GetEnd().AsTime(), now)
+	}
+	ne.clock.Set(now)
+	// The eastern site reports all but 2 of the frames the block wants.
+	if _, err := ne.env.queue.ReportProgress(as(RoleTelescope, ne.env), &nightloomv1.ReportProgressRequest{
+		Report: &nightloomv1.ProgressReport{ReportId: "east-nearly-all", BlockId: id, FramesKept: wanted - 2,
+			Interval: &nightloomv1.TimeInterval{Start: ts(now.Add(-12 * time.Hour)), End: ts(now.Add(-time.Minute))},
+			Outcome:  nightloomv1.ProgressOutcome_PROGRESS_OUTCOME_DONE, PlanId: eastPlan}}); err != nil {
+		t.Fatal(err)
+	}
+	next, err := ne.plans.NextAssignment(as(RoleTelescope, ne.env), &nightloomv1.NextAssignmentRequest{SiteId: ne.west, Now: ts(now)})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if next.GetAssignment().GetBlockId() != id || next.GetAssignment().GetFrames() > 2 {
+		t.Fatalf("the western executor is sent %d frames of %s (planned %d); want at most the 2 left",
+			next.GetAssignment().GetFrames(), next.GetAssignment().GetBlockId(), westRun.GetFrames())
+	}
+}
