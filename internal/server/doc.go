@@ -18,8 +18,11 @@
 //     recovery. errors.go: field violations and storage-error codes.
 //   - validate.go, sitemodel.go, targetmodel.go, blockmodel.go: request
 //     checks (limits.go holds every limit) and conversion to the domain.
-//   - sites.go, targets.go, queue.go, plans.go, sky.go: the services.
-//   - planning.go: the only file that talks to the scheduler.
+//   - sites.go, targets.go, queue.go, plans.go, sky.go, networks.go: the
+//     services.
+//   - planning.go and networkplan.go (a network of sites, planned jointly
+//     by scheduler.SolveNetwork): the only files that talk to the
+//     scheduler.
 //   - hub.go: WatchPlans fan-out with bounded buffers. metrics.go:
 //     Prometheus. observe.go: one target seen from a site at an instant.
 //
@@ -33,13 +36,14 @@
 // base64url after "nlt_"; only their SHA-256 is stored, and neither the
 // token nor its hash is logged (logs name the token's id). The roles:
 //
-//   - viewer: Get/List of sites, targets, blocks and plans; SkyService;
+//   - viewer: Get/List of sites, targets, blocks, plans and networks; SkyService;
 //     CatalogueService;
 //     NextAssignment and WatchPlans (both read-only);
 //   - operator: what viewer may, plus QueueBlocks, WithdrawBlock,
-//     ReportProgress, MakePlan and Replan;
+//     ReportProgress, MakePlan, Replan, MakeNetworkPlan and ReplanNetwork;
 //   - telescope: GetBlock, ListBlocks, GetPlan, ListPlans, NextAssignment,
-//     WatchPlans and ReportProgress;
+//     WatchPlans, ReportProgress, Replan, ReplanNetwork, GetNetwork and
+//     ListNetworks;
 //   - admin: everything, sites and targets included.
 //
 // methodRoles in auth.go is the one table; a method missing from it is
