@@ -1,4 +1,4 @@
-// Package server is nightloom's gRPC service: the five services of
+// Package server is nightloom's gRPC service: the services of
 // proto/nightloom/v1 over a store (Storage, implemented by internal/store),
 // with request validation, bearer-token roles, error mapping, metrics, a
 // fan-out hub for WatchPlans, and the daemon's start-up and shutdown
