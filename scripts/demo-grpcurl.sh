@@ -5,7 +5,8 @@
 # claim that the demo files are plain API requests.
 #
 # The files are sent as they are, except for what only a running daemon
-# knows: the ids ("SITE_ID", "TARGET_ID", "BLOCK_ID", "PLAN_ID", an absent
+# knows: the ids ("SITE_ID", "SITE_ID_WEST", "NETWORK_ID", "TARGET_ID",
+# "BLOCK_ID", "PLAN_ID", an absent
 # siteId, and the client's "@NAME" target references in blocks.json) are
 # filled in with jq. The daemon runs on a simulated clock that starts on the
 # afternoon of the demo night and runs 3600 times faster than real time, so
@@ -101,4 +102,13 @@ fix=".report.blockId = \"$block\" | .report.planId = \"$plan_id\"" call QueueSer
 fix=".siteId = \"$site\"" call PlanService/Replan testdata/demo/replan.json >/dev/null
 fix=".siteId = \"$site\"" call SkyService/Ephemeris testdata/demo/ephemeris.json >/dev/null
 fix=".siteId = \"$site\"" call SkyService/Visibility testdata/demo/visibility.json >/dev/null
+# The network: the second site, the network of both ("SITE_ID",
+# "SITE_ID_WEST"), its block ("NETWORK_ID", "@NLV 59") and its night.
+west=$(fix='.' call SiteService/CreateSite testdata/demo/site-west.json | jq -r .site.id)
+network=$(fix=".network.siteIds = [\"$site\", \"$west\"]" call NetworkService/CreateNetwork testdata/demo/network.json | jq -r .network.id)
+body=$(jq -c --argjson m "$names" --arg n "$network" \
+	'.blocks |= map(.networkId = $n | if (.targetId | startswith("@")) then .targetId = $m[.targetId[1:]] else . end)' testdata/demo/network-blocks.json)
+echo "$body" >"$tmp/network-blocks.json"
+fix='.' call QueueService/QueueBlocks "$tmp/network-blocks.json" >/dev/null
+fix=".networkId = \"$network\"" call NetworkService/MakeNetworkPlan testdata/demo/network-plan.json >/dev/null
 echo "demo-grpcurl.sh: $(wc -l <"$tmp/sent" | tr -d ' ') requests from testdata/demo sent with grpcurl $GRPCURL_VERSION, all succeeded"

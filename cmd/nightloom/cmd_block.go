@@ -44,13 +44,29 @@ const targetRef = "@"
 func runBlockQueue(args []string, stdout, stderr io.Writer) error {
 	r := newRemote("block queue", stderr)
 	file := r.fs.String("file", "", "QueueBlocksRequest as protobuf JSON (- for stdin); required")
-	site := r.fs.String("site", "", "site id for blocks whose siteId is empty")
+	site := r.fs.String("site", "", "site id for blocks whose siteId is empty (with --network: their home member)")
+	network := r.fs.String("network", "", "queue the file's blocks without a site for this network (id or name): each runs once, at the member that serves it best")
+	sites := r.fs.String("sites", "", "with --network: the member sites that may take the blocks, comma-separated ids or names (default: every member)")
+	minAperture := r.fs.Float64("min-aperture", 0, "with --network: smallest telescope aperture the blocks need, in mm")
+	minScale := r.fs.Float64("min-pixel-scale", 0, "with --network: smallest pixel scale the blocks accept, arcsec/px")
+	maxScale := r.fs.Float64("max-pixel-scale", 0, "with --network: largest pixel scale the blocks accept, arcsec/px (0: no limit)")
 	program := r.fs.String("program", "", "name of the program whose time the blocks spend, for blocks whose program is empty")
 	if err := parseFlags(r.fs, args); err != nil {
 		return err
 	}
 	if *file == "" {
 		return flagError("file", "required: a QueueBlocksRequest JSON file (see testdata/demo/blocks.json)")
+	}
+	if *network == "" {
+		for name, set := range map[string]bool{"sites": *sites != "", "min-aperture": *minAperture != 0,
+			"min-pixel-scale": *minScale != 0, "max-pixel-scale": *maxScale != 0} {
+			if set {
+				return flagError(name, "only with --network")
+			}
+		}
+	}
+	if *minAperture < 0 || *minScale < 0 || *maxScale < 0 {
+		return flagError("min-aperture", "--min-aperture, --min-pixel-scale and --max-pixel-scale must be >= 0")
 	}
 	req := &pb.QueueBlocksRequest{}
 	if err := readRequest(*file, req); err != nil {
@@ -68,6 +84,34 @@ func runBlockQueue(args []string, stdout, stderr io.Writer) error {
 		return err
 	}
 	defer a.Close()
+	if *network != "" {
+		n, err := a.resolveNetwork("network", *network)
+		if err != nil {
+			return err
+		}
+		var allowed []string
+		if refs := splitList(*sites); len(refs) > 0 {
+			if allowed, err = a.resolveSites("sites", refs); err != nil {
+				return err
+			}
+		}
+		for _, b := range req.GetBlocks() {
+			if b.GetSiteId() != "" && b.GetNetworkId() == "" {
+				continue // a block of one site stays one
+			}
+			b.NetworkId = n.GetId()
+			if b.GetSiteId() == "" {
+				b.SiteId = *site // may stay empty: the server takes the first allowed member
+			}
+			if len(allowed) > 0 {
+				b.AllowedSiteIds = allowed
+			}
+			if *minAperture > 0 || *minScale > 0 || *maxScale > 0 {
+				b.Needs = &pb.TelescopeNeeds{MinApertureMm: *minAperture, MinPixelScaleArcsec: *minScale, MaxPixelScaleArcsec: *maxScale}
+			}
+		}
+		*site = ""
+	}
 	resp, err := a.queueBlocks(*file, req, *site, stderr)
 	if err != nil {
 		return err
@@ -96,7 +140,7 @@ func (a *api) queueBlocks(path string, req *pb.QueueBlocksRequest, site string, 
 	}
 	var byName map[string][]string
 	for i, b := range req.GetBlocks() {
-		if b.GetSiteId() == "" {
+		if b.GetSiteId() == "" && b.GetNetworkId() == "" {
 			if site == "" {
 				return nil, &fileError{path, fmt.Errorf("field blocks[%d].site_id: empty (give --site to fill it)", i)}
 			}

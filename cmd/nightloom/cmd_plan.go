@@ -76,10 +76,21 @@ func runPlanMake(args []string, stdout, stderr io.Writer) error {
 	step := r.fs.Duration("step", 0, "constraint grid step, e.g. 60s (0: server default)")
 	budget := r.fs.Duration("budget", 0, "solver time budget for the whole call, e.g. 2s (0: server default)")
 	seed := r.fs.Int64("seed", 0, "seed of the solver's random choices")
+	network := r.fs.String("network", "", "plan every member site of this network (id or name) jointly instead of one site")
+	chartDir := r.fs.String("chart-dir", "", "with --network: write one chart per member site and night into this folder")
 	var closures multiFlag
-	r.fs.Var(&closures, "closure", "known closure START/END[/REASON] or START/+DURATION[/REASON] (repeatable)")
+	r.fs.Var(&closures, "closure", "known closure START/END[/REASON] or START/+DURATION[/REASON] (repeatable); with --network SITE=START/END[/REASON]")
 	if err := parseFlags(r.fs, args); err != nil {
 		return err
+	}
+	if *network != "" {
+		if *site != "" || *file != "" || *from != "" || *to != "" {
+			return flagError("network", "plans a network's nights: give --night, not --site, --file or --from/--to")
+		}
+		return runPlanMakeNetwork(r, *network, *night, *nights, *step, *budget, *seed, closures, *chartDir, stdout, stderr)
+	}
+	if *chartDir != "" {
+		return flagError("chart-dir", "only with --network (for one site use `plan chart`)")
 	}
 	req := &pb.MakePlanRequest{}
 	if *file != "" {

@@ -39,6 +39,7 @@ func newRemote(name string, stderr io.Writer) remote {
 func runSiteCreate(args []string, stdout, stderr io.Writer) error {
 	r := newRemote("site create", stderr)
 	file := r.fs.String("file", "", "CreateSiteRequest as protobuf JSON (- for stdin); required")
+	capf := addCapabilityFlags(r.fs)
 	if err := parseFlags(r.fs, args); err != nil {
 		return err
 	}
@@ -47,6 +48,12 @@ func runSiteCreate(args []string, stdout, stderr io.Writer) error {
 	}
 	req := &pb.CreateSiteRequest{}
 	if err := readRequest(*file, req); err != nil {
+		return err
+	}
+	if req.Site == nil {
+		req.Site = &pb.Site{}
+	}
+	if _, err := capf.apply(r.fs, req.Site); err != nil {
 		return err
 	}
 	a, err := r.conn.dial(stderr)
@@ -138,6 +145,7 @@ func runSiteUpdate(args []string, stdout, stderr io.Writer) error {
 	file := r.fs.String("file", "", "UpdateSiteRequest as protobuf JSON (- for stdin); required")
 	id := r.fs.String("site", "", "id of the site, overriding site.id in the file")
 	mask := r.fs.String("mask", "", "comma-separated field paths to replace (e.g. name,horizon), overriding updateMask in the file")
+	capf := addCapabilityFlags(r.fs)
 	if err := parseFlags(r.fs, args); err != nil {
 		return err
 	}
@@ -159,6 +167,18 @@ func runSiteUpdate(args []string, stdout, stderr io.Writer) error {
 	}
 	if *mask != "" {
 		req.UpdateMask = &fieldmaskpb.FieldMask{Paths: strings.Split(*mask, ",")}
+	}
+	// Capability flags replace their fields only (added to the mask; with
+	// no mask they are the mask, so the rest of the site stays).
+	paths, err := capf.apply(r.fs, req.Site)
+	if err != nil {
+		return err
+	}
+	if len(paths) > 0 {
+		if req.UpdateMask == nil {
+			req.UpdateMask = &fieldmaskpb.FieldMask{}
+		}
+		req.UpdateMask.Paths = append(req.UpdateMask.Paths, paths...)
 	}
 	a, err := r.conn.dial(stderr)
 	if err != nil {
@@ -232,6 +252,9 @@ func printSite(w io.Writer, s *pb.Site) error {
 	}
 	in := s.GetInstrument()
 	fmt.Fprintf(tw, "camera\t%.2f arcsec/px\tfilters %s\n", in.GetPixelScaleArcsec(), strings.Join(in.GetFilters(), " "))
+	if in.GetApertureMm() > 0 {
+		fmt.Fprintf(tw, "aperture\t%.0f mm\t\n", in.GetApertureMm())
+	}
 	fmt.Fprintf(tw, "overheads\t\tfilter change %s, readout %s, dither %s, acquisition %s\n", dur(in.GetFilterChange()),
 		dur(in.GetReadout()), dur(in.GetDither()), dur(in.GetAcquisition()))
 	if f := in.GetFocus(); f != nil {
@@ -258,4 +281,42 @@ func printSite(w io.Writer, s *pb.Site) error {
 	fmt.Fprintf(tw, "created\t%s\t\n", c.full(s.GetCreateTime()))
 	fmt.Fprintf(tw, "updated\t%s\t\n", c.full(s.GetUpdateTime()))
 	return tw.Flush()
+}
+
+// capabilityFlags are what a site's telescope can do, for network
+// planning: the filters in its wheel and its aperture.
+type capabilityFlags struct {
+	filters  *string
+	aperture *float64
+}
+
+func addCapabilityFlags(fs *flag.FlagSet) capabilityFlags {
+	return capabilityFlags{
+		filters:  fs.String("filters", "", "filters in the wheel, comma-separated (replaces instrument.filters)"),
+		aperture: fs.Float64("aperture-mm", 0, "clear aperture of the telescope in mm (instrument.aperture_mm; network blocks may need a minimum)"),
+	}
+}
+
+// apply sets the given flags on s and returns their field paths.
+func (c capabilityFlags) apply(fs *flag.FlagSet, s *pb.Site) ([]string, error) {
+	set := map[string]bool{}
+	fs.Visit(func(f *flag.Flag) { set[f.Name] = true })
+	var paths []string
+	if set["filters"] || set["aperture-mm"] {
+		if s.Instrument == nil {
+			s.Instrument = &pb.Instrument{}
+		}
+	}
+	if set["filters"] {
+		s.Instrument.Filters = splitList(*c.filters)
+		paths = append(paths, "instrument.filters")
+	}
+	if set["aperture-mm"] {
+		if *c.aperture < 0 || *c.aperture > 20000 {
+			return nil, flagError("aperture-mm", "must be within 0..20000 mm, got %v", *c.aperture)
+		}
+		s.Instrument.ApertureMm = *c.aperture
+		paths = append(paths, "instrument.aperture_mm")
+	}
+	return paths, nil
 }

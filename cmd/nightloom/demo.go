@@ -208,8 +208,177 @@ func demo(stdout, stderr io.Writer, outDir string, verbose bool, budget time.Dur
 		return err
 	}
 	fmt.Fprintf(stdout, "\nChart of the replanned night: %s\n", replanPNG)
-	fmt.Fprintf(stdout, "Demo finished in %.1f s.\n", time.Since(began).Seconds())
+
+	// 6. A network: a partner on another continent, one queue.
+	if err := demoNetwork(a, stdout, stderr, outDir, site, budget); err != nil {
+		return err
+	}
+	fmt.Fprintf(stdout, "\nDemo finished in %.1f s.\n", time.Since(began).Seconds())
 	return nil
+}
+
+// demoNetwork is the demo's last step: the invented Tecolote Mesa in
+// Arizona joins the observatory in the invented network "Two Owls", a
+// dense light curve of the eclipsing binary NLV 59 is queued for the
+// network, and the next night is planned jointly: the star is followed
+// from France in the evening and from Arizona after the French dawn.
+func demoNetwork(a *api, stdout, stderr io.Writer, outDir string, home *pb.Site, budget time.Duration) error {
+	sreq := &pb.CreateSiteRequest{}
+	if err := readDemoRequest("site-west.json", sreq); err != nil {
+		return err
+	}
+	ctx, cancel := a.ctx()
+	sr, err := a.sites.CreateSite(ctx, sreq)
+	cancel()
+	if err != nil {
+		return fmt.Errorf("testdata/demo/site-west.json: %w", a.callErr("CreateSite", err))
+	}
+	west := sr.GetSite()
+	nreq := &pb.CreateNetworkRequest{}
+	if err := readDemoRequest("network.json", nreq); err != nil {
+		return err
+	}
+	nreq.Network.SiteIds = []string{home.GetId(), west.GetId()} // the file's SITE_ID, SITE_ID_WEST
+	ctx, cancel = a.ctx()
+	nr, err := a.networks().CreateNetwork(ctx, nreq)
+	cancel()
+	if err != nil {
+		return fmt.Errorf("testdata/demo/network.json: %w", a.callErr("CreateNetwork", err))
+	}
+	network := nr.GetNetwork()
+	breq := &pb.QueueBlocksRequest{}
+	if err := readDemoRequest("network-blocks.json", breq); err != nil {
+		return err
+	}
+	for _, b := range breq.GetBlocks() {
+		b.NetworkId = network.GetId() // the file's NETWORK_ID
+	}
+	qr, err := a.queueBlocks("testdata/demo/network-blocks.json", breq, "", stderr)
+	if err != nil {
+		return err
+	}
+	// The observatory's own two-hourly light curve of the star gives way
+	// to the network's.
+	withdrawn := 0
+	for _, b := range qr.GetBlocks() {
+		ctx, cancel := a.ctx()
+		wr, err := a.queue.WithdrawBlocks(ctx, &pb.WithdrawBlocksRequest{SiteId: home.GetId(), TargetId: b.GetTargetId(),
+			Reason: "followed by the network from now on"})
+		cancel()
+		if err != nil {
+			return a.callErr("WithdrawBlocks", err)
+		}
+		withdrawn += len(wr.GetBlocks())
+	}
+	fmt.Fprintf(stdout, "\n6. A network: %q joins the observatory in %q\n", west.GetName(), network.GetName())
+	fmt.Fprintf(stdout, "   %s: %.2f N %.2f W, %.0f m, %s, %s mount, %.0f mm, filters %s\n", west.GetName(), west.GetLatitudeDeg(),
+		-west.GetLongitudeDeg(), west.GetElevationM(), west.GetTimeZone(), enumName(west.GetMount().GetKind().String(), "MOUNT_KIND_"),
+		west.GetInstrument().GetApertureMm(), strings.Join(west.GetInstrument().GetFilters(), " "))
+	for _, b := range qr.GetBlocks() {
+		fmt.Fprintf(stdout, "   queued for the network: %s %dx%s in runs of %d every %s (%s)\n", b.GetFilter(), b.GetFramesWanted(),
+			dur(b.GetExposure()), b.GetMaxRunFrames(), dur(b.GetCadence().GetInterval()), b.GetLabel())
+	}
+	fmt.Fprintf(stdout, "   (the observatory's own block of the star withdrawn: %d)\n", withdrawn)
+	fmt.Fprintf(stdout, "   Each block of the network runs once, at the member where it is worth most; the observatory's own\n")
+	fmt.Fprintf(stdout, "   blocks stay at home. The eclipsing binary is followed across both sites: the French night ends\n")
+	fmt.Fprintf(stdout, "   seven hours before the Arizona one, and the light curve hands over.\n\n")
+	preq := &pb.MakeNetworkPlanRequest{}
+	if err := readDemoRequest("network-plan.json", preq); err != nil {
+		return err
+	}
+	preq.NetworkId = network.GetId()
+	preq.TimeBudget = durationpb.New(budget)
+	ctx, cancel = a.ctx()
+	pr, err := a.networks().MakeNetworkPlan(ctx, preq)
+	cancel()
+	if err != nil {
+		return fmt.Errorf("testdata/demo/network-plan.json: %w", a.callErr("MakeNetworkPlan", err))
+	}
+	for _, nn := range pr.GetNights() {
+		var w strings.Builder
+		if err := a.printNetworkNight(&w, network, nn); err != nil {
+			return err
+		}
+		for _, line := range strings.Split(strings.TrimRight(w.String(), "\n"), "\n") {
+			fmt.Fprintln(stdout, "   "+line)
+		}
+		fmt.Fprintln(stdout)
+		siteNames := map[string]string{home.GetId(): home.GetName(), west.GetId(): west.GetName()}
+		for _, l := range handovers(nn, qr.GetBlocks(), siteNames) {
+			fmt.Fprintln(stdout, "   "+l)
+		}
+		for _, p := range nn.GetPlans() {
+			spec, err := a.planChartSpec(p.GetId(), 2*time.Minute, 30*time.Minute)
+			if err != nil {
+				return err
+			}
+			name := "network-west.png"
+			if p.GetSiteId() == home.GetId() {
+				name = "network-home.png"
+			}
+			path := filepath.Join(outDir, name)
+			if err := writeChart(spec, path); err != nil {
+				return err
+			}
+			fmt.Fprintf(stdout, "   chart of the part of %s: %s\n", siteNames[p.GetSiteId()], path)
+		}
+	}
+	return nil
+}
+
+// handovers says, for each network block, where its runs go in UTC order
+// and when they pass from one site to the other.
+func handovers(nn *pb.NetworkNight, blocks []*pb.Block, names map[string]string) []string {
+	var out []string
+	for _, b := range blocks {
+		type run struct {
+			site       string
+			start, end time.Time
+		}
+		var runs []run
+		for _, p := range nn.GetPlans() {
+			for _, x := range p.GetAssignments() {
+				if x.GetBlockId() == b.GetId() {
+					runs = append(runs, run{p.GetSiteId(), x.GetStart().AsTime(), x.GetEnd().AsTime()})
+				}
+			}
+		}
+		sort.Slice(runs, func(i, j int) bool { return runs[i].start.Before(runs[j].start) })
+		if len(runs) == 0 {
+			out = append(out, fmt.Sprintf("%s: no run tonight", b.GetLabel()))
+			continue
+		}
+		// Per site: runs, first and last; over both: the longest gap.
+		type span struct {
+			n           int
+			first, last time.Time
+		}
+		per := map[string]*span{}
+		var order []string
+		gap := time.Duration(0)
+		for i, r := range runs {
+			s, ok := per[r.site]
+			if !ok {
+				s = &span{first: r.start}
+				per[r.site] = s
+				order = append(order, r.site)
+			}
+			s.n++
+			s.last = r.end
+			if i > 0 {
+				gap = max(gap, r.start.Sub(runs[i-1].start))
+			}
+		}
+		var parts []string
+		for _, id := range order {
+			s := per[id]
+			parts = append(parts, fmt.Sprintf("%s %d runs %s-%s", names[id], s.n, s.first.UTC().Format("15:04"), s.last.UTC().Format("15:04")))
+		}
+		out = append(out, fmt.Sprintf("%s: %d runs from %s to %s UTC, at most %s between two run starts;", b.GetLabel(), len(runs),
+			runs[0].start.UTC().Format("15:04"), runs[len(runs)-1].end.UTC().Format("15:04"), fmtDuration(gap)),
+			"  "+strings.Join(parts, "; ")+" UTC")
+	}
+	return out
 }
 
 // demoScenario is what the demo stored.

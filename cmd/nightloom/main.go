@@ -16,7 +16,8 @@
 //	nightloom site     create|get|list|update|delete
 //	nightloom target   create|get|list|update|delete
 //	nightloom block    queue|get|list|withdraw
-//	nightloom plan     make|show|list|replan|next|watch|chart
+//	nightloom plan     make|show|list|replan|next|watch|chart   (make --network NAME: every member site at once)
+//	nightloom network  create|list|show|delete|replan
 //	nightloom progress report
 //	nightloom program  create|show|list|update|delete|usage
 //	nightloom ephemeris | visibility | events
@@ -73,6 +74,7 @@ func commands() []command {
 		{name: "block", summary: "the queue of imaging blocks: queue, get, list, withdraw", sub: blockCommands()},
 		{name: "plan", summary: "plans: make, show, list, replan, next, watch, chart", sub: planCommands()},
 		{name: "program", summary: "programs of a shared telescope: create, show, list, update, delete, usage", sub: programCommands()},
+		{name: "network", summary: "networks of sites sharing one queue: create, list, show, delete, replan", sub: networkCommands()},
 		{name: "comet", summary: "a comet's measured magnitudes: report, refit the magnitude law, history", sub: cometCommands()},
 		{name: "progress", summary: "progress reports from the telescope control software: report", sub: progressCommands()},
 		{name: "ephemeris", summary: "tabulate a target seen from a site (daemon)", run: runEphemeris},

@@ -49,6 +49,8 @@ var commandRoles = map[string][]string{
 	"outlook":        {rViewer, rOperator, rAdmin},
 	"program create": {rAdmin}, "program update": {rAdmin}, "program delete": {rAdmin},
 	"program show": {rViewer, rOperator, rAdmin}, "program list": {rViewer, rOperator, rAdmin}, "program usage": {rViewer, rOperator, rAdmin},
+	"network create": {rAdmin}, "network list": allRoles, "network show": allRoles, "network delete": {rAdmin},
+	"network replan": {rTelescope, rOperator, rAdmin},
 }
 
 func TestCommandsByRole(t *testing.T) {
@@ -129,6 +131,17 @@ func TestCommandsByRole(t *testing.T) {
 	}
 	shared := freshProgram()
 	reportRun := map[string]int{rTelescope: 1, rOperator: 2, rAdmin: 3, rViewer: 4}
+	// A network of a fresh site with a plan of its night, for the network
+	// commands.
+	netSite := freshSite()
+	d.cli(t, "network", "create", "--name", "Role Network", "--sites", netSite).ok(t, "network create")
+	d.cli(t, "plan", "make", "--network", "Role Network", "--night", "2027-01-14", "--budget", "100ms").ok(t, "plan make --network")
+	freshNetwork := func() string {
+		n++
+		name := fmt.Sprintf("Role Network %d", n)
+		d.cli(t, "network", "create", "--name", name, "--sites", netSite).ok(t, "fresh network")
+		return name
+	}
 	commands := map[string]func(role string) []string{
 		"site create": func(string) []string { return []string{"site", "create", "--file", demoFile("site.json")} },
 		"site get":    func(string) []string { return []string{"site", "get", "--site", sid} },
@@ -210,6 +223,16 @@ func TestCommandsByRole(t *testing.T) {
 		"program usage":  func(string) []string { return []string{"program", "usage", "--at", "2027-01-15"} },
 		"comet refit":    func(string) []string { return []string{"comet", "refit", "--target", cometID} },
 		"comet history":  func(string) []string { return []string{"comet", "history", "--target", cometID} },
+		"network create": func(r string) []string {
+			return []string{"network", "create", "--name", "Role Created " + r, "--sites", sid}
+		},
+		"network list":   func(string) []string { return []string{"network", "list"} },
+		"network show":   func(string) []string { return []string{"network", "show", "--network", "Role Network"} },
+		"network delete": func(string) []string { return []string{"network", "delete", "--network", freshNetwork()} },
+		"network replan": func(string) []string {
+			from := plan.GetInterval().GetStart().AsTime().Add(5 * time.Hour).UTC().Truncate(time.Minute).Format(time.RFC3339)
+			return []string{"network", "replan", "--network", "Role Network", "--from", from, "--budget", "100ms"}
+		},
 		"outlook": func(string) []string {
 			return []string{"outlook", "--site", sid, "--target", cometID, "--from", "2027-01-14", "--nights", "2"}
 		},

@@ -90,6 +90,13 @@ var methodRoles = map[string][]Role{
 
 	nightloomv1.ExportService_ExportPlan_FullMethodName: queueReaders,
 
+	nightloomv1.NetworkService_CreateNetwork_FullMethodName:   administrator,
+	nightloomv1.NetworkService_GetNetwork_FullMethodName:      queueReaders,
+	nightloomv1.NetworkService_ListNetworks_FullMethodName:    queueReaders,
+	nightloomv1.NetworkService_DeleteNetwork_FullMethodName:   administrator,
+	nightloomv1.NetworkService_MakeNetworkPlan_FullMethodName: planners,
+	nightloomv1.NetworkService_ReplanNetwork_FullMethodName:   replanners,
+
 	nightloomv1.PlanService_MakePlan_FullMethodName:       planners,
 	nightloomv1.PlanService_GetPlan_FullMethodName:        queueReaders,
 	nightloomv1.PlanService_ListPlans_FullMethodName:      queueReaders,

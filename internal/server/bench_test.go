@@ -109,3 +109,66 @@ func BenchmarkReportProgress(b *testing.B) {
 		})
 	})
 }
+
+var sinkNetwork *nightloomv1.MakeNetworkPlanResponse
+
+// BenchmarkMakeNetworkPlan is MakeNetworkPlan end to end over loopback TCP:
+// the two sites of network_test.go (Spain and New Mexico, 7 h apart), 200
+// network blocks on four targets, one night, the 60 s grid: loading,
+// the joint search (scheduler.SolveNetwork), storing one version per site.
+// Regimes: the daemon's default 1 s budget, and a zero budget (each site's
+// constructive schedule, then the coordinate steps and relocations), which
+// shows what the call costs besides the search. Metrics: runs planned over
+// both sites and the joint objective over the separate start's.
+func BenchmarkMakeNetworkPlan(b *testing.B) {
+	e := newEnv(b, "", withTCP(), func(c *Config) { c.DefaultTimeBudget = DefaultTimeBudget; c.ReplanPriority = -1 })
+	f := e.seed(b, 0)
+	ctx := e.admin()
+	west, err := e.sites.CreateSite(ctx, &nightloomv1.CreateSiteRequest{Site: testSiteWest()})
+	if err != nil {
+		b.Fatal(err)
+	}
+	n, err := nightloomv1.NewNetworkServiceClient(e.conn).CreateNetwork(ctx, &nightloomv1.CreateNetworkRequest{Network: &nightloomv1.Network{
+		Name: "Bench Network", SiteIds: []string{f.site.GetId(), west.GetSite().GetId()}}})
+	if err != nil {
+		b.Fatal(err)
+	}
+	var bs []*nightloomv1.Block
+	filters := []string{"L", "R", "G", "B"}
+	for i := 0; i < 200; i++ {
+		blk := testBlock("", f.targets[i%4].GetId(), filters[i%4], int32(10+i%7), int32(1+i%7))
+		blk.NetworkId = n.GetNetwork().GetId()
+		bs = append(bs, blk)
+	}
+	if _, err := e.queue.QueueBlocks(as(RoleOperator, e), &nightloomv1.QueueBlocksRequest{Blocks: bs}); err != nil {
+		b.Fatal(err)
+	}
+	nets := nightloomv1.NewNetworkServiceClient(e.conn)
+	for _, budget := range []*durationpb.Duration{nil, dur(0)} {
+		name := "budget=default"
+		if budget != nil {
+			name = "budget=0"
+		}
+		b.Run(name, func(b *testing.B) {
+			req := &nightloomv1.MakeNetworkPlanRequest{NetworkId: n.GetNetwork().GetId(), Night: testNight, Seed: 1, TimeBudget: budget}
+			b.ReportAllocs()
+			var runs int
+			var ratio float64
+			for b.Loop() {
+				resp, err := nets.MakeNetworkPlan(as(RoleOperator, e), req)
+				if err != nil {
+					b.Fatal(err)
+				}
+				sinkNetwork = resp
+				nn := resp.GetNights()[0]
+				runs = 0
+				for _, p := range nn.GetPlans() {
+					runs += len(p.GetAssignments())
+				}
+				ratio = nn.GetObjective() / nn.GetSeparateObjective()
+			}
+			b.ReportMetric(float64(runs), "runs")
+			b.ReportMetric(ratio, "joint/separate")
+		})
+	}
+}

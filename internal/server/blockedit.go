@@ -146,6 +146,9 @@ func (x *queueService) WithdrawBlocks(ctx context.Context, req *nightloomv1.With
 	// Only open blocks: a queued block whose latest night is over is
 	// EXPIRED in the API and stays as it is.
 	open := func(b store.Block) bool {
+		if b.NetworkID != "" {
+			return false // the network's, not the site's (WithdrawBlock takes it)
+		}
 		pb, err := blockProto(b, site, now)
 		return err == nil && pb.GetState() == nightloomv1.BlockState_BLOCK_STATE_OPEN
 	}

@@ -169,7 +169,20 @@ func checkBlockStatic(v *violations, path string, b *nightloomv1.Block) {
 		v.add(path, "is required")
 		return
 	}
-	requiredID(v, path+".site_id", b.GetSiteId())
+	if b.GetNetworkId() == "" {
+		requiredID(v, path+".site_id", b.GetSiteId())
+		if len(b.GetAllowedSiteIds()) > 0 {
+			v.add(path+".allowed_site_ids", "only for a network block (network_id)")
+		}
+		if b.GetNeeds() != nil {
+			v.add(path+".needs", "only for a network block (network_id)")
+		}
+	} else {
+		optionalID(v, path+".site_id", b.GetSiteId())
+		requiredID(v, path+".network_id", b.GetNetworkId())
+		checkAllowedSites(v, path+".allowed_site_ids", b.GetAllowedSiteIds())
+		checkNeeds(v, path+".needs", b.GetNeeds())
+	}
 	requiredID(v, path+".target_id", b.GetTargetId())
 	text(v, path+".label", b.GetLabel(), 0, MaxLabelBytes)
 	text(v, path+".filter", b.GetFilter(), 1, MaxFilterBytes)
@@ -204,7 +217,9 @@ func checkBlockStatic(v *violations, path string, b *nightloomv1.Block) {
 // the filter must be one of the site's, and non-sidereal tracking needs an
 // orbit target.
 func checkBlockRefs(v *violations, path string, b *nightloomv1.Block, site *nightloomv1.Site, target *nightloomv1.Target) {
-	if fs := site.GetInstrument().GetFilters(); len(fs) > 0 {
+	if b.GetNetworkId() != "" {
+		// checkNetworkBlock checks the filter against the members.
+	} else if fs := site.GetInstrument().GetFilters(); len(fs) > 0 {
 		found := false
 		for _, f := range fs {
 			found = found || f == b.GetFilter()
@@ -227,7 +242,7 @@ func blockProto(rec store.Block, site *siteModel, now time.Time) (*nightloomv1.B
 		return nil, err
 	}
 	b.Id = rec.ID
-	b.SiteId, b.TargetId = rec.SiteID, rec.TargetID
+	b.SiteId, b.TargetId, b.NetworkId = rec.SiteID, rec.TargetID, rec.NetworkID
 	// The store's reference is the truth: it is cleared when the program
 	// is deleted.
 	b.Program = rec.Program

@@ -1,4 +1,4 @@
-// Package server is nightloom's gRPC service: the five services of
+// Package server is nightloom's gRPC service: the services of
 // proto/nightloom/v1 over a store (Storage, implemented by internal/store),
 // with request validation, bearer-token roles, error mapping, metrics, a
 // fan-out hub for WatchPlans, and the daemon's start-up and shutdown
@@ -18,8 +18,11 @@
 //     recovery. errors.go: field violations and storage-error codes.
 //   - validate.go, sitemodel.go, targetmodel.go, blockmodel.go: request
 //     checks (limits.go holds every limit) and conversion to the domain.
-//   - sites.go, targets.go, queue.go, plans.go, sky.go: the services.
-//   - planning.go: the only file that talks to the scheduler.
+//   - sites.go, targets.go, queue.go, plans.go, sky.go, networks.go: the
+//     services.
+//   - planning.go and networkplan.go (a network of sites, planned jointly
+//     by scheduler.SolveNetwork): the only files that talk to the
+//     scheduler.
 //   - hub.go: WatchPlans fan-out with bounded buffers. metrics.go:
 //     Prometheus. observe.go: one target seen from a site at an instant.
 //
@@ -33,14 +36,15 @@
 // base64url after "nlt_"; only their SHA-256 is stored, and neither the
 // token nor its hash is logged (logs name the token's id). The roles:
 //
-//   - viewer: Get/List of sites, targets, blocks, plans and programs,
-//     GetProgramUsage; SkyService; CatalogueService;
+//   - viewer: Get/List of sites, targets, blocks, plans, programs and
+//     networks, GetProgramUsage; SkyService; CatalogueService;
 //     NextAssignment and WatchPlans (both read-only);
 //   - operator: what viewer may, plus QueueBlocks, WithdrawBlock,
-//     ReportProgress, MakePlan and Replan;
+//     ReportProgress, MakePlan, Replan, MakeNetworkPlan and ReplanNetwork;
 //   - telescope: GetBlock, ListBlocks, GetPlan, ListPlans, NextAssignment,
-//     WatchPlans and ReportProgress;
-//   - admin: everything, sites, targets and programs included.
+//     WatchPlans, ReportProgress, Replan, ReplanNetwork, GetNetwork and
+//     ListNetworks;
+//   - admin: everything, sites, targets, programs and networks included.
 //
 // methodRoles in auth.go is the one table; a method missing from it is
 // refused for everyone, and a test walks the service descriptors so that a

@@ -98,4 +98,12 @@ const (
 	MaxFramesWanted     = 100_000
 	MaxDitherEvery      = 10_000
 	MaxListStateFilters = 8
+
+	// Networks (network.proto).
+	MaxNetworkSites        = 32     // members of one network
+	MaxAllowedSites        = 64     // Block.allowed_site_ids
+	MaxNetworkNights       = 14     // MakeNetworkPlanRequest.nights
+	MaxDescriptionBytes    = 1000   // Network.description
+	MaxApertureMM          = 20_000 // Instrument.aperture_mm, TelescopeNeeds.min_aperture_mm
+	MaxNeedsPixelScaleArcs = 60     // TelescopeNeeds pixel scales, as Instrument.pixel_scale_arcsec
 )

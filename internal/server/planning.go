@@ -5,7 +5,8 @@ package server
 // runs kept from an earlier version) into scheduler inputs, runs the solver,
 // and turns its plan into a nightloomv1.Plan body with pointings, rates,
 // overheads and predicted conditions. plans.go stores and publishes what
-// comes out; nothing else in the server imports the scheduler.
+// comes out; apart from networkplan.go (the same for a network of sites),
+// nothing else in the server imports the scheduler.
 
 import (
 	"context"
@@ -268,14 +269,21 @@ func (sp0 schedulerPlanner) plan(ctx context.Context, job *planJob) (*nightloomv
 		GridSteps: int32(grid.N), BlocksConsidered: int32(len(blocks)), StopReason: sp.Stopped}
 	body.Objective = objectiveOf(job, body, &sp.Objective)
 	body.Charges = chargesOf(sp.Charged)
+	body.Cadence = cadenceOf(sp)
+	return body, nil
+}
+
+// cadenceOf converts a plan's cadence series.
+func cadenceOf(sp *scheduler.Plan) []*nightloomv1.CadenceSeries {
+	var out []*nightloomv1.CadenceSeries
 	for _, c := range sp.Cadence {
 		cs := &nightloomv1.CadenceSeries{BlockId: c.ID, Interval: durationpb.New(c.Every), RunsDelivered: int32(c.Delivered)}
 		for _, s := range c.Skipped {
 			cs.Skipped = append(cs.Skipped, &nightloomv1.SkippedSlot{At: timestamppb.New(s.At), Reason: slotReasonOf(s.Why)})
 		}
-		body.Cadence = append(body.Cadence, cs)
+		out = append(out, cs)
 	}
-	return body, nil
+	return out
 }
 
 // slotReasonOf converts why a cadence slot was skipped.

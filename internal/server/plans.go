@@ -89,7 +89,7 @@ func (s *Server) storePlan(ctx context.Context, body *nightloomv1.Plan) (*nightl
 }
 
 // openBlocks loads the site's open blocks (queued and not expired at now)
-// with their targets.
+// with their targets; blocks of a network are left to network planning.
 func (s *Server) openBlocks(ctx context.Context, site *siteModel) ([]*planBlock, error) {
 	var out []*planBlock
 	targets := map[string]*planTarget{}
@@ -102,6 +102,9 @@ func (s *Server) openBlocks(ctx context.Context, site *siteModel) ([]*planBlock,
 			return nil, err
 		}
 		for _, r := range recs {
+			if r.NetworkID != "" {
+				continue // planned with its network (networkplan.go)
+			}
 			b, err := blockProto(r, site, now)
 			if err != nil {
 				return nil, err
@@ -458,6 +461,11 @@ func (x *planService) Replan(ctx context.Context, req *nightloomv1.ReplanRequest
 	if err != nil {
 		return nil, err
 	}
+	// A version that network planning made is replanned with its network:
+	// what the closures here free or need may move to other members.
+	if resp, ok, err := s.replanWithNetwork(ctx, site, req, from, budget); ok || err != nil {
+		return resp, err
+	}
 	unlock, err := s.lockSite(ctx, site.pb.GetId())
 	if err != nil {
 		return nil, err
@@ -509,6 +517,86 @@ func (x *planService) Replan(ctx context.Context, req *nightloomv1.ReplanRequest
 		AssignmentsFeasible: int32(out.feasible), RunChanges: runChangesOf(out.report)}, nil
 }
 
+// replanWithNetwork replans through the network (networkplan.go) when the
+// version a Replan names, or the site's latest covering from, was made by
+// network planning; ok is false otherwise. The answer is this site's new
+// version; the other members' are pushed to their watchers.
+func (s *Server) replanWithNetwork(ctx context.Context, site *siteModel, req *nightloomv1.ReplanRequest, from time.Time,
+	budget time.Duration) (*nightloomv1.ReplanResponse, bool, error) {
+	var old *nightloomv1.Plan
+	var err error
+	if id := req.GetPlanId(); id != "" {
+		rec, err := s.db.GetPlan(ctx, id)
+		if err != nil || rec.SiteID != site.pb.GetId() {
+			return nil, false, nil // the site's own path says why
+		}
+		if old, err = planFromRecord(rec); err != nil {
+			return nil, false, err
+		}
+	} else if old, err = s.latestCovering(ctx, site.pb.GetId(), from); err != nil {
+		return nil, false, err
+	}
+	if old == nil || old.GetNetworkId() == "" {
+		return nil, false, nil
+	}
+	if ver, err := s.supersededBy(ctx, old); err != nil {
+		return nil, false, err
+	} else if ver != 0 {
+		return nil, true, failedPrecondition("plan %s (version %d) is not the latest for its interval: version %d replaced it",
+			old.GetId(), old.GetVersion(), ver)
+	}
+	start, end := old.GetInterval().GetStart().AsTime(), old.GetInterval().GetEnd().AsTime()
+	if !from.Before(end) {
+		return nil, true, failedPrecondition("from %s is not before the end of plan %s (%s)", from.Format(time.RFC3339),
+			old.GetId(), end.Format(time.RFC3339))
+	}
+	if from.Before(start) {
+		from = start
+	}
+	extra := map[string][]*nightloomv1.Closure{site.pb.GetId(): mergeClosures(req.GetClosures())}
+	nn, err := s.replanNetwork(ctx, old.GetNetworkId(), from, extra, planArgs{budget: budget, seed: req.GetSeed()},
+		nightloomv1.PlanOrigin_PLAN_ORIGIN_REPLAN)
+	if errors.Is(err, store.ErrNotFound) {
+		return nil, false, nil // the network is gone: the site replans alone
+	}
+	if err != nil {
+		return nil, true, err
+	}
+	for _, p := range nn.GetPlans() {
+		if p.GetSiteId() == site.pb.GetId() {
+			kept, changed := keptChanged(old, p, from)
+			return &nightloomv1.ReplanResponse{Plan: p, AssignmentsKept: int32(kept), AssignmentsChanged: int32(changed)}, true, nil
+		}
+	}
+	return nil, true, failedPrecondition("plan %s of network %s is no longer the site's latest covering %s", old.GetId(),
+		old.GetNetworkId(), from.Format(time.RFC3339))
+}
+
+// keptChanged counts the old version's runs after from that the new
+// version keeps unchanged, and those it moved, shortened or dropped.
+func keptChanged(old, stored *nightloomv1.Plan, from time.Time) (kept, changed int) {
+	type key struct {
+		block      string
+		start, end int64
+		frames     int32
+	}
+	have := map[key]bool{}
+	for _, a := range stored.GetAssignments() {
+		have[key{a.GetBlockId(), a.GetStart().AsTime().UnixNano(), a.GetEnd().AsTime().UnixNano(), a.GetFrames()}] = true
+	}
+	for _, a := range old.GetAssignments() {
+		if !a.GetEnd().AsTime().After(from) {
+			continue
+		}
+		if have[key{a.GetBlockId(), a.GetStart().AsTime().UnixNano(), a.GetEnd().AsTime().UnixNano(), a.GetFrames()}] {
+			kept++
+		} else {
+			changed++
+		}
+	}
+	return kept, changed
+}
+
 // replanOutcome is what a replan did to the old version's runs after from.
 type replanOutcome struct {
 	kept, changed, feasible int
@@ -534,80 +622,13 @@ func (s *Server) replanLocked(ctx context.Context, site *siteModel, old *nightlo
 		return nil, replanOutcome{}, failedPrecondition("%d open blocks x %d grid steps exceed %d block-steps", len(blocks), steps, MaxBlockSteps)
 	}
 
-	// What stays: runs over before `from`, as their progress reports say
-	// they went (a run reported short or interrupted ends where the report
-	// ends, with the frames it kept), and the one in progress unless a
-	// closure cuts it (then it ends at the closure with the frames that
-	// fit, its conditions recomputed).
-	reports, err := s.db.ReportsEndingAfter(ctx, site.pb.GetId(), start)
-	if err != nil {
-		return nil, replanOutcome{}, err
-	}
 	targets := map[string]*constraints.Target{}
 	for _, b := range blocks {
 		targets[b.pb.GetId()] = b.target.model
 	}
-	targetOf := func(blockID string) (*constraints.Target, error) {
-		if t, ok := targets[blockID]; ok {
-			return t, nil
-		}
-		rec, err := s.db.GetBlock(ctx, blockID)
-		if err != nil {
-			return nil, err
-		}
-		b, err := blockProto(rec, nil, s.now())
-		if err != nil {
-			return nil, err
-		}
-		_, t, err := s.loadTarget(ctx, b.GetTargetId())
-		if err != nil {
-			return nil, err
-		}
-		targets[blockID] = t
-		return t, nil
-	}
-	var kept, previous []*nightloomv1.Assignment
-	var inProgress *nightloomv1.Assignment
-	for _, a := range old.GetAssignments() {
-		a0, a1 := a.GetPrepareStart().AsTime(), a.GetEnd().AsTime()
-		if !a0.Before(from) {
-			previous = append(previous, a)
-			continue
-		}
-		if rep, ok := reportOf(reports, a); ok {
-			if rep.FramesKept == 0 || !rep.End.After(a.GetStart().AsTime()) {
-				continue // nothing was kept: the run did not happen
-			}
-			t, err := targetOf(a.GetBlockId())
-			if err != nil {
-				return nil, replanOutcome{}, err
-			}
-			kept = append(kept, asReported(site, a, t, rep))
-			continue
-		}
-		if !a1.After(from) {
-			kept = append(kept, a)
-			continue
-		}
-		cut := a1
-		for _, c := range cls {
-			c0, c1 := c.GetInterval().GetStart().AsTime(), c.GetInterval().GetEnd().AsTime()
-			if overlaps(from, a1, c0, c1) && c0.Before(cut) {
-				cut = c0
-			}
-		}
-		if cut.Equal(a1) {
-			inProgress = a
-		} else {
-			t, err := targetOf(a.GetBlockId())
-			if err != nil {
-				return nil, replanOutcome{}, err
-			}
-			inProgress = truncateAssignment(site, a, t, cut)
-		}
-		if inProgress != nil {
-			kept = append(kept, inProgress)
-		}
+	kept, inProgress, previous, err := s.keptRuns(ctx, site, old, from, cls, targets)
+	if err != nil {
+		return nil, replanOutcome{}, err
 	}
 	if old.GetNight() != nil {
 		d := civilOf(old.GetNight())
@@ -639,31 +660,91 @@ func (s *Server) replanLocked(ctx context.Context, site *siteModel, old *nightlo
 		return nil, replanOutcome{}, err
 	}
 	// Old runs after `from`, kept unchanged or not.
-	type key struct {
-		block      string
-		start, end int64
-		frames     int32
-	}
-	have := map[key]bool{}
-	for _, a := range stored.GetAssignments() {
-		have[key{a.GetBlockId(), a.GetStart().AsTime().UnixNano(), a.GetEnd().AsTime().UnixNano(), a.GetFrames()}] = true
-	}
-	keptN, changedN := 0, 0
-	for _, a := range old.GetAssignments() {
-		if !a.GetEnd().AsTime().After(from) {
-			continue
-		}
-		if have[key{a.GetBlockId(), a.GetStart().AsTime().UnixNano(), a.GetEnd().AsTime().UnixNano(), a.GetFrames()}] {
-			keptN++
-		} else {
-			changedN++
-		}
-	}
+	keptN, changedN := keptChanged(old, stored, from)
 	out := replanOutcome{kept: keptN, changed: changedN, report: job.report}
 	if job.report != nil {
 		out.feasible = job.report.Feasible
 	}
 	return stored, out, nil
+}
+
+// keptRuns splits the runs of old at from (the caller holds the site's
+// lock): kept are the runs that stay, inProgress the one running at from
+// (also in kept; nil if none), previous the runs after from, the starting
+// timeline of a replan. targets caches the blocks' targets by block id.
+func (s *Server) keptRuns(ctx context.Context, site *siteModel, old *nightloomv1.Plan, from time.Time, cls []*nightloomv1.Closure,
+	targets map[string]*constraints.Target) (kept []*nightloomv1.Assignment, inProgress *nightloomv1.Assignment, previous []*nightloomv1.Assignment, err error) {
+	start := old.GetInterval().GetStart().AsTime()
+	// What stays: runs over before `from`, as their progress reports say
+	// they went (a run reported short or interrupted ends where the report
+	// ends, with the frames it kept), and the one in progress unless a
+	// closure cuts it (then it ends at the closure with the frames that
+	// fit, its conditions recomputed).
+	reports, err := s.db.ReportsEndingAfter(ctx, site.pb.GetId(), start)
+	if err != nil {
+		return nil, nil, nil, err
+	}
+	targetOf := func(blockID string) (*constraints.Target, error) {
+		if t, ok := targets[blockID]; ok {
+			return t, nil
+		}
+		rec, err := s.db.GetBlock(ctx, blockID)
+		if err != nil {
+			return nil, err
+		}
+		b, err := blockProto(rec, nil, s.now())
+		if err != nil {
+			return nil, err
+		}
+		_, t, err := s.loadTarget(ctx, b.GetTargetId())
+		if err != nil {
+			return nil, err
+		}
+		targets[blockID] = t
+		return t, nil
+	}
+	for _, a := range old.GetAssignments() {
+		a0, a1 := a.GetPrepareStart().AsTime(), a.GetEnd().AsTime()
+		if !a0.Before(from) {
+			previous = append(previous, a)
+			continue
+		}
+		if rep, ok := reportOf(reports, a); ok {
+			if rep.FramesKept == 0 || !rep.End.After(a.GetStart().AsTime()) {
+				continue // nothing was kept: the run did not happen
+			}
+			t, err := targetOf(a.GetBlockId())
+			if err != nil {
+				return nil, nil, nil, err
+			}
+			kept = append(kept, asReported(site, a, t, rep))
+			continue
+		}
+		if !a1.After(from) {
+			kept = append(kept, a)
+			continue
+		}
+		cut := a1
+		for _, c := range cls {
+			c0, c1 := c.GetInterval().GetStart().AsTime(), c.GetInterval().GetEnd().AsTime()
+			if overlaps(from, a1, c0, c1) && c0.Before(cut) {
+				cut = c0
+			}
+		}
+		if cut.Equal(a1) {
+			inProgress = a
+		} else {
+			t, err := targetOf(a.GetBlockId())
+			if err != nil {
+				return nil, nil, nil, err
+			}
+			inProgress = truncateAssignment(site, a, t, cut)
+		}
+		if inProgress != nil {
+			kept = append(kept, inProgress)
+		}
+	}
+	return kept, inProgress, previous, nil
 }
 
 // reportSlack is how early before an assignment's preparations a report's
@@ -936,6 +1017,18 @@ func (s *Server) replanForQueued(ctx context.Context, siteID string) error {
 	site, _, err := s.loadSite(ctx, siteID)
 	if err != nil {
 		return err
+	}
+	// A network plan is replanned with its network.
+	if latest, err := s.db.LatestPlan(ctx, siteID); err == nil && s.now().Before(latest.End) {
+		if old, err := planFromRecord(latest); err == nil && old.GetNetworkId() != "" {
+			from := s.now()
+			if from.Before(latest.Start) {
+				from = latest.Start
+			}
+			_, err := s.replanNetwork(ctx, old.GetNetworkId(), from, nil,
+				planArgs{budget: s.cfg.DefaultTimeBudget, seed: old.GetSolver().GetSeed()}, nightloomv1.PlanOrigin_PLAN_ORIGIN_QUEUED_BLOCK)
+			return err
+		}
 	}
 	unlock, err := s.lockSite(ctx, siteID)
 	if err != nil {

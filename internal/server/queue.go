@@ -8,6 +8,7 @@ import (
 
 	"google.golang.org/grpc/codes"
 	"google.golang.org/grpc/status"
+	"google.golang.org/protobuf/proto"
 
 	"github.com/nightloom/nightloom/internal/store"
 	nightloomv1 "github.com/nightloom/nightloom/proto/nightloom/v1"
@@ -73,11 +74,21 @@ func (x *queueService) QueueBlocks(ctx context.Context, req *nightloomv1.QueueBl
 	}
 
 	// Every site and target must exist (NOT_FOUND otherwise), then the
-	// checks that depend on them.
+	// checks that depend on them. Network blocks get their home site first.
 	sites := x.s.newSiteCache()
+	blocks := make([]*nightloomv1.Block, n)
+	for i, b := range req.GetBlocks() {
+		blocks[i] = proto.Clone(b).(*nightloomv1.Block)
+	}
+	if err := x.s.resolveNetworkBlocks(ctx, &v, blocks, sites); err != nil {
+		return nil, err
+	}
+	if err := v.err(); err != nil {
+		return nil, err
+	}
 	targets := map[string]*nightloomv1.Target{}
 	programs := map[string]*nightloomv1.Program{}
-	for i, b := range req.GetBlocks() {
+	for i, b := range blocks {
 		site, err := sites.get(ctx, b.GetSiteId())
 		if errors.Is(err, store.ErrNotFound) {
 			return nil, notFound("blocks[%d].site_id: site %s not found", i, b.GetSiteId())
@@ -108,7 +119,7 @@ func (x *queueService) QueueBlocks(ctx context.Context, req *nightloomv1.QueueBl
 		return nil, err
 	}
 	recs := make([]store.Block, n)
-	for i, b := range req.GetBlocks() {
+	for i, b := range blocks {
 		spec, err := storable(normalizeBlock(b))
 		if err != nil {
 			return nil, err
@@ -118,11 +129,11 @@ func (x *queueService) QueueBlocks(ctx context.Context, req *nightloomv1.QueueBl
 			id = requestBlockID(req.GetRequestId(), i)
 		}
 		recs[i] = store.Block{ID: id, SiteID: b.GetSiteId(), TargetID: b.GetTargetId(), Priority: float64(b.GetPriority()),
-			FramesWanted: int(b.GetFramesWanted()), Spec: spec, Program: b.GetProgram()}
+			FramesWanted: int(b.GetFramesWanted()), Spec: spec, Program: b.GetProgram(), NetworkID: b.GetNetworkId()}
 	}
 	var over error
 	perSite := map[string]int{}
-	for _, b := range req.GetBlocks() {
+	for _, b := range blocks {
 		perSite[b.GetSiteId()]++
 	}
 	for id, k := range perSite {
@@ -422,6 +433,10 @@ func (x *queueService) ReportProgress(ctx context.Context, req *nightloomv1.Repo
 	if err != nil {
 		return nil, err
 	}
+	site, err := x.s.reportingSite(ctx, r)
+	if err != nil {
+		return nil, err
+	}
 	setup, err := x.s.reportSetup(ctx, r, start, end)
 	if err != nil {
 		return nil, err
@@ -430,7 +445,7 @@ func (x *queueService) ReportProgress(ctx context.Context, req *nightloomv1.Repo
 	// rest of the interval and the setup as overheads (program.proto).
 	after, dup, err := x.s.db.ReportProgress(ctx, store.ProgressReport{
 		ReportID: r.GetReportId(), BlockID: r.GetBlockId(), FramesKept: int(r.GetFramesKept()),
-		Start: start, End: end, Outcome: r.GetOutcome().String(),
+		Start: start, End: end, Outcome: r.GetOutcome().String(), SiteID: site,
 		Exposure: time.Duration(r.GetFramesKept()) * exposure, Setup: setup,
 	})
 	if errors.Is(err, store.ErrConflict) {

@@ -19,15 +19,28 @@ package server
 //     none); ListPrograms lists those only; GetProgramUsage of its own site
 //     (narrowed to it without a site); CreateProgram, UpdateProgram and
 //     DeleteProgram are refused (a program may span sites).
+//   - networks: GetNetwork of a network it belongs to, ListNetworks narrowed
+//     to those; CreateNetwork and DeleteNetwork are refused. Planning a
+//     network (MakeNetworkPlan, ReplanNetwork) and queueing a network block
+//     are refused unless its own site is the network's only member: they
+//     spend other sites' time. A network block may be read (GetBlock) and
+//     reported on (ReportProgress) by every member, since any member may
+//     run it; edited and withdrawn by its home site only. A Replan at its
+//     own site of a version that network planning made re-solves the
+//     network (plans.go): the caller only closes its own roof, and the
+//     blocks this frees or needs move under the network's rules, as a
+//     block queued at or above the replan priority replans on its own.
 
 import (
 	"context"
+	"errors"
 	"fmt"
 
 	"google.golang.org/grpc"
 	"google.golang.org/grpc/codes"
 	"google.golang.org/grpc/status"
 
+	"github.com/nightloom/nightloom/internal/store"
 	nightloomv1 "github.com/nightloom/nightloom/proto/nightloom/v1"
 )
 
@@ -55,6 +68,54 @@ func (s *Server) checkScope(ctx context.Context, site string, req any) error {
 		}
 		if b.SiteID != site {
 			return scopeDenied(site, fmt.Sprintf("block %q belongs to another site", id))
+		}
+		return nil
+	}
+	// A network block may be seen and reported on by every member.
+	memberOf := func(networkID string) (bool, error) {
+		n, err := s.db.GetNetwork(ctx, networkID)
+		if err != nil {
+			return false, err
+		}
+		for _, id := range n.SiteIDs {
+			if id == site {
+				return true, nil
+			}
+		}
+		return false, nil
+	}
+	blockMember := func(id string) error {
+		if id == "" {
+			return nil
+		}
+		b, err := s.db.GetBlock(ctx, id)
+		if err != nil {
+			return err
+		}
+		if b.SiteID == site {
+			return nil
+		}
+		if b.NetworkID != "" {
+			if ok, err := memberOf(b.NetworkID); err != nil || ok {
+				return err
+			}
+		}
+		return scopeDenied(site, fmt.Sprintf("block %q belongs to another site", id))
+	}
+	// Only a network whose one member is this site may be planned or
+	// queued for.
+	networkAlone := func(field, id string) error {
+		if id == "" {
+			return nil
+		}
+		n, err := s.db.GetNetwork(ctx, id)
+		if err != nil {
+			return err
+		}
+		for _, m := range n.SiteIDs {
+			if m != site {
+				return scopeDenied(site, fmt.Sprintf("%s %q has other member sites (%s)", field, id, m))
+			}
 		}
 		return nil
 	}
@@ -93,14 +154,25 @@ func (s *Server) checkScope(ctx context.Context, site string, req any) error {
 			if err := same(fmt.Sprintf("blocks[%d].site_id", i), b.GetSiteId()); err != nil {
 				return err
 			}
+			if err := networkAlone(fmt.Sprintf("blocks[%d].network_id", i), b.GetNetworkId()); err != nil {
+				return err
+			}
 		}
 		return nil
 	case *nightloomv1.GetBlockRequest:
-		return blockSite(r.GetBlockId())
+		return blockMember(r.GetBlockId())
 	case *nightloomv1.WithdrawBlockRequest:
 		return blockSite(r.GetBlockId())
 	case *nightloomv1.ReportProgressRequest:
-		return blockSite(r.GetReport().GetBlockId())
+		if err := blockMember(r.GetReport().GetBlockId()); err != nil {
+			return err
+		}
+		// The plan a report names says which site ran it (networks.go):
+		// it must be one of this site's (an unknown id says nothing).
+		if err := planSite(r.GetReport().GetPlanId()); err != nil && !errors.Is(err, store.ErrNotFound) {
+			return err
+		}
+		return nil
 	case *nightloomv1.UpdateBlockRequest:
 		return blockSite(r.GetBlock().GetId())
 	case *nightloomv1.WithdrawBlocksRequest:
@@ -150,6 +222,32 @@ func (s *Server) checkScope(ctx context.Context, site string, req any) error {
 		return same("site_id", r.GetSiteId())
 	case *nightloomv1.CreateProgramRequest, *nightloomv1.UpdateProgramRequest, *nightloomv1.DeleteProgramRequest:
 		return scopeDenied(site, "programs may span sites, so it cannot change them")
+	case *nightloomv1.GetNetworkRequest:
+		if r.GetNetworkId() == "" {
+			return nil
+		}
+		ok, err := memberOf(r.GetNetworkId())
+		if err != nil {
+			return err
+		}
+		if !ok {
+			return scopeDenied(site, fmt.Sprintf("it is not a member of network %q", r.GetNetworkId()))
+		}
+		return nil
+	case *nightloomv1.ListNetworksRequest:
+		return nil // the response is narrowed (scopeResponse)
+	case *nightloomv1.CreateNetworkRequest, *nightloomv1.DeleteNetworkRequest:
+		return scopeDenied(site, "it cannot create or delete networks")
+	case *nightloomv1.MakeNetworkPlanRequest:
+		if r.GetNetworkId() == "" {
+			return scopeDenied(site, "network_id is missing")
+		}
+		return networkAlone("network_id", r.GetNetworkId())
+	case *nightloomv1.ReplanNetworkRequest:
+		if r.GetNetworkId() == "" {
+			return scopeDenied(site, "network_id is missing")
+		}
+		return networkAlone("network_id", r.GetNetworkId())
 
 	case *nightloomv1.NightRequest:
 		return same("site_id", r.GetSiteId())
@@ -171,6 +269,18 @@ func (s *Server) checkScope(ctx context.Context, site string, req any) error {
 
 // scopeResponse narrows a response for a site-held token.
 func scopeResponse(site string, resp any) {
+	if r, ok := resp.(*nightloomv1.ListNetworksResponse); ok {
+		kept := r.Networks[:0]
+		for _, x := range r.GetNetworks() {
+			for _, id := range x.GetSiteIds() {
+				if id == site {
+					kept = append(kept, x)
+					break
+				}
+			}
+		}
+		r.Networks = kept
+	}
 	if r, ok := resp.(*nightloomv1.ListSitesResponse); ok {
 		kept := r.Sites[:0]
 		for _, x := range r.GetSites() {

@@ -152,6 +152,15 @@ func validCalls(e *env, f fixture, plan *nightloomv1.Plan) map[string]validCall 
 		}
 		return name
 	}
+	nets := nightloomv1.NewNetworkServiceClient(e.conn)
+	newNetwork := func(t *testing.T, sites ...string) string {
+		r, err := nets.CreateNetwork(adm, &nightloomv1.CreateNetworkRequest{Network: &nightloomv1.Network{
+			Name: fmt.Sprintf("Auth Network %d", next()), SiteIds: sites}})
+		if err != nil {
+			t.Fatal(err)
+		}
+		return r.GetNetwork().GetId()
+	}
 	return map[string]validCall{
 		nightloomv1.ProgramService_CreateProgram_FullMethodName: now(func(ctx context.Context) error {
 			_, err := programs.CreateProgram(ctx, &nightloomv1.CreateProgramRequest{Program: testProgram(fmt.Sprintf("club-%d", next()), time.Hour)})
@@ -188,6 +197,46 @@ func validCalls(e *env, f fixture, plan *nightloomv1.Plan) map[string]validCall 
 			_, err := programs.GetProgramUsage(ctx, &nightloomv1.GetProgramUsageRequest{At: ts(p0)})
 			return err
 		}),
+		nightloomv1.NetworkService_CreateNetwork_FullMethodName: now(func(ctx context.Context) error {
+			_, err := nets.CreateNetwork(ctx, &nightloomv1.CreateNetworkRequest{Network: &nightloomv1.Network{
+				Name: fmt.Sprintf("Auth Created Network %d", next()), SiteIds: []string{site}}})
+			return err
+		}),
+		nightloomv1.NetworkService_GetNetwork_FullMethodName: func(t *testing.T) func(ctx context.Context) error {
+			id := newNetwork(t, site)
+			return func(ctx context.Context) error {
+				_, err := nets.GetNetwork(ctx, &nightloomv1.GetNetworkRequest{NetworkId: id})
+				return err
+			}
+		},
+		nightloomv1.NetworkService_ListNetworks_FullMethodName: now(func(ctx context.Context) error {
+			_, err := nets.ListNetworks(ctx, &nightloomv1.ListNetworksRequest{})
+			return err
+		}),
+		nightloomv1.NetworkService_DeleteNetwork_FullMethodName: func(t *testing.T) func(ctx context.Context) error {
+			id := newNetwork(t, site)
+			return func(ctx context.Context) error {
+				_, err := nets.DeleteNetwork(ctx, &nightloomv1.DeleteNetworkRequest{NetworkId: id})
+				return err
+			}
+		},
+		nightloomv1.NetworkService_MakeNetworkPlan_FullMethodName: func(t *testing.T) func(ctx context.Context) error {
+			id := newNetwork(t, newSite(t))
+			return func(ctx context.Context) error {
+				_, err := nets.MakeNetworkPlan(ctx, &nightloomv1.MakeNetworkPlanRequest{NetworkId: id, Night: testNight, TimeBudget: dur(0)})
+				return err
+			}
+		},
+		nightloomv1.NetworkService_ReplanNetwork_FullMethodName: func(t *testing.T) func(ctx context.Context) error {
+			id := newNetwork(t, newSite(t))
+			if _, err := nets.MakeNetworkPlan(adm, &nightloomv1.MakeNetworkPlanRequest{NetworkId: id, Night: testNight, TimeBudget: dur(0)}); err != nil {
+				t.Fatal(err)
+			}
+			return func(ctx context.Context) error {
+				_, err := nets.ReplanNetwork(ctx, &nightloomv1.ReplanNetworkRequest{NetworkId: id, From: ts(p0.Add(time.Hour)), TimeBudget: dur(0)})
+				return err
+			}
+		},
 		nightloomv1.SiteService_CreateSite_FullMethodName: now(func(ctx context.Context) error {
 			_, err := e.sites.CreateSite(ctx, &nightloomv1.CreateSiteRequest{Site: testSite()})
 			return err
@@ -450,6 +499,12 @@ var specRoles = func() map[string][]Role {
 		nightloomv1.ProgramService_UpdateProgram_FullMethodName:        admin,
 		nightloomv1.ProgramService_DeleteProgram_FullMethodName:        admin,
 		nightloomv1.ProgramService_GetProgramUsage_FullMethodName:      read,
+		nightloomv1.NetworkService_CreateNetwork_FullMethodName:        admin,
+		nightloomv1.NetworkService_GetNetwork_FullMethodName:           queueRead,
+		nightloomv1.NetworkService_ListNetworks_FullMethodName:         queueRead,
+		nightloomv1.NetworkService_DeleteNetwork_FullMethodName:        admin,
+		nightloomv1.NetworkService_MakeNetworkPlan_FullMethodName:      plan,
+		nightloomv1.NetworkService_ReplanNetwork_FullMethodName:        report,
 	}
 }()
 

@@ -293,6 +293,7 @@ func Start(ctx context.Context, cfg Config) (*Server, error) {
 	nightloomv1.RegisterApparitionServiceServer(s.grpc, &apparitionService{s: s})
 	nightloomv1.RegisterExportServiceServer(s.grpc, &exportService{s: s})
 	nightloomv1.RegisterProgramServiceServer(s.grpc, &programService{s: s})
+	nightloomv1.RegisterNetworkServiceServer(s.grpc, &networkService{s: s})
 	s.health = health.NewServer()
 	healthpb.RegisterHealthServer(s.grpc, s.health)
 	registerReflection(s.grpc, s.log)

@@ -138,6 +138,7 @@ func checkInstrument(v *violations, path string, in *nightloomv1.Instrument) {
 		return
 	}
 	positiveUpTo(v, path+".pixel_scale_arcsec", in.GetPixelScaleArcsec(), 60)
+	rangeCheck(v, path+".aperture_mm", in.GetApertureMm(), 0, MaxApertureMM)
 	if n := len(in.GetFilters()); n > MaxFilters {
 		v.add(path+".filters", "at most %d filters, got %d", MaxFilters, n)
 	} else {

@@ -54,6 +54,11 @@ type Storage interface {
 	UpdateProgram(ctx context.Context, p store.Program) (store.Program, error)
 	DeleteProgram(ctx context.Context, name string) error
 	ProgramCharges(ctx context.Context, program string, from, to time.Time) ([]store.Charge, error)
+	CreateNetwork(ctx context.Context, n store.Network) (store.Network, error)
+	GetNetwork(ctx context.Context, id string) (store.Network, error)
+	ListNetworks(ctx context.Context, p store.Page) ([]store.Network, string, error)
+	NetworksOfSite(ctx context.Context, siteID string) ([]string, error)
+	DeleteNetwork(ctx context.Context, id string) error
 
 	TokenStore
 }

@@ -31,6 +31,10 @@ func FuzzValidateRequest(f *testing.F) {
 	blk.Constraints.LocalTimeWindow = &nightloomv1.LocalTimeWindow{Start: &nightloomv1.LocalTimeOfDay{Hour: 22}, End: &nightloomv1.LocalTimeOfDay{Hour: 2, Minute: 30}}
 	blk.Cadence = &nightloomv1.Cadence{Interval: dur(time.Hour), Tolerance: dur(10 * time.Minute)}
 	add(2, &nightloomv1.QueueBlocksRequest{Blocks: []*nightloomv1.Block{blk}})
+	nb := testBlock("", "tgt-1", "V", 40, 9)
+	nb.NetworkId, nb.AllowedSiteIds = "net-1", []string{"site-1", "site-2"}
+	nb.Needs = &nightloomv1.TelescopeNeeds{MinApertureMm: 300, MinPixelScaleArcsec: 0.5, MaxPixelScaleArcsec: 2}
+	add(2, &nightloomv1.QueueBlocksRequest{Blocks: []*nightloomv1.Block{nb}})
 	t0 := time.Date(2031, 3, 15, 21, 0, 0, 0, time.UTC)
 	add(3, &nightloomv1.MakePlanRequest{SiteId: "site-1", Closures: []*nightloomv1.Closure{{Interval: &nightloomv1.TimeInterval{Start: ts(t0), End: ts(t0.Add(time.Hour))}}}})
 	add(4, &nightloomv1.ReportProgressRequest{Report: &nightloomv1.ProgressReport{ReportId: "r", BlockId: "b", FramesKept: 1,

@@ -17,9 +17,12 @@ const (
 
 // Block is an imaging block: FramesWanted frames of TargetID at SiteID.
 // Spec is the server's encoding of the rest (filter, exposure, run lengths,
-// constraint set, dates).
+// constraint set, dates). NetworkID, when not empty, names the network whose
+// shared queue holds the block; SiteID is then its home site (migration
+// 0008).
 type Block struct {
 	ID, SiteID, TargetID     string
+	NetworkID                string
 	Priority                 float64
 	State                    string // StateQueued, StateCompleted or StateWithdrawn
 	FramesWanted, FramesDone int
@@ -33,27 +36,33 @@ type Block struct {
 	Program string
 }
 
-const blockCols = `id, site_id, target_id, priority, state, frames_wanted, frames_done, spec, created_at, updated_at, revision, program`
+const blockCols = `id, site_id, target_id, priority, state, frames_wanted, frames_done, spec, created_at, updated_at, revision, program, network_id`
 
 func scanBlock(s scanner) (Block, error) {
 	var x Block
 	var created, updated int64
-	var program sql.NullString
+	var program, network sql.NullString
 	if err := s.Scan(&x.ID, &x.SiteID, &x.TargetID, &x.Priority, &x.State, &x.FramesWanted, &x.FramesDone,
-		&x.Spec, &created, &updated, &x.Revision, &program); err != nil {
+		&x.Spec, &created, &updated, &x.Revision, &program, &network); err != nil {
 		return Block{}, err
 	}
 	x.CreatedAt, x.UpdatedAt = decTime(created), decTime(updated)
-	x.Program = program.String
+	x.Program, x.NetworkID = program.String, network.String
 	return x, nil
 }
 
-// nullString binds "" as SQL NULL (an optional reference).
-func nullString(s string) any {
-	if s == "" {
+// nullable stores an empty reference (id or name) as NULL.
+func nullable(id string) any {
+	if id == "" {
 		return nil
 	}
-	return s
+	return id
+}
+
+// blockRow is a block's values in blockCols order.
+func blockRow(b Block) []any {
+	return []any{b.ID, b.SiteID, b.TargetID, b.Priority, b.State, b.FramesWanted, b.FramesDone,
+		blob(b.Spec), b.CreatedAt.UnixNano(), b.UpdatedAt.UnixNano(), b.Revision, nullable(b.Program), nullable(b.NetworkID)}
 }
 
 func validState(s string) bool {
@@ -82,7 +91,7 @@ func checkNewBlock(b Block) error {
 }
 
 // CreateBlocks queues blocks in one transaction: all of them or, on any
-// error, none. An unknown site or target is ErrNotFound, a block id that
+// error, none. An unknown site, target or network is ErrNotFound, a block id that
 // exists (or repeats within the batch) ErrAlreadyExists; the error names the
 // block and the missing id. The store sets State (queued), FramesDone (0),
 // CreatedAt, UpdatedAt and Revision (1) and returns the stored records in the
@@ -112,7 +121,7 @@ func (d *sqliteDB) CreateBlocks(ctx context.Context, blocks []Block) ([]Block, e
 		out[i] = b
 	}
 	err := d.write(ctx, op, func(tx *sql.Tx) error {
-		ins, err := tx.PrepareContext(ctx, `INSERT INTO blocks (`+blockCols+`) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`)
+		ins, err := tx.PrepareContext(ctx, `INSERT INTO blocks (`+blockCols+`) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`)
 		if err != nil {
 			return err
 		}
@@ -120,6 +129,7 @@ func (d *sqliteDB) CreateBlocks(ctx context.Context, blocks []Block) ([]Block, e
 		sites := map[string]bool{}
 		targets := map[string]bool{}
 		programs := map[string]bool{}
+		networks := map[string]bool{}
 		exists := func(table, id string, cache map[string]bool) (bool, error) {
 			if ok, hit := cache[id]; hit {
 				return ok, nil
@@ -157,8 +167,15 @@ func (d *sqliteDB) CreateBlocks(ctx context.Context, blocks []Block) ([]Block, e
 					return fmt.Errorf("block %q: program %q: %w", b.ID, b.Program, ErrNotFound)
 				}
 			}
-			if _, err := ins.ExecContext(ctx, b.ID, b.SiteID, b.TargetID, b.Priority, b.State, b.FramesWanted, b.FramesDone,
-				blob(b.Spec), b.CreatedAt.UnixNano(), b.UpdatedAt.UnixNano(), b.Revision, nullString(b.Program)); err != nil {
+			if b.NetworkID != "" {
+				if ok, err = exists("networks", b.NetworkID, networks); err != nil {
+					return err
+				}
+				if !ok {
+					return fmt.Errorf("block %q: network %q: %w", b.ID, b.NetworkID, ErrNotFound)
+				}
+			}
+			if _, err := ins.ExecContext(ctx, blockRow(b)...); err != nil {
 				return mapErr(ctx, fmt.Sprintf("block %q", b.ID), err)
 			}
 		}
@@ -181,9 +198,23 @@ func (d *sqliteDB) GetBlock(ctx context.Context, id string) (Block, error) {
 
 // BlockFilter selects blocks for ListBlocks; an empty field matches all.
 type BlockFilter struct {
-	SiteID   string
-	TargetID string
-	State    string // "", StateQueued, StateCompleted or StateWithdrawn
+	SiteID    string
+	TargetID  string
+	State     string // "", StateQueued, StateCompleted or StateWithdrawn
+	NetworkID string // the blocks of a network (whatever their home site)
+}
+
+// blockConds are the filter's conditions as (column, value) pairs.
+func (f BlockFilter) conds() []struct{ col, val string } {
+	return []struct{ col, val string }{{"network_id", f.NetworkID}, {"site_id", f.SiteID}, {"target_id", f.TargetID}, {"state", f.State}}
+}
+
+func (f BlockFilter) scope() string {
+	s := "blocks\x00" + f.SiteID + "\x00" + f.TargetID + "\x00" + f.State
+	if f.NetworkID != "" {
+		s += "\x00" + f.NetworkID
+	}
+	return s
 }
 
 // ListBlocks returns one page of the blocks that match f, in order of
@@ -194,7 +225,7 @@ func (d *sqliteDB) ListBlocks(ctx context.Context, f BlockFilter, p Page) ([]Blo
 	if f.State != "" && !validState(f.State) {
 		return nil, "", mapErr(ctx, op, invalidf("state %q is unknown", f.State))
 	}
-	scope := "blocks\x00" + f.SiteID + "\x00" + f.TargetID + "\x00" + f.State
+	scope := f.scope()
 	c, size, err := p.start(scope)
 	if err != nil {
 		return nil, "", mapErr(ctx, op, err)
@@ -202,7 +233,7 @@ func (d *sqliteDB) ListBlocks(ctx context.Context, f BlockFilter, p Page) ([]Blo
 	// Only the conditions asked for, so that SQLite can use the index on
 	// (site_id, state, created_at, id).
 	where, args := "", []any{}
-	for _, cond := range []struct{ col, val string }{{"site_id", f.SiteID}, {"target_id", f.TargetID}, {"state", f.State}} {
+	for _, cond := range f.conds() {
 		if cond.val != "" {
 			where += cond.col + " = ? AND "
 			args = append(args, cond.val)

@@ -67,6 +67,7 @@ func Copy(ctx context.Context, from, to *DB) (CopyStats, error) {
 type records struct {
 	sites   []Site
 	targets []Target
+	nets    []Network
 	blocks  []Block
 	reports []ProgressReport
 	plans   []Plan
@@ -100,6 +101,9 @@ func (r *records) read(ctx context.Context, d *DB) error {
 		return err
 	}
 	if r.targets, err = all(func(p Page) ([]Target, string, error) { return d.ListTargets(ctx, p) }); err != nil {
+		return err
+	}
+	if r.nets, err = all(func(p Page) ([]Network, string, error) { return d.ListNetworks(ctx, p) }); err != nil {
 		return err
 	}
 	if r.blocks, err = all(func(p Page) ([]Block, string, error) { return d.ListBlocks(ctx, BlockFilter{}, p) }); err != nil {
@@ -205,7 +209,7 @@ func (r *records) rows() []struct {
 	out = append(out, t)
 	t = tbl{table: "programs", cols: programCols}
 	for _, x := range r.programs {
-		t.rows = append(t.rows, []any{x.Name, nullString(x.SiteID), blob(x.Spec), x.CreatedAt.UnixNano(), x.UpdatedAt.UnixNano(), x.Revision})
+		t.rows = append(t.rows, []any{x.Name, nullable(x.SiteID), blob(x.Spec), x.CreatedAt.UnixNano(), x.UpdatedAt.UnixNano(), x.Revision})
 	}
 	out = append(out, t)
 	t = tbl{table: "targets", cols: targetCols}
@@ -213,16 +217,27 @@ func (r *records) rows() []struct {
 		t.rows = append(t.rows, []any{x.ID, x.Name, x.Kind, blob(x.Spec), x.CreatedAt.UnixNano(), x.UpdatedAt.UnixNano(), x.Revision})
 	}
 	out = append(out, t)
+	t = tbl{table: "networks", cols: networkCols}
+	for _, n := range r.nets {
+		t.rows = append(t.rows, []any{n.ID, n.Name, blob(n.Spec), n.CreatedAt.UnixNano(), n.UpdatedAt.UnixNano(), n.Revision})
+	}
+	out = append(out, t)
+	t = tbl{table: "network_sites", cols: "network_id, site_id, position"}
+	for _, n := range r.nets {
+		for i, s := range n.SiteIDs {
+			t.rows = append(t.rows, []any{n.ID, s, i})
+		}
+	}
+	out = append(out, t)
 	t = tbl{table: "blocks", cols: blockCols}
 	for _, b := range r.blocks {
-		t.rows = append(t.rows, []any{b.ID, b.SiteID, b.TargetID, b.Priority, b.State, b.FramesWanted, b.FramesDone,
-			blob(b.Spec), b.CreatedAt.UnixNano(), b.UpdatedAt.UnixNano(), b.Revision, nullString(b.Program)})
+		t.rows = append(t.rows, blockRow(b))
 	}
 	out = append(out, t)
 	t = tbl{table: "progress_reports", cols: reportCols}
 	for _, x := range r.reports {
 		t.rows = append(t.rows, []any{x.ReportID, x.BlockID, x.FramesKept, x.FramesApplied, x.Start.UnixNano(), x.End.UnixNano(),
-			x.Outcome, x.ReceivedAt.UnixNano()})
+			x.Outcome, x.ReceivedAt.UnixNano(), nullable(x.SiteID)})
 	}
 	out = append(out, t)
 	t = tbl{table: "program_charges", cols: chargeCols}

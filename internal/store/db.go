@@ -58,6 +58,11 @@ type Store interface {
 	UpdateProgram(ctx context.Context, p Program) (Program, error)
 	DeleteProgram(ctx context.Context, name string) error
 	ProgramCharges(ctx context.Context, program string, from, to time.Time) ([]Charge, error)
+	CreateNetwork(ctx context.Context, n Network) (Network, error)
+	GetNetwork(ctx context.Context, id string) (Network, error)
+	ListNetworks(ctx context.Context, p Page) ([]Network, string, error)
+	NetworksOfSite(ctx context.Context, siteID string) ([]string, error)
+	DeleteNetwork(ctx context.Context, id string) error
 }
 
 // DB is an open nightloom database, SQLite or PostgreSQL. Its methods are
@@ -247,4 +252,25 @@ func (d *DB) DeleteProgram(ctx context.Context, name string) error {
 
 func (d *DB) ProgramCharges(ctx context.Context, program string, from, to time.Time) ([]Charge, error) {
 	return d.impl.ProgramCharges(ctx, program, from, to)
+
+}
+
+func (d *DB) CreateNetwork(ctx context.Context, n Network) (Network, error) {
+	return d.impl.CreateNetwork(ctx, n)
+}
+
+func (d *DB) GetNetwork(ctx context.Context, id string) (Network, error) {
+	return d.impl.GetNetwork(ctx, id)
+}
+
+func (d *DB) ListNetworks(ctx context.Context, p Page) ([]Network, string, error) {
+	return d.impl.ListNetworks(ctx, p)
+}
+
+func (d *DB) NetworksOfSite(ctx context.Context, siteID string) ([]string, error) {
+	return d.impl.NetworksOfSite(ctx, siteID)
+}
+
+func (d *DB) DeleteNetwork(ctx context.Context, id string) error {
+	return d.impl.DeleteNetwork(ctx, id)
 }

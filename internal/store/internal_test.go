@@ -108,9 +108,15 @@ func TestUpgradeFromEachVersion(t *testing.T) {
 			if _, err := old.CreateTarget(ctx, Target{ID: "t", Name: "t", Kind: KindFixed}); err != nil {
 				t.Fatal(err)
 			}
-			// Blocks as version 1 has them (the program column came in 9).
-			if _, err := old.w.ExecContext(ctx, `INSERT INTO blocks (id, site_id, target_id, priority, state, frames_wanted,
-				frames_done, spec, created_at, updated_at, revision) VALUES ('b', 's', 't', 1, 'queued', 2, 0, x'', 1, 1, 1)`); err != nil {
+			// Blocks as version 1 has them (program came in 9, network_id in 8).
+			// (Raw SQL: this build's CreateBlocks writes the columns of the
+			// latest version.)
+			if _, err := old.w.Exec(`INSERT INTO blocks (id, site_id, target_id, priority, state, frames_wanted, frames_done,
+				spec, created_at, updated_at, revision) VALUES ('b', 's', 't', 1, 'queued', 2, 0, x'', 1, 1, 1)`); err != nil {
+				t.Fatal(err)
+			}
+			if _, err := old.w.Exec(`INSERT INTO progress_reports (report_id, block_id, frames_kept, frames_applied, start_at,
+				end_at, outcome, received_at) VALUES ('r0', 'b', 0, 0, 10, 20, 'skipped', 30)`); err != nil {
 				t.Fatal(err)
 			}
 			if _, err := old.CreateToken(ctx, Token{ID: "k", Hash: make([]byte, 32), Role: "admin"}); n < 3 && err == nil {
@@ -124,8 +130,12 @@ func TestUpgradeFromEachVersion(t *testing.T) {
 			if v, _ := db.SchemaVersion(ctx); v != latest {
 				t.Fatalf("upgraded database at version %d, want %d", v, latest)
 			}
-			if b, err := db.GetBlock(ctx, "b"); err != nil || b.FramesWanted != 2 {
+			if b, err := db.GetBlock(ctx, "b"); err != nil || b.FramesWanted != 2 || b.NetworkID != "" {
 				t.Fatalf("block after upgrade: %+v, %v", b, err)
+			}
+			// A report stored before 0008 (no site) is the block's site's.
+			if rs, err := db.ReportsEndingAfter(ctx, "s", time.Unix(0, 0)); err != nil || len(rs) != 1 || rs[0].SiteID != "" {
+				t.Fatalf("old reports after upgrade: %+v, %v", rs, err)
 			}
 			if _, err := db.CreatePlan(ctx, Plan{ID: "p", SiteID: "s", Start: time.Unix(1e9, 0), End: time.Unix(1e9, 0)}); err != nil {
 				t.Fatalf("plans after upgrade: %v", err)
@@ -148,7 +158,7 @@ func TestUpgradeFromEachVersion(t *testing.T) {
 				names = append(names, s)
 			}
 			rows.Close()
-			if got, want := strings.Join(names, ","), "1_init,2_plans,3_tokens,4_target_imports,5_magnitudes,6_token_limits,7_block_edits,8_reserved,9_programs"; got != want {
+			if got, want := strings.Join(names, ","), "1_init,2_plans,3_tokens,4_target_imports,5_magnitudes,6_token_limits,7_block_edits,8_networks,9_programs"; got != want {
 				t.Fatalf("schema_migrations: %s, want %s", got, want)
 			}
 			if err := db.IntegrityCheck(ctx); err != nil {

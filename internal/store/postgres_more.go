@@ -18,9 +18,9 @@ import (
 
 func (d *pgDB) ReportsEndingAfter(ctx context.Context, siteID string, t time.Time) ([]ProgressReport, error) {
 	op := fmt.Sprintf("list progress reports of site %q ending after %s", siteID, t.Format(time.RFC3339Nano))
-	rows, err := d.pool.Query(ctx, `SELECT r.report_id, r.block_id, r.frames_kept, r.frames_applied, r.start_at,
-		r.end_at, r.outcome, r.received_at FROM progress_reports r JOIN blocks b ON b.id = r.block_id
-		WHERE b.site_id = $1 AND r.end_at > $2 ORDER BY r.start_at, r.report_id`, siteID, t.UTC().UnixNano())
+	rows, err := d.pool.Query(ctx, `SELECT `+reportColsOf("r")+` FROM progress_reports r JOIN blocks b ON b.id = r.block_id
+		WHERE (r.site_id = $1 OR (r.site_id IS NULL AND b.site_id = $1)) AND r.end_at > $2 ORDER BY r.start_at, r.report_id`,
+		siteID, t.UTC().UnixNano())
 	if err != nil {
 		return nil, pgMapErr(ctx, op, err)
 	}

@@ -22,7 +22,7 @@ func (d *pgDB) CreateProgram(ctx context.Context, p Program) (Program, error) {
 			return err
 		}
 		_, err := tx.Exec(ctx, `INSERT INTO programs (`+programCols+`) VALUES ($1, $2, $3, $4, $5, $6)`,
-			p.Name, nullString(p.SiteID), blob(p.Spec), now.UnixNano(), now.UnixNano(), p.Revision)
+			p.Name, nullable(p.SiteID), blob(p.Spec), now.UnixNano(), now.UnixNano(), p.Revision)
 		return err
 	})
 	if err != nil {
@@ -90,7 +90,7 @@ func (d *pgDB) UpdateProgram(ctx context.Context, p Program) (Program, error) {
 		now := d.now()
 		out = Program{Name: p.Name, SiteID: p.SiteID, Spec: p.Spec, CreatedAt: cur.CreatedAt, UpdatedAt: now, Revision: cur.Revision + 1}
 		_, err = tx.Exec(ctx, `UPDATE programs SET site_id = $1, spec = $2, updated_at = $3, revision = $4 WHERE name = $5`,
-			nullString(out.SiteID), blob(out.Spec), now.UnixNano(), out.Revision, out.Name)
+			nullable(out.SiteID), blob(out.Spec), now.UnixNano(), out.Revision, out.Name)
 		return err
 	})
 	if err != nil {

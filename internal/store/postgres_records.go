@@ -221,6 +221,7 @@ func (d *pgDB) CreateBlocks(ctx context.Context, blocks []Block) ([]Block, error
 		sites := map[string]bool{}
 		targets := map[string]bool{}
 		programs := map[string]bool{}
+		networks := map[string]bool{}
 		exists := func(table, id string, cache map[string]bool) (bool, error) {
 			if ok, hit := cache[id]; hit {
 				return ok, nil
@@ -258,14 +259,21 @@ func (d *pgDB) CreateBlocks(ctx context.Context, blocks []Block) ([]Block, error
 					return fmt.Errorf("block %q: program %q: %w", b.ID, b.Program, ErrNotFound)
 				}
 			}
+			if b.NetworkID != "" {
+				if ok, err = exists("networks", b.NetworkID, networks); err != nil {
+					return err
+				}
+				if !ok {
+					return fmt.Errorf("block %q: network %q: %w", b.ID, b.NetworkID, ErrNotFound)
+				}
+			}
 		}
 		// One round trip for the whole batch; the first failing row names
 		// its block.
 		batch := &pgx.Batch{}
 		for _, b := range out {
-			batch.Queue(`INSERT INTO blocks (`+blockCols+`) VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12)`,
-				b.ID, b.SiteID, b.TargetID, b.Priority, b.State, b.FramesWanted, b.FramesDone,
-				blob(b.Spec), b.CreatedAt.UnixNano(), b.UpdatedAt.UnixNano(), b.Revision, nullString(b.Program))
+			batch.Queue(`INSERT INTO blocks (`+blockCols+`) VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13)`,
+				blockRow(b)...)
 		}
 		res := tx.SendBatch(ctx, batch)
 		for _, b := range out {
@@ -295,13 +303,13 @@ func (d *pgDB) ListBlocks(ctx context.Context, f BlockFilter, p Page) ([]Block, 
 	if f.State != "" && !validState(f.State) {
 		return nil, "", pgMapErr(ctx, op, invalidf("state %q is unknown", f.State))
 	}
-	scope := "blocks\x00" + f.SiteID + "\x00" + f.TargetID + "\x00" + f.State
+	scope := f.scope()
 	c, size, err := p.start(scope)
 	if err != nil {
 		return nil, "", pgMapErr(ctx, op, err)
 	}
 	where, args := "", []any{}
-	for _, cond := range []struct{ col, val string }{{"site_id", f.SiteID}, {"target_id", f.TargetID}, {"state", f.State}} {
+	for _, cond := range f.conds() {
 		if cond.val != "" {
 			args = append(args, cond.val)
 			where += cond.col + " = $" + strconv.Itoa(len(args)) + " AND "
@@ -434,10 +442,9 @@ func (d *pgDB) ReportProgress(ctx context.Context, r ProgressReport) (Block, boo
 				return err
 			}
 		}
-		if _, err := tx.Exec(ctx, `INSERT INTO progress_reports
-			(report_id, block_id, frames_kept, frames_applied, start_at, end_at, outcome, received_at)
-			VALUES ($1, $2, $3, $4, $5, $6, $7, $8)`,
-			r.ReportID, r.BlockID, r.FramesKept, applied, start, end, r.Outcome, now.UnixNano()); err != nil {
+		if _, err := tx.Exec(ctx, `INSERT INTO progress_reports (`+reportCols+`)
+			VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9)`,
+			r.ReportID, r.BlockID, r.FramesKept, applied, start, end, r.Outcome, now.UnixNano(), nullable(r.SiteID)); err != nil {
 			return err
 		}
 		if b.Program != "" {

@@ -87,7 +87,7 @@ func (d *sqliteDB) CreateProgram(ctx context.Context, p Program) (Program, error
 			return err
 		}
 		_, err := tx.ExecContext(ctx, `INSERT INTO programs (`+programCols+`) VALUES (?, ?, ?, ?, ?, ?)`,
-			p.Name, nullString(p.SiteID), blob(p.Spec), now.UnixNano(), now.UnixNano(), p.Revision)
+			p.Name, nullable(p.SiteID), blob(p.Spec), now.UnixNano(), now.UnixNano(), p.Revision)
 		return err
 	})
 	if err != nil {
@@ -161,7 +161,7 @@ func (d *sqliteDB) UpdateProgram(ctx context.Context, p Program) (Program, error
 		now := d.now()
 		out = Program{Name: p.Name, SiteID: p.SiteID, Spec: p.Spec, CreatedAt: cur.CreatedAt, UpdatedAt: now, Revision: cur.Revision + 1}
 		_, err = tx.ExecContext(ctx, `UPDATE programs SET site_id = ?, spec = ?, updated_at = ?, revision = ? WHERE name = ?`,
-			nullString(out.SiteID), blob(out.Spec), now.UnixNano(), out.Revision, out.Name)
+			nullable(out.SiteID), blob(out.Spec), now.UnixNano(), out.Revision, out.Name)
 		return err
 	})
 	if err != nil {

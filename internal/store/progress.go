@@ -5,6 +5,7 @@ import (
 	"database/sql"
 	"errors"
 	"fmt"
+	"strings"
 	"time"
 )
 
@@ -32,17 +33,23 @@ type ProgressReport struct {
 	// overheads on top of the interval; like Exposure, not stored with the
 	// report.
 	Setup time.Duration
+	// SiteID is the site that reported: one member of a network block's
+	// network ("" for a report stored before migration 0008, or when the
+	// caller does not say: the block's own site).
+	SiteID string
 }
 
-const reportCols = `report_id, block_id, frames_kept, frames_applied, start_at, end_at, outcome, received_at`
+const reportCols = `report_id, block_id, frames_kept, frames_applied, start_at, end_at, outcome, received_at, site_id`
 
 func scanReport(s scanner) (ProgressReport, error) {
 	var x ProgressReport
 	var start, end, received int64
-	if err := s.Scan(&x.ReportID, &x.BlockID, &x.FramesKept, &x.FramesApplied, &start, &end, &x.Outcome, &received); err != nil {
+	var site sql.NullString
+	if err := s.Scan(&x.ReportID, &x.BlockID, &x.FramesKept, &x.FramesApplied, &start, &end, &x.Outcome, &received, &site); err != nil {
 		return ProgressReport{}, err
 	}
 	x.Start, x.End, x.ReceivedAt = decTime(start), decTime(end), decTime(received)
+	x.SiteID = site.String
 	return x, nil
 }
 
@@ -114,10 +121,9 @@ func (d *sqliteDB) ReportProgress(ctx context.Context, r ProgressReport) (Block,
 				return err
 			}
 		}
-		if _, err := tx.ExecContext(ctx, `INSERT INTO progress_reports
-			(report_id, block_id, frames_kept, frames_applied, start_at, end_at, outcome, received_at)
-			VALUES (?, ?, ?, ?, ?, ?, ?, ?)`,
-			r.ReportID, r.BlockID, r.FramesKept, applied, start, end, r.Outcome, now.UnixNano()); err != nil {
+		if _, err := tx.ExecContext(ctx, `INSERT INTO progress_reports (`+reportCols+`)
+			VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?)`,
+			r.ReportID, r.BlockID, r.FramesKept, applied, start, end, r.Outcome, now.UnixNano(), nullable(r.SiteID)); err != nil {
 			return err
 		}
 		if b.Program != "" {
@@ -134,6 +140,15 @@ func (d *sqliteDB) ReportProgress(ctx context.Context, r ProgressReport) (Block,
 		return Block{}, false, err
 	}
 	return out, duplicate, nil
+}
+
+// reportColsOf is reportCols qualified by a table alias.
+func reportColsOf(alias string) string {
+	cols := strings.Split(reportCols, ", ")
+	for i := range cols {
+		cols[i] = alias + "." + cols[i]
+	}
+	return strings.Join(cols, ", ")
 }
 
 func checkReport(r ProgressReport) (start, end int64, err error) {
@@ -188,14 +203,16 @@ func (d *sqliteDB) ListProgressReports(ctx context.Context, blockID string, p Pa
 	return out, next, mapErr(ctx, op, err)
 }
 
-// ReportsEndingAfter returns the reports for blocks queued at a site whose
-// interval ends after t, ordered by interval start (then id): what replans
-// and NextAssignment need to know of runs that a report ended early.
+// ReportsEndingAfter returns the reports made at a site whose interval ends
+// after t, ordered by interval start (then id): what replans and
+// NextAssignment need to know of runs that a report ended early. A report
+// made at a site is one whose SiteID is that site, or, without SiteID, one
+// for a block of that site.
 func (d *sqliteDB) ReportsEndingAfter(ctx context.Context, siteID string, t time.Time) ([]ProgressReport, error) {
 	op := fmt.Sprintf("list progress reports of site %q ending after %s", siteID, t.Format(time.RFC3339Nano))
-	rows, err := d.r.QueryContext(ctx, `SELECT r.report_id, r.block_id, r.frames_kept, r.frames_applied, r.start_at,
-		r.end_at, r.outcome, r.received_at FROM progress_reports r JOIN blocks b ON b.id = r.block_id
-		WHERE b.site_id = ? AND r.end_at > ? ORDER BY r.start_at, r.report_id`, siteID, t.UTC().UnixNano())
+	rows, err := d.r.QueryContext(ctx, `SELECT `+reportColsOf("r")+` FROM progress_reports r JOIN blocks b ON b.id = r.block_id
+		WHERE (r.site_id = ?1 OR (r.site_id IS NULL AND b.site_id = ?1)) AND r.end_at > ?2 ORDER BY r.start_at, r.report_id`,
+		siteID, t.UTC().UnixNano())
 	if err != nil {
 		return nil, mapErr(ctx, op, err)
 	}

@@ -57,6 +57,8 @@ func Run(t *testing.T, open func(t *testing.T) *store.DB) {
 		{"ErrorMapping", testErrorMapping},
 		{"CanceledContext", testCanceledContext},
 		{"IntegrityCheck", testIntegrityCheck},
+		{"Networks", testNetworks},
+		{"NetworkProgressTwoSites", testNetworkProgressTwoSites},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {

@@ -53,7 +53,7 @@ func apiMessages(t *testing.T) []protoreflect.MessageDescriptor {
 // unitSuffixes are the units a floating-point field may carry in its name
 // (DESIGN.md: angles in degrees, distances with their unit in the name).
 var unitSuffixes = []string{
-	"_deg", "_au", "_km", "_m", // angles and distances
+	"_deg", "_au", "_km", "_m", "_mm", // angles and distances (apertures in mm)
 	"_deg_per_s", "_deg_per_s2", "_arcsec_per_min", "_mas_per_yr", // rates
 	"_arcsec", "_px", // image scale, trailing
 	"_hpa", "_c", // pressure, temperature
@@ -72,6 +72,8 @@ var dimensionless = []string{
 	"m1", "k1", "h", "g",
 	"extinction_v",
 	"total", "weighted_exposure", "completion_bonus", "cadence_points",
+	// the network objective of a joint plan and of its separate start (scores)
+	"objective", "separate_objective",
 	// magnitudes of a comet's light curve and the statistics of their fit
 	"fitted_magnitude", "prior_magnitude", "sigma_mag", "sigma_m1", "sigma_k1", "covariance_m1_k1", "chi2",
 	// a program's fair-share factor (a ratio of weights)
@@ -186,8 +188,8 @@ func TestListCallsPage(t *testing.T) {
 			}
 		}
 	}
-	if n != 5 {
-		t.Errorf("found %d List RPCs, want 5 (sites, targets, blocks, plans, programs)", n)
+	if n != 6 {
+		t.Errorf("found %d List RPCs, want 6 (sites, targets, blocks, plans, programs, networks)", n)
 	}
 }
 
@@ -204,6 +206,7 @@ func TestServicesAndRPCs(t *testing.T) {
 		"ApparitionService": {"MagnitudeHistory", "Outlook", "RefitMagnitudeLaw", "ReportMagnitudes"},
 		"CatalogueService":  {"LookupName", "SearchCatalogue"},
 		"ProgramService":    {"CreateProgram", "DeleteProgram", "GetProgram", "GetProgramUsage", "ListPrograms", "UpdateProgram"},
+		"NetworkService":    {"CreateNetwork", "DeleteNetwork", "GetNetwork", "ListNetworks", "MakeNetworkPlan", "ReplanNetwork"},
 	}
 	got := map[string][]string{}
 	for _, fd := range apiFiles(t) {

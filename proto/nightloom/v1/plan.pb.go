@@ -1112,11 +1112,16 @@ type Plan struct {
 	UnplacedCount int32 `protobuf:"varint,16,opt,name=unplaced_count,json=unplacedCount,proto3" json:"unplaced_count,omitempty"`
 	// Per cadence block with a run: points delivered and skipped slots.
 	Cadence []*CadenceSeries `protobuf:"bytes,17,rep,name=cadence,proto3" json:"cadence,omitempty"`
+	// Id of the network whose joint planning made this version (network.proto
+	// MakeNetworkPlan, ReplanNetwork, or a Replan of such a version); empty
+	// for a plan of the site alone. Its unplaced lists the network's blocks
+	// no member plans, with this site's reason.
+	NetworkId string `protobuf:"bytes,18,opt,name=network_id,json=networkId,proto3" json:"network_id,omitempty"`
 	// Time the plan charges to each program (program.proto), in the order
 	// of the programs' creation, the blocks without a program last; their
 	// exposure and overheads add up to the plan's. Empty for plans stored
 	// before this field.
-	Charges       []*ProgramCharge `protobuf:"bytes,18,rep,name=charges,proto3" json:"charges,omitempty"`
+	Charges       []*ProgramCharge `protobuf:"bytes,19,rep,name=charges,proto3" json:"charges,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -1268,6 +1273,13 @@ func (x *Plan) GetCadence() []*CadenceSeries {
 		return x.Cadence
 	}
 	return nil
+}
+
+func (x *Plan) GetNetworkId() string {
+	if x != nil {
+		return x.NetworkId
+	}
+	return ""
 }
 
 func (x *Plan) GetCharges() []*ProgramCharge {
@@ -2422,7 +2434,7 @@ const file_nightloom_v1_plan_proto_rawDesc = "" +
 	"\bblock_id\x18\x01 \x01(\tR\ablockId\x125\n" +
 	"\binterval\x18\x02 \x01(\v2\x19.google.protobuf.DurationR\binterval\x12%\n" +
 	"\x0eruns_delivered\x18\x03 \x01(\x05R\rrunsDelivered\x123\n" +
-	"\askipped\x18\x04 \x03(\v2\x19.nightloom.v1.SkippedSlotR\askipped\"\xd8\x06\n" +
+	"\askipped\x18\x04 \x03(\v2\x19.nightloom.v1.SkippedSlotR\askipped\"\xf7\x06\n" +
 	"\x04Plan\x12\x0e\n" +
 	"\x02id\x18\x01 \x01(\tR\x02id\x12\x17\n" +
 	"\asite_id\x18\x02 \x01(\tR\x06siteId\x12\x18\n" +
@@ -2443,8 +2455,10 @@ const file_nightloom_v1_plan_proto_rawDesc = "" +
 	"\tobjective\x18\x0e \x01(\v2\x1c.nightloom.v1.ObjectivePartsR\tobjective\x12)\n" +
 	"\x10assignment_count\x18\x0f \x01(\x05R\x0fassignmentCount\x12%\n" +
 	"\x0eunplaced_count\x18\x10 \x01(\x05R\runplacedCount\x125\n" +
-	"\acadence\x18\x11 \x03(\v2\x1b.nightloom.v1.CadenceSeriesR\acadence\x125\n" +
-	"\acharges\x18\x12 \x03(\v2\x1b.nightloom.v1.ProgramChargeR\acharges\"\xb5\x03\n" +
+	"\acadence\x18\x11 \x03(\v2\x1b.nightloom.v1.CadenceSeriesR\acadence\x12\x1d\n" +
+	"\n" +
+	"network_id\x18\x12 \x01(\tR\tnetworkId\x125\n" +
+	"\acharges\x18\x13 \x03(\v2\x1b.nightloom.v1.ProgramChargeR\acharges\"\xb5\x03\n" +
 	"\x0fMakePlanRequest\x12\x17\n" +
 	"\asite_id\x18\x01 \x01(\tR\x06siteId\x12/\n" +
 	"\x05night\x18\x02 \x01(\v2\x17.nightloom.v1.LocalDateH\x00R\x05night\x128\n" +

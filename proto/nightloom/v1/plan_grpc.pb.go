@@ -53,6 +53,8 @@ type PlanServiceClient interface {
 	// The call's deadline or cancellation stops the solver within one block's
 	// evaluation or one search iteration: DEADLINE_EXCEEDED or CANCELLED, and
 	// nothing is stored.
+	// Only the site's own blocks are planned: blocks queued for a network
+	// are planned with every member by NetworkService.MakeNetworkPlan.
 	// Errors: INVALID_ARGUMENT (a limit above names its field); NOT_FOUND for
 	// an unknown site.
 	MakePlan(ctx context.Context, in *MakePlanRequest, opts ...grpc.CallOption) (*MakePlanResponse, error)
@@ -76,6 +78,11 @@ type PlanServiceClient interface {
 	// or cancellation stops the solver: DEADLINE_EXCEEDED or CANCELLED, and
 	// nothing is stored.
 	// Stores the result as a new version and pushes it to watchers.
+	// A version that network planning made (Plan.network_id) is replanned
+	// with its network (NetworkService.ReplanNetwork from `from`, the
+	// closures at this site): every member whose plan covers the night gets a
+	// new version, and blocks may move between them; the answer is this
+	// site's, without run_changes.
 	// Limits: as MakePlan; at most 100 closures.
 	// Errors: INVALID_ARGUMENT; NOT_FOUND for an unknown site or plan;
 	// FAILED_PRECONDITION when plan_id is not the site's latest plan for its
@@ -201,6 +208,8 @@ type PlanServiceServer interface {
 	// The call's deadline or cancellation stops the solver within one block's
 	// evaluation or one search iteration: DEADLINE_EXCEEDED or CANCELLED, and
 	// nothing is stored.
+	// Only the site's own blocks are planned: blocks queued for a network
+	// are planned with every member by NetworkService.MakeNetworkPlan.
 	// Errors: INVALID_ARGUMENT (a limit above names its field); NOT_FOUND for
 	// an unknown site.
 	MakePlan(context.Context, *MakePlanRequest) (*MakePlanResponse, error)
@@ -224,6 +233,11 @@ type PlanServiceServer interface {
 	// or cancellation stops the solver: DEADLINE_EXCEEDED or CANCELLED, and
 	// nothing is stored.
 	// Stores the result as a new version and pushes it to watchers.
+	// A version that network planning made (Plan.network_id) is replanned
+	// with its network (NetworkService.ReplanNetwork from `from`, the
+	// closures at this site): every member whose plan covers the night gets a
+	// new version, and blocks may move between them; the answer is this
+	// site's, without run_changes.
 	// Limits: as MakePlan; at most 100 closures.
 	// Errors: INVALID_ARGUMENT; NOT_FOUND for an unknown site or plan;
 	// FAILED_PRECONDITION when plan_id is not the site's latest plan for its

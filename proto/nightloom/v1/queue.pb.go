@@ -212,19 +212,24 @@ func (x *Cadence) GetTolerance() *durationpb.Duration {
 }
 
 // An imaging block: frames of one target through one filter, queued at one
-// site.
+// site or for a network of sites (network_id).
 type Block struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
 	// Server-assigned id. Output only.
 	Id string `protobuf:"bytes,1,opt,name=id,proto3" json:"id,omitempty"`
-	// Id of the site whose queue holds the block. Required.
+	// Id of the site whose queue holds the block. Required for a site's
+	// block. For a network block it is the block's home site, a member of the
+	// network: whose time zone reads earliest_date and latest_date and whose
+	// site-scoped tokens may edit or withdraw the block; empty on queueing
+	// means the first of allowed_site_ids, else the network's first member.
 	SiteId string `protobuf:"bytes,2,opt,name=site_id,json=siteId,proto3" json:"site_id,omitempty"`
 	// Id of the target. Required.
 	TargetId string `protobuf:"bytes,3,opt,name=target_id,json=targetId,proto3" json:"target_id,omitempty"`
 	// Free label for people (program, observer), 0..200 bytes of UTF-8.
 	Label string `protobuf:"bytes,4,opt,name=label,proto3" json:"label,omitempty"`
 	// Filter name, 1..32 bytes. Required; must be one of the site's
-	// instrument.filters when that list is not empty.
+	// instrument.filters when that list is not empty (a network block: of at
+	// least one allowed member's; members without it never take the block).
 	Filter string `protobuf:"bytes,5,opt,name=filter,proto3" json:"filter,omitempty"`
 	// Length of one exposure, 0 < exposure <= 1 h. Required.
 	Exposure *durationpb.Duration `protobuf:"bytes,6,opt,name=exposure,proto3" json:"exposure,omitempty"`
@@ -265,10 +270,21 @@ type Block struct {
 	CreateTime *timestamppb.Timestamp `protobuf:"bytes,19,opt,name=create_time,json=createTime,proto3" json:"create_time,omitempty"`
 	// When the block last changed (progress, state). Output only.
 	UpdateTime *timestamppb.Timestamp `protobuf:"bytes,20,opt,name=update_time,json=updateTime,proto3" json:"update_time,omitempty"`
+	// Id of the network whose shared queue holds the block; empty for a
+	// block of one site. A network block runs once, at whichever member
+	// serves it best; its frames_done counts reports from every member.
+	// Set on queueing only.
+	NetworkId string `protobuf:"bytes,21,opt,name=network_id,json=networkId,proto3" json:"network_id,omitempty"`
+	// Member sites that may take a network block; empty means every member.
+	// Each must be a member of network_id; at most 64. Only with network_id.
+	AllowedSiteIds []string `protobuf:"bytes,22,rep,name=allowed_site_ids,json=allowedSiteIds,proto3" json:"allowed_site_ids,omitempty"`
+	// What a network block needs of a telescope beyond its filter; unset
+	// asks nothing. Only with network_id.
+	Needs *TelescopeNeeds `protobuf:"bytes,23,opt,name=needs,proto3" json:"needs,omitempty"`
 	// Name of the program whose time the block spends (program.proto); empty
 	// for none. The program must exist and, when it is held to a site, be
 	// held to the block's site. Set when queued; UpdateBlock cannot change it.
-	Program       string `protobuf:"bytes,21,opt,name=program,proto3" json:"program,omitempty"`
+	Program       string `protobuf:"bytes,24,opt,name=program,proto3" json:"program,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -443,11 +459,100 @@ func (x *Block) GetUpdateTime() *timestamppb.Timestamp {
 	return nil
 }
 
+func (x *Block) GetNetworkId() string {
+	if x != nil {
+		return x.NetworkId
+	}
+	return ""
+}
+
+func (x *Block) GetAllowedSiteIds() []string {
+	if x != nil {
+		return x.AllowedSiteIds
+	}
+	return nil
+}
+
+func (x *Block) GetNeeds() *TelescopeNeeds {
+	if x != nil {
+		return x.Needs
+	}
+	return nil
+}
+
 func (x *Block) GetProgram() string {
 	if x != nil {
 		return x.Program
 	}
 	return ""
+}
+
+// TelescopeNeeds decide, with the filter, whether a site's telescope can
+// do a network block (Site.instrument.aperture_mm, pixel_scale_arcsec and
+// filters). Zero fields ask nothing.
+type TelescopeNeeds struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Smallest aperture, in mm, 0..20000. A site that does not give its
+	// aperture (0) cannot take a block that asks for one.
+	MinApertureMm float64 `protobuf:"fixed64,1,opt,name=min_aperture_mm,json=minApertureMm,proto3" json:"min_aperture_mm,omitempty"`
+	// Smallest pixel scale, in arcsec per pixel, 0..60.
+	MinPixelScaleArcsec float64 `protobuf:"fixed64,2,opt,name=min_pixel_scale_arcsec,json=minPixelScaleArcsec,proto3" json:"min_pixel_scale_arcsec,omitempty"`
+	// Largest pixel scale, in arcsec per pixel, 0..60; 0 for no limit, else
+	// at least min_pixel_scale_arcsec.
+	MaxPixelScaleArcsec float64 `protobuf:"fixed64,3,opt,name=max_pixel_scale_arcsec,json=maxPixelScaleArcsec,proto3" json:"max_pixel_scale_arcsec,omitempty"`
+	unknownFields       protoimpl.UnknownFields
+	sizeCache           protoimpl.SizeCache
+}
+
+func (x *TelescopeNeeds) Reset() {
+	*x = TelescopeNeeds{}
+	mi := &file_nightloom_v1_queue_proto_msgTypes[2]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *TelescopeNeeds) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*TelescopeNeeds) ProtoMessage() {}
+
+func (x *TelescopeNeeds) ProtoReflect() protoreflect.Message {
+	mi := &file_nightloom_v1_queue_proto_msgTypes[2]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use TelescopeNeeds.ProtoReflect.Descriptor instead.
+func (*TelescopeNeeds) Descriptor() ([]byte, []int) {
+	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{2}
+}
+
+func (x *TelescopeNeeds) GetMinApertureMm() float64 {
+	if x != nil {
+		return x.MinApertureMm
+	}
+	return 0
+}
+
+func (x *TelescopeNeeds) GetMinPixelScaleArcsec() float64 {
+	if x != nil {
+		return x.MinPixelScaleArcsec
+	}
+	return 0
+}
+
+func (x *TelescopeNeeds) GetMaxPixelScaleArcsec() float64 {
+	if x != nil {
+		return x.MaxPixelScaleArcsec
+	}
+	return 0
 }
 
 // What the control software did for a block.
@@ -478,7 +583,7 @@ type ProgressReport struct {
 
 func (x *ProgressReport) Reset() {
 	*x = ProgressReport{}
-	mi := &file_nightloom_v1_queue_proto_msgTypes[2]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[3]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -490,7 +595,7 @@ func (x *ProgressReport) String() string {
 func (*ProgressReport) ProtoMessage() {}
 
 func (x *ProgressReport) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_queue_proto_msgTypes[2]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[3]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -503,7 +608,7 @@ func (x *ProgressReport) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ProgressReport.ProtoReflect.Descriptor instead.
 func (*ProgressReport) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{2}
+	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{3}
 }
 
 func (x *ProgressReport) GetReportId() string {
@@ -578,7 +683,7 @@ type QueueBlocksRequest struct {
 
 func (x *QueueBlocksRequest) Reset() {
 	*x = QueueBlocksRequest{}
-	mi := &file_nightloom_v1_queue_proto_msgTypes[3]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[4]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -590,7 +695,7 @@ func (x *QueueBlocksRequest) String() string {
 func (*QueueBlocksRequest) ProtoMessage() {}
 
 func (x *QueueBlocksRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_queue_proto_msgTypes[3]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[4]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -603,7 +708,7 @@ func (x *QueueBlocksRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use QueueBlocksRequest.ProtoReflect.Descriptor instead.
 func (*QueueBlocksRequest) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{3}
+	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{4}
 }
 
 func (x *QueueBlocksRequest) GetBlocks() []*Block {
@@ -634,7 +739,7 @@ type QueueBlocksResponse struct {
 
 func (x *QueueBlocksResponse) Reset() {
 	*x = QueueBlocksResponse{}
-	mi := &file_nightloom_v1_queue_proto_msgTypes[4]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[5]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -646,7 +751,7 @@ func (x *QueueBlocksResponse) String() string {
 func (*QueueBlocksResponse) ProtoMessage() {}
 
 func (x *QueueBlocksResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_queue_proto_msgTypes[4]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[5]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -659,7 +764,7 @@ func (x *QueueBlocksResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use QueueBlocksResponse.ProtoReflect.Descriptor instead.
 func (*QueueBlocksResponse) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{4}
+	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{5}
 }
 
 func (x *QueueBlocksResponse) GetBlocks() []*Block {
@@ -687,7 +792,7 @@ type GetBlockRequest struct {
 
 func (x *GetBlockRequest) Reset() {
 	*x = GetBlockRequest{}
-	mi := &file_nightloom_v1_queue_proto_msgTypes[5]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[6]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -699,7 +804,7 @@ func (x *GetBlockRequest) String() string {
 func (*GetBlockRequest) ProtoMessage() {}
 
 func (x *GetBlockRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_queue_proto_msgTypes[5]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[6]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -712,7 +817,7 @@ func (x *GetBlockRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use GetBlockRequest.ProtoReflect.Descriptor instead.
 func (*GetBlockRequest) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{5}
+	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{6}
 }
 
 func (x *GetBlockRequest) GetBlockId() string {
@@ -733,7 +838,7 @@ type GetBlockResponse struct {
 
 func (x *GetBlockResponse) Reset() {
 	*x = GetBlockResponse{}
-	mi := &file_nightloom_v1_queue_proto_msgTypes[6]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[7]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -745,7 +850,7 @@ func (x *GetBlockResponse) String() string {
 func (*GetBlockResponse) ProtoMessage() {}
 
 func (x *GetBlockResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_queue_proto_msgTypes[6]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[7]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -758,7 +863,7 @@ func (x *GetBlockResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use GetBlockResponse.ProtoReflect.Descriptor instead.
 func (*GetBlockResponse) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{6}
+	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{7}
 }
 
 func (x *GetBlockResponse) GetBlock() *Block {
@@ -787,7 +892,7 @@ type ListBlocksRequest struct {
 
 func (x *ListBlocksRequest) Reset() {
 	*x = ListBlocksRequest{}
-	mi := &file_nightloom_v1_queue_proto_msgTypes[7]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[8]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -799,7 +904,7 @@ func (x *ListBlocksRequest) String() string {
 func (*ListBlocksRequest) ProtoMessage() {}
 
 func (x *ListBlocksRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_queue_proto_msgTypes[7]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[8]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -812,7 +917,7 @@ func (x *ListBlocksRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ListBlocksRequest.ProtoReflect.Descriptor instead.
 func (*ListBlocksRequest) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{7}
+	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{8}
 }
 
 func (x *ListBlocksRequest) GetSiteId() string {
@@ -863,7 +968,7 @@ type ListBlocksResponse struct {
 
 func (x *ListBlocksResponse) Reset() {
 	*x = ListBlocksResponse{}
-	mi := &file_nightloom_v1_queue_proto_msgTypes[8]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[9]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -875,7 +980,7 @@ func (x *ListBlocksResponse) String() string {
 func (*ListBlocksResponse) ProtoMessage() {}
 
 func (x *ListBlocksResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_queue_proto_msgTypes[8]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[9]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -888,7 +993,7 @@ func (x *ListBlocksResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ListBlocksResponse.ProtoReflect.Descriptor instead.
 func (*ListBlocksResponse) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{8}
+	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{9}
 }
 
 func (x *ListBlocksResponse) GetBlocks() []*Block {
@@ -918,7 +1023,7 @@ type WithdrawBlockRequest struct {
 
 func (x *WithdrawBlockRequest) Reset() {
 	*x = WithdrawBlockRequest{}
-	mi := &file_nightloom_v1_queue_proto_msgTypes[9]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[10]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -930,7 +1035,7 @@ func (x *WithdrawBlockRequest) String() string {
 func (*WithdrawBlockRequest) ProtoMessage() {}
 
 func (x *WithdrawBlockRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_queue_proto_msgTypes[9]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[10]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -943,7 +1048,7 @@ func (x *WithdrawBlockRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use WithdrawBlockRequest.ProtoReflect.Descriptor instead.
 func (*WithdrawBlockRequest) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{9}
+	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{10}
 }
 
 func (x *WithdrawBlockRequest) GetBlockId() string {
@@ -971,7 +1076,7 @@ type WithdrawBlockResponse struct {
 
 func (x *WithdrawBlockResponse) Reset() {
 	*x = WithdrawBlockResponse{}
-	mi := &file_nightloom_v1_queue_proto_msgTypes[10]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[11]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -983,7 +1088,7 @@ func (x *WithdrawBlockResponse) String() string {
 func (*WithdrawBlockResponse) ProtoMessage() {}
 
 func (x *WithdrawBlockResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_queue_proto_msgTypes[10]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[11]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -996,7 +1101,7 @@ func (x *WithdrawBlockResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use WithdrawBlockResponse.ProtoReflect.Descriptor instead.
 func (*WithdrawBlockResponse) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{10}
+	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{11}
 }
 
 func (x *WithdrawBlockResponse) GetBlock() *Block {
@@ -1020,7 +1125,7 @@ type UpdateBlockRequest struct {
 
 func (x *UpdateBlockRequest) Reset() {
 	*x = UpdateBlockRequest{}
-	mi := &file_nightloom_v1_queue_proto_msgTypes[11]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[12]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1032,7 +1137,7 @@ func (x *UpdateBlockRequest) String() string {
 func (*UpdateBlockRequest) ProtoMessage() {}
 
 func (x *UpdateBlockRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_queue_proto_msgTypes[11]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[12]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1045,7 +1150,7 @@ func (x *UpdateBlockRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use UpdateBlockRequest.ProtoReflect.Descriptor instead.
 func (*UpdateBlockRequest) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{11}
+	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{12}
 }
 
 func (x *UpdateBlockRequest) GetBlock() *Block {
@@ -1073,7 +1178,7 @@ type UpdateBlockResponse struct {
 
 func (x *UpdateBlockResponse) Reset() {
 	*x = UpdateBlockResponse{}
-	mi := &file_nightloom_v1_queue_proto_msgTypes[12]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[13]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1085,7 +1190,7 @@ func (x *UpdateBlockResponse) String() string {
 func (*UpdateBlockResponse) ProtoMessage() {}
 
 func (x *UpdateBlockResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_queue_proto_msgTypes[12]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[13]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1098,7 +1203,7 @@ func (x *UpdateBlockResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use UpdateBlockResponse.ProtoReflect.Descriptor instead.
 func (*UpdateBlockResponse) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{12}
+	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{13}
 }
 
 func (x *UpdateBlockResponse) GetBlock() *Block {
@@ -1123,7 +1228,7 @@ type WithdrawBlocksRequest struct {
 
 func (x *WithdrawBlocksRequest) Reset() {
 	*x = WithdrawBlocksRequest{}
-	mi := &file_nightloom_v1_queue_proto_msgTypes[13]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[14]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1135,7 +1240,7 @@ func (x *WithdrawBlocksRequest) String() string {
 func (*WithdrawBlocksRequest) ProtoMessage() {}
 
 func (x *WithdrawBlocksRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_queue_proto_msgTypes[13]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[14]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1148,7 +1253,7 @@ func (x *WithdrawBlocksRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use WithdrawBlocksRequest.ProtoReflect.Descriptor instead.
 func (*WithdrawBlocksRequest) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{13}
+	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{14}
 }
 
 func (x *WithdrawBlocksRequest) GetSiteId() string {
@@ -1183,7 +1288,7 @@ type WithdrawBlocksResponse struct {
 
 func (x *WithdrawBlocksResponse) Reset() {
 	*x = WithdrawBlocksResponse{}
-	mi := &file_nightloom_v1_queue_proto_msgTypes[14]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[15]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1195,7 +1300,7 @@ func (x *WithdrawBlocksResponse) String() string {
 func (*WithdrawBlocksResponse) ProtoMessage() {}
 
 func (x *WithdrawBlocksResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_queue_proto_msgTypes[14]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[15]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1208,7 +1313,7 @@ func (x *WithdrawBlocksResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use WithdrawBlocksResponse.ProtoReflect.Descriptor instead.
 func (*WithdrawBlocksResponse) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{14}
+	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{15}
 }
 
 func (x *WithdrawBlocksResponse) GetBlocks() []*Block {
@@ -1229,7 +1334,7 @@ type ReportProgressRequest struct {
 
 func (x *ReportProgressRequest) Reset() {
 	*x = ReportProgressRequest{}
-	mi := &file_nightloom_v1_queue_proto_msgTypes[15]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[16]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1241,7 +1346,7 @@ func (x *ReportProgressRequest) String() string {
 func (*ReportProgressRequest) ProtoMessage() {}
 
 func (x *ReportProgressRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_queue_proto_msgTypes[15]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[16]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1254,7 +1359,7 @@ func (x *ReportProgressRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ReportProgressRequest.ProtoReflect.Descriptor instead.
 func (*ReportProgressRequest) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{15}
+	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{16}
 }
 
 func (x *ReportProgressRequest) GetReport() *ProgressReport {
@@ -1281,7 +1386,7 @@ type ReportProgressResponse struct {
 
 func (x *ReportProgressResponse) Reset() {
 	*x = ReportProgressResponse{}
-	mi := &file_nightloom_v1_queue_proto_msgTypes[16]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[17]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1293,7 +1398,7 @@ func (x *ReportProgressResponse) String() string {
 func (*ReportProgressResponse) ProtoMessage() {}
 
 func (x *ReportProgressResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_nightloom_v1_queue_proto_msgTypes[16]
+	mi := &file_nightloom_v1_queue_proto_msgTypes[17]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1306,7 +1411,7 @@ func (x *ReportProgressResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ReportProgressResponse.ProtoReflect.Descriptor instead.
 func (*ReportProgressResponse) Descriptor() ([]byte, []int) {
-	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{16}
+	return file_nightloom_v1_queue_proto_rawDescGZIP(), []int{17}
 }
 
 func (x *ReportProgressResponse) GetBlock() *Block {
@@ -1337,7 +1442,7 @@ const file_nightloom_v1_queue_proto_rawDesc = "" +
 	"\x18nightloom/v1/queue.proto\x12\fnightloom.v1\x1a\x1egoogle/protobuf/duration.proto\x1a google/protobuf/field_mask.proto\x1a\x1fgoogle/protobuf/timestamp.proto\x1a\x19nightloom/v1/common.proto\"y\n" +
 	"\aCadence\x125\n" +
 	"\binterval\x18\x01 \x01(\v2\x19.google.protobuf.DurationR\binterval\x127\n" +
-	"\ttolerance\x18\x02 \x01(\v2\x19.google.protobuf.DurationR\ttolerance\"\xf0\x06\n" +
+	"\ttolerance\x18\x02 \x01(\v2\x19.google.protobuf.DurationR\ttolerance\"\xed\a\n" +
 	"\x05Block\x12\x0e\n" +
 	"\x02id\x18\x01 \x01(\tR\x02id\x12\x17\n" +
 	"\asite_id\x18\x02 \x01(\tR\x06siteId\x12\x1b\n" +
@@ -1363,8 +1468,16 @@ const file_nightloom_v1_queue_proto_rawDesc = "" +
 	"\vcreate_time\x18\x13 \x01(\v2\x1a.google.protobuf.TimestampR\n" +
 	"createTime\x12;\n" +
 	"\vupdate_time\x18\x14 \x01(\v2\x1a.google.protobuf.TimestampR\n" +
-	"updateTime\x12\x18\n" +
-	"\aprogram\x18\x15 \x01(\tR\aprogram\"\xc6\x02\n" +
+	"updateTime\x12\x1d\n" +
+	"\n" +
+	"network_id\x18\x15 \x01(\tR\tnetworkId\x12(\n" +
+	"\x10allowed_site_ids\x18\x16 \x03(\tR\x0eallowedSiteIds\x122\n" +
+	"\x05needs\x18\x17 \x01(\v2\x1c.nightloom.v1.TelescopeNeedsR\x05needs\x12\x18\n" +
+	"\aprogram\x18\x18 \x01(\tR\aprogram\"\xa2\x01\n" +
+	"\x0eTelescopeNeeds\x12&\n" +
+	"\x0fmin_aperture_mm\x18\x01 \x01(\x01R\rminApertureMm\x123\n" +
+	"\x16min_pixel_scale_arcsec\x18\x02 \x01(\x01R\x13minPixelScaleArcsec\x123\n" +
+	"\x16max_pixel_scale_arcsec\x18\x03 \x01(\x01R\x13maxPixelScaleArcsec\"\xc6\x02\n" +
 	"\x0eProgressReport\x12\x1b\n" +
 	"\treport_id\x18\x01 \x01(\tR\breportId\x12\x19\n" +
 	"\bblock_id\x18\x02 \x01(\tR\ablockId\x12\x1f\n" +
@@ -1455,79 +1568,81 @@ func file_nightloom_v1_queue_proto_rawDescGZIP() []byte {
 }
 
 var file_nightloom_v1_queue_proto_enumTypes = make([]protoimpl.EnumInfo, 2)
-var file_nightloom_v1_queue_proto_msgTypes = make([]protoimpl.MessageInfo, 17)
+var file_nightloom_v1_queue_proto_msgTypes = make([]protoimpl.MessageInfo, 18)
 var file_nightloom_v1_queue_proto_goTypes = []any{
 	(BlockState)(0),                // 0: nightloom.v1.BlockState
 	(ProgressOutcome)(0),           // 1: nightloom.v1.ProgressOutcome
 	(*Cadence)(nil),                // 2: nightloom.v1.Cadence
 	(*Block)(nil),                  // 3: nightloom.v1.Block
-	(*ProgressReport)(nil),         // 4: nightloom.v1.ProgressReport
-	(*QueueBlocksRequest)(nil),     // 5: nightloom.v1.QueueBlocksRequest
-	(*QueueBlocksResponse)(nil),    // 6: nightloom.v1.QueueBlocksResponse
-	(*GetBlockRequest)(nil),        // 7: nightloom.v1.GetBlockRequest
-	(*GetBlockResponse)(nil),       // 8: nightloom.v1.GetBlockResponse
-	(*ListBlocksRequest)(nil),      // 9: nightloom.v1.ListBlocksRequest
-	(*ListBlocksResponse)(nil),     // 10: nightloom.v1.ListBlocksResponse
-	(*WithdrawBlockRequest)(nil),   // 11: nightloom.v1.WithdrawBlockRequest
-	(*WithdrawBlockResponse)(nil),  // 12: nightloom.v1.WithdrawBlockResponse
-	(*UpdateBlockRequest)(nil),     // 13: nightloom.v1.UpdateBlockRequest
-	(*UpdateBlockResponse)(nil),    // 14: nightloom.v1.UpdateBlockResponse
-	(*WithdrawBlocksRequest)(nil),  // 15: nightloom.v1.WithdrawBlocksRequest
-	(*WithdrawBlocksResponse)(nil), // 16: nightloom.v1.WithdrawBlocksResponse
-	(*ReportProgressRequest)(nil),  // 17: nightloom.v1.ReportProgressRequest
-	(*ReportProgressResponse)(nil), // 18: nightloom.v1.ReportProgressResponse
-	(*durationpb.Duration)(nil),    // 19: google.protobuf.Duration
-	(*ConstraintSet)(nil),          // 20: nightloom.v1.ConstraintSet
-	(*LocalDate)(nil),              // 21: nightloom.v1.LocalDate
-	(*timestamppb.Timestamp)(nil),  // 22: google.protobuf.Timestamp
-	(*TimeInterval)(nil),           // 23: nightloom.v1.TimeInterval
-	(*fieldmaskpb.FieldMask)(nil),  // 24: google.protobuf.FieldMask
+	(*TelescopeNeeds)(nil),         // 4: nightloom.v1.TelescopeNeeds
+	(*ProgressReport)(nil),         // 5: nightloom.v1.ProgressReport
+	(*QueueBlocksRequest)(nil),     // 6: nightloom.v1.QueueBlocksRequest
+	(*QueueBlocksResponse)(nil),    // 7: nightloom.v1.QueueBlocksResponse
+	(*GetBlockRequest)(nil),        // 8: nightloom.v1.GetBlockRequest
+	(*GetBlockResponse)(nil),       // 9: nightloom.v1.GetBlockResponse
+	(*ListBlocksRequest)(nil),      // 10: nightloom.v1.ListBlocksRequest
+	(*ListBlocksResponse)(nil),     // 11: nightloom.v1.ListBlocksResponse
+	(*WithdrawBlockRequest)(nil),   // 12: nightloom.v1.WithdrawBlockRequest
+	(*WithdrawBlockResponse)(nil),  // 13: nightloom.v1.WithdrawBlockResponse
+	(*UpdateBlockRequest)(nil),     // 14: nightloom.v1.UpdateBlockRequest
+	(*UpdateBlockResponse)(nil),    // 15: nightloom.v1.UpdateBlockResponse
+	(*WithdrawBlocksRequest)(nil),  // 16: nightloom.v1.WithdrawBlocksRequest
+	(*WithdrawBlocksResponse)(nil), // 17: nightloom.v1.WithdrawBlocksResponse
+	(*ReportProgressRequest)(nil),  // 18: nightloom.v1.ReportProgressRequest
+	(*ReportProgressResponse)(nil), // 19: nightloom.v1.ReportProgressResponse
+	(*durationpb.Duration)(nil),    // 20: google.protobuf.Duration
+	(*ConstraintSet)(nil),          // 21: nightloom.v1.ConstraintSet
+	(*LocalDate)(nil),              // 22: nightloom.v1.LocalDate
+	(*timestamppb.Timestamp)(nil),  // 23: google.protobuf.Timestamp
+	(*TimeInterval)(nil),           // 24: nightloom.v1.TimeInterval
+	(*fieldmaskpb.FieldMask)(nil),  // 25: google.protobuf.FieldMask
 }
 var file_nightloom_v1_queue_proto_depIdxs = []int32{
-	19, // 0: nightloom.v1.Cadence.interval:type_name -> google.protobuf.Duration
-	19, // 1: nightloom.v1.Cadence.tolerance:type_name -> google.protobuf.Duration
-	19, // 2: nightloom.v1.Block.exposure:type_name -> google.protobuf.Duration
-	20, // 3: nightloom.v1.Block.constraints:type_name -> nightloom.v1.ConstraintSet
-	21, // 4: nightloom.v1.Block.earliest_date:type_name -> nightloom.v1.LocalDate
-	21, // 5: nightloom.v1.Block.latest_date:type_name -> nightloom.v1.LocalDate
+	20, // 0: nightloom.v1.Cadence.interval:type_name -> google.protobuf.Duration
+	20, // 1: nightloom.v1.Cadence.tolerance:type_name -> google.protobuf.Duration
+	20, // 2: nightloom.v1.Block.exposure:type_name -> google.protobuf.Duration
+	21, // 3: nightloom.v1.Block.constraints:type_name -> nightloom.v1.ConstraintSet
+	22, // 4: nightloom.v1.Block.earliest_date:type_name -> nightloom.v1.LocalDate
+	22, // 5: nightloom.v1.Block.latest_date:type_name -> nightloom.v1.LocalDate
 	2,  // 6: nightloom.v1.Block.cadence:type_name -> nightloom.v1.Cadence
 	0,  // 7: nightloom.v1.Block.state:type_name -> nightloom.v1.BlockState
-	22, // 8: nightloom.v1.Block.create_time:type_name -> google.protobuf.Timestamp
-	22, // 9: nightloom.v1.Block.update_time:type_name -> google.protobuf.Timestamp
-	23, // 10: nightloom.v1.ProgressReport.interval:type_name -> nightloom.v1.TimeInterval
-	1,  // 11: nightloom.v1.ProgressReport.outcome:type_name -> nightloom.v1.ProgressOutcome
-	22, // 12: nightloom.v1.ProgressReport.receive_time:type_name -> google.protobuf.Timestamp
-	3,  // 13: nightloom.v1.QueueBlocksRequest.blocks:type_name -> nightloom.v1.Block
-	3,  // 14: nightloom.v1.QueueBlocksResponse.blocks:type_name -> nightloom.v1.Block
-	3,  // 15: nightloom.v1.GetBlockResponse.block:type_name -> nightloom.v1.Block
-	0,  // 16: nightloom.v1.ListBlocksRequest.states:type_name -> nightloom.v1.BlockState
-	3,  // 17: nightloom.v1.ListBlocksResponse.blocks:type_name -> nightloom.v1.Block
-	3,  // 18: nightloom.v1.WithdrawBlockResponse.block:type_name -> nightloom.v1.Block
-	3,  // 19: nightloom.v1.UpdateBlockRequest.block:type_name -> nightloom.v1.Block
-	24, // 20: nightloom.v1.UpdateBlockRequest.update_mask:type_name -> google.protobuf.FieldMask
-	3,  // 21: nightloom.v1.UpdateBlockResponse.block:type_name -> nightloom.v1.Block
-	3,  // 22: nightloom.v1.WithdrawBlocksResponse.blocks:type_name -> nightloom.v1.Block
-	4,  // 23: nightloom.v1.ReportProgressRequest.report:type_name -> nightloom.v1.ProgressReport
-	3,  // 24: nightloom.v1.ReportProgressResponse.block:type_name -> nightloom.v1.Block
-	5,  // 25: nightloom.v1.QueueService.QueueBlocks:input_type -> nightloom.v1.QueueBlocksRequest
-	7,  // 26: nightloom.v1.QueueService.GetBlock:input_type -> nightloom.v1.GetBlockRequest
-	9,  // 27: nightloom.v1.QueueService.ListBlocks:input_type -> nightloom.v1.ListBlocksRequest
-	11, // 28: nightloom.v1.QueueService.WithdrawBlock:input_type -> nightloom.v1.WithdrawBlockRequest
-	17, // 29: nightloom.v1.QueueService.ReportProgress:input_type -> nightloom.v1.ReportProgressRequest
-	13, // 30: nightloom.v1.QueueService.UpdateBlock:input_type -> nightloom.v1.UpdateBlockRequest
-	15, // 31: nightloom.v1.QueueService.WithdrawBlocks:input_type -> nightloom.v1.WithdrawBlocksRequest
-	6,  // 32: nightloom.v1.QueueService.QueueBlocks:output_type -> nightloom.v1.QueueBlocksResponse
-	8,  // 33: nightloom.v1.QueueService.GetBlock:output_type -> nightloom.v1.GetBlockResponse
-	10, // 34: nightloom.v1.QueueService.ListBlocks:output_type -> nightloom.v1.ListBlocksResponse
-	12, // 35: nightloom.v1.QueueService.WithdrawBlock:output_type -> nightloom.v1.WithdrawBlockResponse
-	18, // 36: nightloom.v1.QueueService.ReportProgress:output_type -> nightloom.v1.ReportProgressResponse
-	14, // 37: nightloom.v1.QueueService.UpdateBlock:output_type -> nightloom.v1.UpdateBlockResponse
-	16, // 38: nightloom.v1.QueueService.WithdrawBlocks:output_type -> nightloom.v1.WithdrawBlocksResponse
-	32, // [32:39] is the sub-list for method output_type
-	25, // [25:32] is the sub-list for method input_type
-	25, // [25:25] is the sub-list for extension type_name
-	25, // [25:25] is the sub-list for extension extendee
-	0,  // [0:25] is the sub-list for field type_name
+	23, // 8: nightloom.v1.Block.create_time:type_name -> google.protobuf.Timestamp
+	23, // 9: nightloom.v1.Block.update_time:type_name -> google.protobuf.Timestamp
+	4,  // 10: nightloom.v1.Block.needs:type_name -> nightloom.v1.TelescopeNeeds
+	24, // 11: nightloom.v1.ProgressReport.interval:type_name -> nightloom.v1.TimeInterval
+	1,  // 12: nightloom.v1.ProgressReport.outcome:type_name -> nightloom.v1.ProgressOutcome
+	23, // 13: nightloom.v1.ProgressReport.receive_time:type_name -> google.protobuf.Timestamp
+	3,  // 14: nightloom.v1.QueueBlocksRequest.blocks:type_name -> nightloom.v1.Block
+	3,  // 15: nightloom.v1.QueueBlocksResponse.blocks:type_name -> nightloom.v1.Block
+	3,  // 16: nightloom.v1.GetBlockResponse.block:type_name -> nightloom.v1.Block
+	0,  // 17: nightloom.v1.ListBlocksRequest.states:type_name -> nightloom.v1.BlockState
+	3,  // 18: nightloom.v1.ListBlocksResponse.blocks:type_name -> nightloom.v1.Block
+	3,  // 19: nightloom.v1.WithdrawBlockResponse.block:type_name -> nightloom.v1.Block
+	3,  // 20: nightloom.v1.UpdateBlockRequest.block:type_name -> nightloom.v1.Block
+	25, // 21: nightloom.v1.UpdateBlockRequest.update_mask:type_name -> google.protobuf.FieldMask
+	3,  // 22: nightloom.v1.UpdateBlockResponse.block:type_name -> nightloom.v1.Block
+	3,  // 23: nightloom.v1.WithdrawBlocksResponse.blocks:type_name -> nightloom.v1.Block
+	5,  // 24: nightloom.v1.ReportProgressRequest.report:type_name -> nightloom.v1.ProgressReport
+	3,  // 25: nightloom.v1.ReportProgressResponse.block:type_name -> nightloom.v1.Block
+	6,  // 26: nightloom.v1.QueueService.QueueBlocks:input_type -> nightloom.v1.QueueBlocksRequest
+	8,  // 27: nightloom.v1.QueueService.GetBlock:input_type -> nightloom.v1.GetBlockRequest
+	10, // 28: nightloom.v1.QueueService.ListBlocks:input_type -> nightloom.v1.ListBlocksRequest
+	12, // 29: nightloom.v1.QueueService.WithdrawBlock:input_type -> nightloom.v1.WithdrawBlockRequest
+	18, // 30: nightloom.v1.QueueService.ReportProgress:input_type -> nightloom.v1.ReportProgressRequest
+	14, // 31: nightloom.v1.QueueService.UpdateBlock:input_type -> nightloom.v1.UpdateBlockRequest
+	16, // 32: nightloom.v1.QueueService.WithdrawBlocks:input_type -> nightloom.v1.WithdrawBlocksRequest
+	7,  // 33: nightloom.v1.QueueService.QueueBlocks:output_type -> nightloom.v1.QueueBlocksResponse
+	9,  // 34: nightloom.v1.QueueService.GetBlock:output_type -> nightloom.v1.GetBlockResponse
+	11, // 35: nightloom.v1.QueueService.ListBlocks:output_type -> nightloom.v1.ListBlocksResponse
+	13, // 36: nightloom.v1.QueueService.WithdrawBlock:output_type -> nightloom.v1.WithdrawBlockResponse
+	19, // 37: nightloom.v1.QueueService.ReportProgress:output_type -> nightloom.v1.ReportProgressResponse
+	15, // 38: nightloom.v1.QueueService.UpdateBlock:output_type -> nightloom.v1.UpdateBlockResponse
+	17, // 39: nightloom.v1.QueueService.WithdrawBlocks:output_type -> nightloom.v1.WithdrawBlocksResponse
+	33, // [33:40] is the sub-list for method output_type
+	26, // [26:33] is the sub-list for method input_type
+	26, // [26:26] is the sub-list for extension type_name
+	26, // [26:26] is the sub-list for extension extendee
+	0,  // [0:26] is the sub-list for field type_name
 }
 
 func init() { file_nightloom_v1_queue_proto_init() }
@@ -1542,7 +1657,7 @@ func file_nightloom_v1_queue_proto_init() {
 			GoPackagePath: reflect.TypeOf(x{}).PkgPath(),
 			RawDescriptor: unsafe.Slice(unsafe.StringData(file_nightloom_v1_queue_proto_rawDesc), len(file_nightloom_v1_queue_proto_rawDesc)),
 			NumEnums:      2,
-			NumMessages:   17,
+			NumMessages:   18,
 			NumExtensions: 0,
 			NumServices:   1,
 		},

@@ -97,7 +97,8 @@ type QueueServiceClient interface {
 	// WithdrawBlocks withdraws every open block of one site that matches the
 	// filter, in one call (as WithdrawBlock does one by one). At least
 	// site_id is required; target_id narrows it further. Blocks that are not
-	// open are left as they are.
+	// open are left as they are, and so are network blocks whose home is the
+	// site (they are the network's; WithdrawBlock takes one).
 	// Errors: INVALID_ARGUMENT; NOT_FOUND for an unknown site.
 	WithdrawBlocks(ctx context.Context, in *WithdrawBlocksRequest, opts ...grpc.CallOption) (*WithdrawBlocksResponse, error)
 }
@@ -246,7 +247,8 @@ type QueueServiceServer interface {
 	// WithdrawBlocks withdraws every open block of one site that matches the
 	// filter, in one call (as WithdrawBlock does one by one). At least
 	// site_id is required; target_id narrows it further. Blocks that are not
-	// open are left as they are.
+	// open are left as they are, and so are network blocks whose home is the
+	// site (they are the network's; WithdrawBlock takes one).
 	// Errors: INVALID_ARGUMENT; NOT_FOUND for an unknown site.
 	WithdrawBlocks(context.Context, *WithdrawBlocksRequest) (*WithdrawBlocksResponse, error)
 	mustEmbedUnimplementedQueueServiceServer()

@@ -441,7 +441,11 @@ type Instrument struct {
 	// (plate solving, centring, starting the guider), 0..30 min.
 	Acquisition *durationpb.Duration `protobuf:"bytes,6,opt,name=acquisition,proto3" json:"acquisition,omitempty"`
 	// When the focuser runs and how long it takes.
-	Focus         *FocusPolicy `protobuf:"bytes,7,opt,name=focus,proto3" json:"focus,omitempty"`
+	Focus *FocusPolicy `protobuf:"bytes,7,opt,name=focus,proto3" json:"focus,omitempty"`
+	// Clear aperture of the telescope, in mm, 0..20000; 0 means not given.
+	// With filters and pixel_scale_arcsec it decides which network blocks
+	// the site can take (Block.needs).
+	ApertureMm    float64 `protobuf:"fixed64,8,opt,name=aperture_mm,json=apertureMm,proto3" json:"aperture_mm,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -523,6 +527,13 @@ func (x *Instrument) GetFocus() *FocusPolicy {
 		return x.Focus
 	}
 	return nil
+}
+
+func (x *Instrument) GetApertureMm() float64 {
+	if x != nil {
+		return x.ApertureMm
+	}
+	return 0
 }
 
 // A telescope at a place.
@@ -1238,7 +1249,7 @@ const file_nightloom_v1_site_proto_rawDesc = "" +
 	"\vFocusPolicy\x125\n" +
 	"\binterval\x18\x01 \x01(\v2\x19.google.protobuf.DurationR\binterval\x12(\n" +
 	"\x10on_filter_change\x18\x02 \x01(\bR\x0eonFilterChange\x125\n" +
-	"\bduration\x18\x03 \x01(\v2\x19.google.protobuf.DurationR\bduration\"\xea\x02\n" +
+	"\bduration\x18\x03 \x01(\v2\x19.google.protobuf.DurationR\bduration\"\x8b\x03\n" +
 	"\n" +
 	"Instrument\x12,\n" +
 	"\x12pixel_scale_arcsec\x18\x01 \x01(\x01R\x10pixelScaleArcsec\x12\x18\n" +
@@ -1247,7 +1258,9 @@ const file_nightloom_v1_site_proto_rawDesc = "" +
 	"\areadout\x18\x04 \x01(\v2\x19.google.protobuf.DurationR\areadout\x121\n" +
 	"\x06dither\x18\x05 \x01(\v2\x19.google.protobuf.DurationR\x06dither\x12;\n" +
 	"\vacquisition\x18\x06 \x01(\v2\x19.google.protobuf.DurationR\vacquisition\x12/\n" +
-	"\x05focus\x18\a \x01(\v2\x19.nightloom.v1.FocusPolicyR\x05focus\"\xa4\x06\n" +
+	"\x05focus\x18\a \x01(\v2\x19.nightloom.v1.FocusPolicyR\x05focus\x12\x1f\n" +
+	"\vaperture_mm\x18\b \x01(\x01R\n" +
+	"apertureMm\"\xa4\x06\n" +
 	"\x04Site\x12\x0e\n" +
 	"\x02id\x18\x01 \x01(\tR\x02id\x12\x12\n" +
 	"\x04name\x18\x02 \x01(\tR\x04name\x12!\n" +

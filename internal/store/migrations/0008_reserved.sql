@@ -1,3 +1,0 @@
--- 0008: reserved for the networks migration of a branch developed in
--- parallel (wave 3); this placeholder changes nothing and is replaced by
--- that migration when the branches merge.

@@ -1,1 +1,0 @@
--- 0008 (PostgreSQL): reserved, as migrations/0008_reserved.sql.
