@@ -170,6 +170,20 @@ func (s *Server) solveNetwork(ctx context.Context, job *netJob) (*netPlanned, er
 		}
 	}
 	in.Blocks = blocks
+	// Programs: their use so far in the period that holds the network's
+	// start, every program open to any member (a block's program is held
+	// to its home site or to none, which queueing checks).
+	at := job.from
+	for _, m := range job.members {
+		if at.IsZero() || m.start.Before(at) {
+			at = m.start
+		}
+	}
+	programs, err := s.planPrograms(ctx, "", at, nil)
+	if err != nil {
+		return nil, err
+	}
+	in.Programs = programs
 	pl, err := scheduler.SolveNetwork(in)
 	if ctx.Err() != nil {
 		return nil, fmt.Errorf("network planning stopped after %v: %w", time.Since(began).Round(time.Millisecond), ctx.Err())
@@ -257,6 +271,7 @@ func (s *Server) solveNetwork(ctx context.Context, job *netJob) (*netPlanned, er
 			GridSteps: int32(grids[k].N), BlocksConsidered: int32(len(local)), StopReason: sp.Plan.Stopped}
 		body.Objective = objectiveOf(pj, body, &sp.Plan.Objective)
 		body.Cadence = cadenceOf(sp.Plan)
+		body.Charges = chargesOf(sp.Plan.Charged)
 		body.SiteId, body.Origin, body.Night, body.Closures = m.site.pb.GetId(), job.origin, m.night, m.closures
 		body.NetworkId = job.network.GetId()
 		if m.old != nil {
