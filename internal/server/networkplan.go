@@ -484,23 +484,26 @@ func (x *networkService) MakeNetworkPlan(ctx context.Context, req *nightloomv1.M
 			}
 		}
 	}
+	// Every member's every night is stored in one transaction: all the
+	// new versions or none, so that no member plans a block another
+	// member's stored version also took.
+	var bodies []*nightloomv1.Plan
+	for _, sv := range all {
+		bodies = append(bodies, sv.out.bodies...)
+	}
+	unlock, err := s.lockSites(ctx, n.GetSiteIds())
+	if err != nil {
+		return nil, err
+	}
+	_, err = s.storePlans(ctx, bodies)
+	unlock()
+	if err != nil {
+		return nil, err
+	}
 	resp := &nightloomv1.MakeNetworkPlanResponse{}
 	for k, sv := range all {
-		nn := &nightloomv1.NetworkNight{Night: dateOf(plan[k].date), Unplaced: sv.out.unplaced,
-			Objective: sv.out.objective, SeparateObjective: sv.out.separate}
-		for _, body := range sv.out.bodies {
-			unlock, err := s.lockSite(ctx, body.GetSiteId())
-			if err != nil {
-				return nil, err
-			}
-			stored, err := s.storePlan(ctx, body)
-			unlock()
-			if err != nil {
-				return nil, err
-			}
-			nn.Plans = append(nn.Plans, stored)
-		}
-		resp.Nights = append(resp.Nights, nn)
+		resp.Nights = append(resp.Nights, &nightloomv1.NetworkNight{Night: dateOf(plan[k].date), Unplaced: sv.out.unplaced,
+			Objective: sv.out.objective, SeparateObjective: sv.out.separate, Plans: sv.out.bodies})
 	}
 	return resp, nil
 }
@@ -693,13 +696,10 @@ func (s *Server) replanNetwork(ctx context.Context, networkID string, from time.
 	if err != nil {
 		return nil, err
 	}
-	nn := &nightloomv1.NetworkNight{Unplaced: out.unplaced, Objective: out.objective, SeparateObjective: out.separate}
-	for _, body := range out.bodies {
-		stored, err := s.storePlan(ctx, body)
-		if err != nil {
-			return nil, err
-		}
-		nn.Plans = append(nn.Plans, stored)
+	// All members' new versions in one transaction, or none.
+	stored, err := s.storePlans(ctx, out.bodies)
+	if err != nil {
+		return nil, err
 	}
-	return nn, nil
+	return &nightloomv1.NetworkNight{Unplaced: out.unplaced, Objective: out.objective, SeparateObjective: out.separate, Plans: stored}, nil
 }

@@ -71,21 +71,39 @@ func (s *Server) lockSite(ctx context.Context, id string) (func(), error) {
 // storePlan stores a plan body as the site's next version and publishes it
 // to the watchers. The caller holds the site's lock.
 func (s *Server) storePlan(ctx context.Context, body *nightloomv1.Plan) (*nightloomv1.Plan, error) {
-	body.Id = newID(planPrefix)
-	body.AssignmentCount, body.UnplacedCount = int32(len(body.Assignments)), int32(len(body.Unplaced))
-	raw, err := storable(body)
+	out, err := s.storePlans(ctx, []*nightloomv1.Plan{body})
 	if err != nil {
 		return nil, err
 	}
-	rec, err := s.db.CreatePlan(ctx, store.Plan{ID: body.Id, SiteID: body.SiteId,
-		Start: body.GetInterval().GetStart().AsTime(), End: body.GetInterval().GetEnd().AsTime(), Body: raw})
+	return out[0], nil
+}
+
+// storePlans stores plan bodies (of one site or several: a network's
+// members) in one transaction, each as its site's next version, all or
+// none, and publishes them to the watchers once stored. The caller holds
+// the sites' locks.
+func (s *Server) storePlans(ctx context.Context, bodies []*nightloomv1.Plan) ([]*nightloomv1.Plan, error) {
+	recs := make([]store.Plan, len(bodies))
+	for i, body := range bodies {
+		body.Id = newID(planPrefix)
+		body.AssignmentCount, body.UnplacedCount = int32(len(body.Assignments)), int32(len(body.Unplaced))
+		raw, err := storable(body)
+		if err != nil {
+			return nil, err
+		}
+		recs[i] = store.Plan{ID: body.Id, SiteID: body.SiteId,
+			Start: body.GetInterval().GetStart().AsTime(), End: body.GetInterval().GetEnd().AsTime(), Body: raw}
+	}
+	stored, err := s.db.CreatePlans(ctx, recs)
 	if err != nil {
 		return nil, err
 	}
-	body.Version, body.CreateTime = rec.Version, timestamppb.New(rec.CreatedAt)
-	s.metrics.versions.Inc()
-	s.publishStored(body)
-	return body, nil
+	for i, body := range bodies {
+		body.Version, body.CreateTime = stored[i].Version, timestamppb.New(stored[i].CreatedAt)
+		s.metrics.versions.Inc()
+		s.publishStored(body)
+	}
+	return bodies, nil
 }
 
 // openBlocks loads the site's open blocks (queued and not expired at now)

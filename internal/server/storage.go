@@ -44,6 +44,7 @@ type Storage interface {
 	ReportsEndingAfter(ctx context.Context, siteID string, t time.Time) ([]store.ProgressReport, error)
 
 	CreatePlan(ctx context.Context, p store.Plan) (store.Plan, error)
+	CreatePlans(ctx context.Context, ps []store.Plan) ([]store.Plan, error)
 	GetPlan(ctx context.Context, id string) (store.Plan, error)
 	PlanByVersion(ctx context.Context, siteID string, v int64) (store.Plan, error)
 	LatestPlan(ctx context.Context, siteID string) (store.Plan, error)

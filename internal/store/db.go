@@ -14,6 +14,7 @@ type Store interface {
 	Close() error
 	CreateBlocks(ctx context.Context, blocks []Block) ([]Block, error)
 	CreatePlan(ctx context.Context, p Plan) (Plan, error)
+	CreatePlans(ctx context.Context, ps []Plan) ([]Plan, error)
 	CreateSite(ctx context.Context, s Site) (Site, error)
 	CreateTarget(ctx context.Context, t Target) (Target, error)
 	CreateToken(ctx context.Context, t Token) (Token, error)
@@ -94,6 +95,10 @@ func (d *DB) Close() error { return d.impl.Close() }
 
 func (d *DB) CreateBlocks(ctx context.Context, blocks []Block) ([]Block, error) {
 	return d.impl.CreateBlocks(ctx, blocks)
+}
+
+func (d *DB) CreatePlans(ctx context.Context, ps []Plan) ([]Plan, error) {
+	return d.impl.CreatePlans(ctx, ps)
 }
 
 func (d *DB) CreatePlan(ctx context.Context, p Plan) (Plan, error) { return d.impl.CreatePlan(ctx, p) }

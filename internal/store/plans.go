@@ -4,6 +4,7 @@ import (
 	"context"
 	"database/sql"
 	"fmt"
+	"slices"
 	"time"
 )
 
@@ -37,50 +38,91 @@ func scanPlan(s scanner) (Plan, error) {
 // ErrAlreadyExists, an interval that is missing or ends before it starts
 // ErrInvalid.
 func (d *sqliteDB) CreatePlan(ctx context.Context, p Plan) (Plan, error) {
-	op := fmt.Sprintf("create plan %q for site %q", p.ID, p.SiteID)
-	var (
-		start, end int64
-		err        error
-	)
-	switch {
-	case p.ID == "":
-		err = invalidf("plan id is empty")
-	case p.SiteID == "":
-		err = invalidf("site id is empty")
-	}
-	if err == nil {
-		start, err = encTime(p.Start, "start")
-	}
-	if err == nil {
-		end, err = encTime(p.End, "end")
-	}
-	if err == nil && end < start {
-		err = invalidf("end %s is before start %s", p.End.Format(time.RFC3339Nano), p.Start.Format(time.RFC3339Nano))
-	}
-	if err != nil {
-		return Plan{}, mapErr(ctx, op, err)
-	}
-	p.Start, p.End = decTime(start), decTime(end)
-	err = d.write(ctx, op, func(tx *sql.Tx) error {
-		var sites int
-		var last int64
-		if err := tx.QueryRowContext(ctx, `SELECT
-			(SELECT COUNT(*) FROM sites WHERE id = ?1),
-			(SELECT COALESCE(MAX(version), 0) FROM plans WHERE site_id = ?1)`, p.SiteID).Scan(&sites, &last); err != nil {
-			return err
-		}
-		if sites == 0 {
-			return fmt.Errorf("site: %w", ErrNotFound)
-		}
-		p.Version, p.CreatedAt = last+1, d.now()
-		_, err := tx.ExecContext(ctx, `INSERT INTO plans (`+planCols+`) VALUES (?, ?, ?, ?, ?, ?, ?)`,
-			p.ID, p.SiteID, p.Version, start, end, blob(p.Body), p.CreatedAt.UnixNano())
-		return err
-	})
+	ps, err := d.CreatePlans(ctx, []Plan{p})
 	if err != nil {
 		return Plan{}, err
 	}
-	return p, nil
+	return ps[0], nil
+}
+
+// CreatePlans stores several plan versions, of one site or several, in one
+// transaction: all of them or, on any error, none (a network's members get
+// their new versions together). Each is its site's next version in the
+// order given; otherwise as CreatePlan.
+func (d *sqliteDB) CreatePlans(ctx context.Context, ps []Plan) ([]Plan, error) {
+	out, spans, err := checkPlans(ps)
+	op := plansOp(out)
+	if err != nil {
+		return nil, mapErr(ctx, op, err)
+	}
+	err = d.write(ctx, op, func(tx *sql.Tx) error {
+		for i := range out {
+			p := &out[i]
+			var sites int
+			var last int64
+			if err := tx.QueryRowContext(ctx, `SELECT
+				(SELECT COUNT(*) FROM sites WHERE id = ?1),
+				(SELECT COALESCE(MAX(version), 0) FROM plans WHERE site_id = ?1)`, p.SiteID).Scan(&sites, &last); err != nil {
+				return err
+			}
+			if sites == 0 {
+				return fmt.Errorf("site %q: %w", p.SiteID, ErrNotFound)
+			}
+			p.Version, p.CreatedAt = last+1, d.now()
+			if _, err := tx.ExecContext(ctx, `INSERT INTO plans (`+planCols+`) VALUES (?, ?, ?, ?, ?, ?, ?)`,
+				p.ID, p.SiteID, p.Version, spans[i][0], spans[i][1], blob(p.Body), p.CreatedAt.UnixNano()); err != nil {
+				return err
+			}
+		}
+		return nil
+	})
+	if err != nil {
+		return nil, err
+	}
+	return out, nil
+}
+
+// checkPlans validates plans to store and encodes their intervals.
+func checkPlans(ps []Plan) ([]Plan, [][2]int64, error) {
+	out := slices.Clone(ps)
+	spans := make([][2]int64, len(ps))
+	if len(ps) == 0 {
+		return out, spans, invalidf("no plan to store")
+	}
+	for i := range out {
+		p := &out[i]
+		var start, end int64
+		var err error
+		switch {
+		case p.ID == "":
+			err = invalidf("plan id is empty")
+		case p.SiteID == "":
+			err = invalidf("site id is empty")
+		}
+		if err == nil {
+			start, err = encTime(p.Start, "start")
+		}
+		if err == nil {
+			end, err = encTime(p.End, "end")
+		}
+		if err == nil && end < start {
+			err = invalidf("end %s is before start %s", p.End.Format(time.RFC3339Nano), p.Start.Format(time.RFC3339Nano))
+		}
+		if err != nil {
+			return out, spans, err
+		}
+		p.Start, p.End = decTime(start), decTime(end)
+		spans[i] = [2]int64{start, end}
+	}
+	return out, spans, nil
+}
+
+// plansOp names a CreatePlans call in errors.
+func plansOp(ps []Plan) string {
+	if len(ps) == 1 {
+		return fmt.Sprintf("create plan %q for site %q", ps[0].ID, ps[0].SiteID)
+	}
+	return fmt.Sprintf("create %d plans", len(ps))
 }
 
 // GetPlan returns the plan with that id, or ErrNotFound.

@@ -506,55 +506,49 @@ const planChannel = "nightloom_plan_versions"
 // transaction is delivered to listeners at commit, in commit order, which is
 // version order.
 func (d *pgDB) CreatePlan(ctx context.Context, p Plan) (Plan, error) {
-	op := fmt.Sprintf("create plan %q for site %q", p.ID, p.SiteID)
-	var (
-		start, end int64
-		err        error
-	)
-	switch {
-	case p.ID == "":
-		err = invalidf("plan id is empty")
-	case p.SiteID == "":
-		err = invalidf("site id is empty")
-	}
-	if err == nil {
-		start, err = encTime(p.Start, "start")
-	}
-	if err == nil {
-		end, err = encTime(p.End, "end")
-	}
-	if err == nil && end < start {
-		err = invalidf("end %s is before start %s", p.End.Format(time.RFC3339Nano), p.Start.Format(time.RFC3339Nano))
-	}
-	if err != nil {
-		return Plan{}, pgMapErr(ctx, op, err)
-	}
-	p.Start, p.End = decTime(start), decTime(end)
-	err = d.write(ctx, op, func(tx pgx.Tx) error {
-		var one int
-		err := tx.QueryRow(ctx, `SELECT 1 FROM sites WHERE id = $1 FOR NO KEY UPDATE`, p.SiteID).Scan(&one)
-		if errors.Is(err, pgx.ErrNoRows) {
-			return fmt.Errorf("site: %w", ErrNotFound)
-		}
-		if err != nil {
-			return err
-		}
-		var last int64
-		if err := tx.QueryRow(ctx, `SELECT COALESCE(MAX(version), 0) FROM plans WHERE site_id = $1`, p.SiteID).Scan(&last); err != nil {
-			return err
-		}
-		p.Version, p.CreatedAt = last+1, d.now()
-		if _, err := tx.Exec(ctx, `INSERT INTO plans (`+planCols+`) VALUES ($1, $2, $3, $4, $5, $6, $7)`,
-			p.ID, p.SiteID, p.Version, start, end, blob(p.Body), p.CreatedAt.UnixNano()); err != nil {
-			return err
-		}
-		_, err = tx.Exec(ctx, `SELECT pg_notify($1, $2)`, planChannel, strconv.FormatInt(p.Version, 10)+" "+p.SiteID)
-		return err
-	})
+	ps, err := d.CreatePlans(ctx, []Plan{p})
 	if err != nil {
 		return Plan{}, err
 	}
-	return p, nil
+	return ps[0], nil
+}
+
+func (d *pgDB) CreatePlans(ctx context.Context, ps []Plan) ([]Plan, error) {
+	out, spans, err := checkPlans(ps)
+	op := plansOp(out)
+	if err != nil {
+		return nil, pgMapErr(ctx, op, err)
+	}
+	err = d.write(ctx, op, func(tx pgx.Tx) error {
+		for i := range out {
+			p := &out[i]
+			var one int
+			err := tx.QueryRow(ctx, `SELECT 1 FROM sites WHERE id = $1 FOR NO KEY UPDATE`, p.SiteID).Scan(&one)
+			if errors.Is(err, pgx.ErrNoRows) {
+				return fmt.Errorf("site %q: %w", p.SiteID, ErrNotFound)
+			}
+			if err != nil {
+				return err
+			}
+			var last int64
+			if err := tx.QueryRow(ctx, `SELECT COALESCE(MAX(version), 0) FROM plans WHERE site_id = $1`, p.SiteID).Scan(&last); err != nil {
+				return err
+			}
+			p.Version, p.CreatedAt = last+1, d.now()
+			if _, err := tx.Exec(ctx, `INSERT INTO plans (`+planCols+`) VALUES ($1, $2, $3, $4, $5, $6, $7)`,
+				p.ID, p.SiteID, p.Version, spans[i][0], spans[i][1], blob(p.Body), p.CreatedAt.UnixNano()); err != nil {
+				return err
+			}
+			if _, err := tx.Exec(ctx, `SELECT pg_notify($1, $2)`, planChannel, strconv.FormatInt(p.Version, 10)+" "+p.SiteID); err != nil {
+				return err
+			}
+		}
+		return nil
+	})
+	if err != nil {
+		return nil, err
+	}
+	return out, nil
 }
 
 func (d *pgDB) GetPlan(ctx context.Context, id string) (Plan, error) {

@@ -45,6 +45,7 @@ func Run(t *testing.T, open func(t *testing.T) *store.DB) {
 		{"ProgressConcurrentNeverExceeds", testProgressConcurrentNeverExceeds},
 		{"Plans", testPlans},
 		{"PlansConcurrentVersions", testPlansConcurrentVersions},
+		{"PlansTogether", testPlansTogether},
 		{"Tokens", testTokens},
 		{"ImportTargets", testImportTargets},
 		{"Magnitudes", testMagnitudes},
@@ -815,6 +816,44 @@ func testPlans(t *testing.T, db *store.DB) {
 		t.Fatalf("plans of s: %v, want %v", g, w)
 	}
 	checkPlan(t, "listed plan", list[1], p2)
+}
+
+// testPlansTogether: CreatePlans stores the versions of several sites
+// (a network's members) in one transaction, each its site's next in the
+// order given, and a batch with one bad plan stores none of them.
+func testPlansTogether(t *testing.T, db *store.DB) {
+	ctx := t.Context()
+	site(t, db, "n1")
+	site(t, db, "n2")
+	pl := func(id, siteID string) store.Plan {
+		return store.Plan{ID: id, SiteID: siteID, Start: t0, End: t0.Add(8 * time.Hour), Body: []byte(id)}
+	}
+	_, err := db.CreatePlan(ctx, pl("n1-a", "n1"))
+	noErr(t, "create plan", err)
+	got, err := db.CreatePlans(ctx, []store.Plan{pl("n1-b", "n1"), pl("n2-a", "n2"), pl("n1-c", "n1")})
+	noErr(t, "create plans", err)
+	if len(got) != 3 || got[0].Version != 2 || got[1].Version != 1 || got[2].Version != 3 {
+		t.Fatalf("versions %+v, want n1 2, n2 1, n1 3", got)
+	}
+	for _, p := range got {
+		back, err := db.GetPlan(ctx, p.ID)
+		noErr(t, "get plan", err)
+		checkPlan(t, "plan stored together", back, p)
+	}
+	// The second plan names an unknown site: nothing of the batch stays.
+	_, err = db.CreatePlans(ctx, []store.Plan{pl("n1-d", "n1"), pl("x-a", "nowhere")})
+	wantErr(t, "batch with an unknown site", err, store.ErrNotFound)
+	_, err = db.GetPlan(ctx, "n1-d")
+	wantErr(t, "plan of a refused batch", err, store.ErrNotFound)
+	_, err = db.CreatePlans(ctx, []store.Plan{pl("n2-b", "n2"), pl("n1-a", "n1")})
+	wantErr(t, "batch reusing an id", err, store.ErrAlreadyExists)
+	latest, err := db.LatestPlan(ctx, "n2")
+	noErr(t, "latest plan", err)
+	if latest.Version != 1 {
+		t.Errorf("n2 at version %d after refused batches, want 1", latest.Version)
+	}
+	_, err = db.CreatePlans(ctx, nil)
+	wantErr(t, "empty batch", err, store.ErrInvalid)
 }
 
 func testPlansConcurrentVersions(t *testing.T, db *store.DB) {
