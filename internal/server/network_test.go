@@ -677,3 +677,56 @@ func TestNetworkDispatchSeesOtherSitesReports(t *testing.T) {
 			next.GetAssignment().GetFrames(), next.GetAssignment().GetBlockId(), westRun.GetFrames())
 	}
 }
+
+// Members far apart in longitude plan the nights that happen together, not
+// the nights of the same calendar date: with an invented Australian site
+// first, an invented Chilean member plans its night of the day before
+// (which ends, in UTC, as the Australian one begins), not the one of the
+// same date a day later. The two sites planned for a date both lie
+// within one day of UTC.
+func TestNetworkNightsPairedInUTC(t *testing.T) {
+	e := newEnv(t, "", withTCP(), func(c *Config) { c.ReplanPriority = -1 })
+	nets := nightloomv1.NewNetworkServiceClient(e.conn)
+	ctx := e.admin()
+	aus := testSite()
+	aus.Name, aus.LatitudeDeg, aus.LongitudeDeg, aus.ElevationM, aus.TimeZone = "Ironbark Ridge (invented)", -31.3, 149.1, 1100, "Australia/Sydney"
+	aus.Horizon = nil
+	chile := testSite()
+	chile.Name, chile.LatitudeDeg, chile.LongitudeDeg, chile.ElevationM, chile.TimeZone = "Cerro Lechuza (invented)", -30.2, -70.8, 1700, "America/Santiago"
+	chile.Horizon = nil
+	var ids []string
+	for _, s := range []*nightloomv1.Site{aus, chile} {
+		r, err := e.sites.CreateSite(ctx, &nightloomv1.CreateSiteRequest{Site: s})
+		if err != nil {
+			t.Fatal(err)
+		}
+		ids = append(ids, r.GetSite().GetId())
+	}
+	n, err := nets.CreateNetwork(ctx, &nightloomv1.CreateNetworkRequest{Network: &nightloomv1.Network{Name: "Across the date line", SiteIds: ids}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	r, err := nets.MakeNetworkPlan(as(RoleOperator, e), &nightloomv1.MakeNetworkPlanRequest{NetworkId: n.GetNetwork().GetId(),
+		Night: testNight, TimeBudget: dur(0), Seed: 1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	plans := r.GetNights()[0].GetPlans()
+	if len(plans) != 2 {
+		t.Fatalf("%d plans, want one per site", len(plans))
+	}
+	ref, other := plans[0], plans[1]
+	if ref.GetSiteId() != ids[0] {
+		ref, other = other, ref
+	}
+	want := time.Date(int(testNight.GetYear()), time.Month(testNight.GetMonth()), int(testNight.GetDay())-1, 0, 0, 0, 0, time.UTC)
+	if got := other.GetNight(); got.GetDay() != int32(want.Day()) || got.GetMonth() != int32(want.Month()) {
+		t.Errorf("the Chilean member planned its night of %v, want %s (the one that meets the Australian night in UTC)", got, want.Format("2006-01-02"))
+	}
+	gap := other.GetInterval().GetEnd().AsTime().Sub(ref.GetInterval().GetStart().AsTime())
+	if gap.Abs() > 3*time.Hour {
+		t.Errorf("the Chilean night ends %v from the Australian night's start; want them together", gap)
+	}
+	t.Logf("Australia %v..%v, Chile (night of %v) %v..%v", ref.GetInterval().GetStart().AsTime(), ref.GetInterval().GetEnd().AsTime(),
+		other.GetNight(), other.GetInterval().GetStart().AsTime(), other.GetInterval().GetEnd().AsTime())
+}

@@ -435,8 +435,18 @@ func (x *networkService) MakeNetworkPlan(ctx context.Context, req *nightloomv1.M
 	for k := range plan {
 		d := date.AddDate(0, 0, k)
 		plan[k].date = d
+		refStart, refEnd, haveRef := time.Time{}, time.Time{}, false
 		for _, m := range sites {
-			st, en, ok := m.planningInterval(d)
+			var st, en time.Time
+			var ok bool
+			md := d
+			if !haveRef {
+				if st, en, ok = m.planningInterval(d); ok {
+					refStart, refEnd, haveRef = st, en, true
+				}
+			} else {
+				md, st, en, ok = pairedNight(m, d, refStart, refEnd)
+			}
 			if !ok {
 				continue // polar day: the member has no night
 			}
@@ -445,7 +455,7 @@ func (x *networkService) MakeNetworkPlan(ctx context.Context, req *nightloomv1.M
 				return nil, fieldError("grid_step", "site %s: %d open blocks x %d grid steps = %d block-steps, at most %d; use a coarser grid_step",
 					m.pb.GetId(), len(blocks), steps, bs, MaxBlockSteps)
 			}
-			plan[k].members = append(plan[k].members, &netMember{site: m, start: st, end: en, night: dateOf(d), closures: cls[m.pb.GetId()]})
+			plan[k].members = append(plan[k].members, &netMember{site: m, start: st, end: en, night: dateOf(md), closures: cls[m.pb.GetId()]})
 		}
 	}
 
@@ -702,4 +712,35 @@ func (s *Server) replanNetwork(ctx context.Context, networkID string, from time.
 		return nil, err
 	}
 	return &nightloomv1.NetworkNight{Unplaced: out.unplaced, Objective: out.objective, SeparateObjective: out.separate, Plans: stored}, nil
+}
+
+// pairedNight chooses a member's night to plan with the reference night
+// [refStart, refEnd) of local date d (the first member's): among the
+// member's nights of d-1, d and d+1 in its own zone, the one that overlaps
+// the reference most in UTC, or, when none overlaps, whose middle lies
+// nearest the reference's. Sites far apart in longitude thus plan the
+// nights that happen together (an Australian evening and the Chilean
+// night before it by the calendar).
+func pairedNight(m *siteModel, d, refStart, refEnd time.Time) (time.Time, time.Time, time.Time, bool) {
+	var (
+		bestD, bestS, bestE time.Time
+		found               bool
+		bestOverlap         time.Duration
+		bestGap             time.Duration
+	)
+	refMid := refStart.Add(refEnd.Sub(refStart) / 2)
+	for _, off := range []int{0, -1, 1} {
+		md := d.AddDate(0, 0, off)
+		st, en, ok := m.planningInterval(md)
+		if !ok {
+			continue
+		}
+		overlap := minTime(en, refEnd).Sub(maxTime(st, refStart))
+		gap := st.Add(en.Sub(st) / 2).Sub(refMid).Abs()
+		better := !found || overlap > bestOverlap || (overlap <= 0 && bestOverlap <= 0 && gap < bestGap)
+		if better {
+			bestD, bestS, bestE, found, bestOverlap, bestGap = md, st, en, true, overlap, gap
+		}
+	}
+	return bestD, bestS, bestE, found
 }

@@ -793,8 +793,12 @@ type MakeNetworkPlanRequest struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
 	// Id of the network. Required.
 	NetworkId string `protobuf:"bytes,1,opt,name=network_id,json=networkId,proto3" json:"network_id,omitempty"`
-	// The first night, a date read in each member's own time zone (see
-	// LocalDate): every member plans its night of that date. Required.
+	// The first night, a date in the time zone of the network's first member
+	// that has a night then (see LocalDate). Every other member plans its
+	// night (of the day before, that date or the day after, in its own zone)
+	// that overlaps that night most in UTC, or, when none overlaps, lies
+	// nearest to it: members far apart in longitude plan the nights that
+	// happen together. Required.
 	Night *LocalDate `protobuf:"bytes,2,opt,name=night,proto3" json:"night,omitempty"`
 	// Number of consecutive nights, 0..14; 0 means 1. Later nights count the
 	// frames planned on earlier ones as done.
