@@ -87,13 +87,30 @@ func (g *Grid) EvaluateAll(tracks []*Track, reqs []Request, workers int) []*Visi
 // forChunks calls f(0..n-1) on at most workers goroutines, each taking
 // batchChunk consecutive indices at a time.
 func forChunks(n, workers int, f func(int)) {
+	forBlocks(n, batchChunk, workers, func(i0, i1 int) {
+		for i := i0; i < i1; i++ {
+			f(i)
+		}
+	})
+}
+
+// gridBlock is how many steps of a grid a worker fills at a time (an
+// instant costs some microseconds, so blocks this size keep the shared
+// counter quiet and still share a 720-step night evenly).
+const gridBlock = 32
+
+// forBlocks calls f on consecutive blocks [i0, i1) of at most block
+// indices covering 0..n-1, on at most workers goroutines
+// (runtime.GOMAXPROCS(0) when workers <= 0); a single block runs on the
+// caller's goroutine.
+func forBlocks(n, block, workers int, f func(i0, i1 int)) {
 	if workers <= 0 {
 		workers = runtime.GOMAXPROCS(0)
 	}
-	workers = min(workers, (n+batchChunk-1)/batchChunk)
+	workers = min(workers, (n+block-1)/block)
 	if workers <= 1 {
-		for i := 0; i < n; i++ {
-			f(i)
+		for i0 := 0; i0 < n; i0 += block {
+			f(i0, min(i0+block, n))
 		}
 		return
 	}
@@ -104,13 +121,11 @@ func forChunks(n, workers int, f func(int)) {
 		go func() {
 			defer wg.Done()
 			for {
-				i0 := int(next.Add(batchChunk)) - batchChunk
+				i0 := int(next.Add(int64(block))) - block
 				if i0 >= n {
 					return
 				}
-				for i := i0; i < min(i0+batchChunk, n); i++ {
-					f(i)
-				}
+				f(i0, min(i0+block, n))
 			}
 		}()
 	}

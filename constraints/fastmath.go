@@ -41,20 +41,11 @@ func atan2Fast(y, x float64) float64 {
 		return y // keeps the sign of zero, as math.Atan2
 	}
 	swap := ay > ax
-	t := ay / ax
+	lo, hi := ay, ax
 	if swap {
-		t = ax / ay
+		lo, hi = ax, ay
 	}
-	t2 := t * t
-	p := -0.0040540580
-	p = p*t2 + 0.0218612288
-	p = p*t2 - 0.0559098861
-	p = p*t2 + 0.0964200441
-	p = p*t2 - 0.1390853351
-	p = p*t2 + 0.1994653599
-	p = p*t2 - 0.3332985605
-	p = p*t2 + 0.9999993329
-	r := t * p
+	r := atanUnit(lo / hi)
 	if swap {
 		r = math.Pi/2 - r
 	}
@@ -65,6 +56,22 @@ func atan2Fast(y, x float64) float64 {
 		r = -r
 	}
 	return r
+}
+
+// atanUnit is arctan(t) for t in [0, 1], the polynomial of atan2Fast
+// (small enough to inline, so that loops can reduce the octants themselves
+// without a call).
+func atanUnit(t float64) float64 {
+	t2 := t * t
+	p := -0.0040540580
+	p = p*t2 + 0.0218612288
+	p = p*t2 - 0.0559098861
+	p = p*t2 + 0.0964200441
+	p = p*t2 - 0.1390853351
+	p = p*t2 + 0.1994653599
+	p = p*t2 - 0.3332985605
+	p = p*t2 + 0.9999993329
+	return t * p
 }
 
 // expFast is math.Exp to 6e-9 relative for y in [-700, 700] (the grid's

@@ -115,34 +115,44 @@ func newGrid(site *Site, start, end time.Time, step time.Duration, opts Options,
 	if loc == nil {
 		loc = time.UTC
 	}
-	for i := 0; i < n; i++ {
-		t := g.Time(i)
-		g.Snap[i] = snap(ephem.NewInstant(t))
-		g.Local[i] = g.Snap[i].Local(&site.Observer)
-		l := &g.Local[i]
-		sun, moon := l.SunPlace(), l.MoonPlace()
-		g.SunAlt[i], g.SunAz[i], g.SunDir[i] = sun.Alt, sun.Az, sun.OfDate
-		g.MoonAlt[i], g.MoonAz[i], g.MoonDir[i] = moon.AltApparent, moon.Az, moon.OfDate
-		g.sunHD[i] = l.OfDateToHADec.MulVec(sun.OfDate)
-		g.moonHD[i] = l.OfDateToHADec.MulVec(moon.OfDate)
-		g.last[i] = l.LAST
-		g.sinLAST[i], g.cosLAST[i] = math.Sincos(l.LAST)
-		g.sunX[i], g.sunY[i], g.sunZ[i] = g.sunHD[i][0], g.sunHD[i][1], g.sunHD[i][2]
-		g.moonX[i], g.moonY[i], g.moonZ[i] = g.moonHD[i][0], g.moonHD[i][1], g.moonHD[i][2]
-		g.MoonIllum[i], _ = l.MoonIllumination()
-		g.MoonPhase[i] = math.Acos(clamp(2*g.MoonIllum[i]-1, -1, 1))
-		g.MoonDistKm[i] = l.MoonOfDate().Norm()
-		g.Dark[i] = DarknessAt(sun.Alt * ephem.Rad2Deg)
-		if g.sky != nil {
-			g.sky[i] = NewSkyStep(site.Sky, sun.Alt, sun.Az, moon.AltApparent, moon.Az, g.MoonPhase[i], g.MoonDistKm[i])
+	// The steps are independent: split them across goroutines in blocks
+	// (a one-step grid for edge refinement stays on the caller's).
+	forBlocks(n, gridBlock, 0, func(i0, i1 int) {
+		for i := i0; i < i1; i++ {
+			g.fillStep(i, snap, loc)
 		}
-		lt := t.In(loc)
-		y, m, d := lt.Date()
-		g.localDay[i] = time.Date(y, m, d, 0, 0, 0, 0, time.UTC)
-		g.clock[i] = time.Duration(lt.Hour())*time.Hour + time.Duration(lt.Minute())*time.Minute +
-			time.Duration(lt.Second())*time.Second
-	}
+	})
 	return g, nil
+}
+
+// fillStep computes step i's shared quantities (newGrid's loop body).
+func (g *Grid) fillStep(i int, snap func(ephem.Instant) ephem.Snapshot, loc *time.Location) {
+	site := g.Site
+	t := g.Time(i)
+	g.Snap[i] = snap(ephem.NewInstant(t))
+	g.Local[i] = g.Snap[i].Local(&site.Observer)
+	l := &g.Local[i]
+	sun, moon := l.SunPlace(), l.MoonPlace()
+	g.SunAlt[i], g.SunAz[i], g.SunDir[i] = sun.Alt, sun.Az, sun.OfDate
+	g.MoonAlt[i], g.MoonAz[i], g.MoonDir[i] = moon.AltApparent, moon.Az, moon.OfDate
+	g.sunHD[i] = l.OfDateToHADec.MulVec(sun.OfDate)
+	g.moonHD[i] = l.OfDateToHADec.MulVec(moon.OfDate)
+	g.last[i] = l.LAST
+	g.sinLAST[i], g.cosLAST[i] = math.Sincos(l.LAST)
+	g.sunX[i], g.sunY[i], g.sunZ[i] = g.sunHD[i][0], g.sunHD[i][1], g.sunHD[i][2]
+	g.moonX[i], g.moonY[i], g.moonZ[i] = g.moonHD[i][0], g.moonHD[i][1], g.moonHD[i][2]
+	g.MoonIllum[i], _ = l.MoonIllumination()
+	g.MoonPhase[i] = math.Acos(clamp(2*g.MoonIllum[i]-1, -1, 1))
+	g.MoonDistKm[i] = l.MoonOfDate().Norm()
+	g.Dark[i] = DarknessAt(sun.Alt * ephem.Rad2Deg)
+	if g.sky != nil {
+		g.sky[i] = NewSkyStep(site.Sky, sun.Alt, sun.Az, moon.AltApparent, moon.Az, g.MoonPhase[i], g.MoonDistKm[i])
+	}
+	lt := t.In(loc)
+	y, m, d := lt.Date()
+	g.localDay[i] = time.Date(y, m, d, 0, 0, 0, 0, time.UTC)
+	g.clock[i] = time.Duration(lt.Hour())*time.Hour + time.Duration(lt.Minute())*time.Minute +
+		time.Duration(lt.Second())*time.Second
 }
 
 // Time returns the instant of step i.

@@ -69,12 +69,15 @@ func Horizon(in HorizonInput) ([]NightPlan, error) {
 		done[i] = in.Blocks[i].FramesDone
 	}
 
-	// The heavy part of each night, computed ahead by a bounded pool.
+	// The heavy part of each night (grid, tracks, visibility and the
+	// continuous intervals with their refined edges), computed ahead by a
+	// bounded pool while earlier nights are solved.
 	type nightData struct {
 		grid   *constraints.Grid
 		idx    []int // blocks of that night (global indices)
 		tracks []*constraints.Track
 		vis    []*constraints.Visibility
+		iv     [][]constraints.Interval
 		err    error
 	}
 	results := make([]chan nightData, in.Nights)
@@ -102,6 +105,7 @@ func Horizon(in HorizonInput) ([]NightPlan, error) {
 					}
 				}
 				nd.tracks, nd.vis = visibilities(nd.grid, bl, 1, o.Cancel)
+				nd.iv = blockIntervals(nd.grid, bl, nd.tracks, nd.vis, 1, o.Cancel)
 			}
 			results[k] <- nd
 		}()
@@ -142,7 +146,7 @@ func Horizon(in HorizonInput) ([]NightPlan, error) {
 		}
 		ch := la.Chances(k, o.LookaheadNights, nd.idx)
 		p, err := newProblem(Input{Site: in.Site, Grid: nd.grid, Blocks: blocks, Closures: closures,
-			Chances: ch, Options: o}, nd.tracks, nd.vis)
+			Chances: ch, Options: o}, nd.tracks, nd.vis, nd.iv)
 		if err != nil {
 			return nil, err
 		}

@@ -3,7 +3,9 @@ package scheduler
 import (
 	"math"
 	"math/rand/v2"
+	"runtime"
 	"sort"
+	"sync"
 	"time"
 )
 
@@ -76,14 +78,30 @@ func (p *Problem) solve(start *sched, keepBonus float64, keep ...map[runKey]bool
 		}
 		p.repair(cur, dirty, nil, byValue, 0, nil)
 	} else {
+		// The three starting schedules are independent (no randomness, the
+		// problem only read): with more than one worker the cadence-first
+		// and the chronological greedy ones are built beside the
+		// constructive one, which leaves the result unchanged.
+		var cad, g *sched
+		var wg sync.WaitGroup
+		if o.Workers != 1 && runtime.GOMAXPROCS(0) > 1 {
+			wg.Add(2)
+			go func() { defer wg.Done(); cad = p.constructiveCadenceFirst() }()
+			go func() { defer wg.Done(); g = p.greedy() }()
+		}
 		cur = p.constructive()
+		wg.Wait()
 		if cancelled(o.Cancel) {
 			return cur, 0, StopCancelled
 		}
-		if c := p.constructiveCadenceFirst(); c != nil && c.val > cur.val {
-			cur = c
+		if o.Workers == 1 || runtime.GOMAXPROCS(0) <= 1 {
+			cad = p.constructiveCadenceFirst()
+			g = p.greedy()
 		}
-		if g := p.greedy(); g.val > cur.val {
+		if cad != nil && cad.val > cur.val {
+			cur = cad
+		}
+		if g.val > cur.val {
 			cur = g
 			dirty := make([]bool, len(cur.runs)+1)
 			for i := range dirty {

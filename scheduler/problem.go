@@ -133,7 +133,7 @@ func NewProblem(in Input) (*Problem, error) {
 	if cancelled(in.Options.Cancel) {
 		return nil, ErrCancelled
 	}
-	return newProblem(in, tracks, vis)
+	return newProblem(in, tracks, vis, nil)
 }
 
 func checkInput(in *Input) error {
@@ -161,7 +161,10 @@ func checkInput(in *Input) error {
 }
 
 // newProblem assembles a problem from precomputed tracks and visibility.
-func newProblem(in Input, tracks []*constraints.Track, vis []*constraints.Visibility) (*Problem, error) {
+// newProblem builds the problem from the blocks' tracks and visibility and,
+// when intervals is not nil, their continuous intervals (blockIntervals;
+// Horizon computes them ahead with the tracks).
+func newProblem(in Input, tracks []*constraints.Track, vis []*constraints.Visibility, intervals [][]constraints.Interval) (*Problem, error) {
 	p := &Problem{Site: in.Site, Grid: in.Grid, Blocks: in.Blocks, Chances: in.Chances, Programs: in.Programs,
 		Options: in.Options.withDefaults(), Tracks: tracks, Vis: vis}
 	for i, tr := range p.Tracks {
@@ -177,18 +180,10 @@ func newProblem(in Input, tracks []*constraints.Track, vis []*constraints.Visibi
 			return nil, fmt.Errorf("%w %q: no visibility", ErrBlock, in.Blocks[i].ID)
 		}
 	}
-	p.Intervals = make([][]constraints.Interval, len(p.Blocks))
-	workers := p.Options.Workers
-	if workers <= 0 {
-		workers = runtime.GOMAXPROCS(0)
+	p.Intervals = intervals
+	if p.Intervals == nil {
+		p.Intervals = blockIntervals(p.Grid, p.Blocks, p.Tracks, p.Vis, p.Options.Workers, p.Options.Cancel)
 	}
-	parallel(len(p.Blocks), workers, func(i int) {
-		if cancelled(p.Options.Cancel) {
-			return
-		}
-		b := &p.Blocks[i]
-		p.Intervals[i] = p.Grid.Intervals(p.Tracks[i], constraints.Request{Set: b.Set, Exposure: b.Exposure, NonSidereal: b.NonSidereal}, p.Vis[i])
-	})
 	if cancelled(p.Options.Cancel) {
 		return nil, ErrCancelled
 	}
@@ -197,6 +192,24 @@ func newProblem(in Input, tracks []*constraints.Track, vis []*constraints.Visibi
 	}
 	p.precomputeAxes()
 	return p, nil
+}
+
+// blockIntervals refines every block's windows into continuous intervals
+// (constraints.Grid.Intervals) on workers goroutines (GOMAXPROCS when
+// workers <= 0).
+func blockIntervals(g *constraints.Grid, blocks []Block, tracks []*constraints.Track, vis []*constraints.Visibility, workers int, cancel <-chan struct{}) [][]constraints.Interval {
+	iv := make([][]constraints.Interval, len(blocks))
+	if workers <= 0 {
+		workers = runtime.GOMAXPROCS(0)
+	}
+	parallel(len(blocks), workers, func(i int) {
+		if cancelled(cancel) {
+			return
+		}
+		b := &blocks[i]
+		iv[i] = g.Intervals(tracks[i], constraints.Request{Set: b.Set, Exposure: b.Exposure, NonSidereal: b.NonSidereal}, vis[i])
+	})
+	return iv
 }
 
 // visibilities samples every distinct target once and evaluates every

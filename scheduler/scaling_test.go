@@ -95,6 +95,71 @@ func BenchmarkScaling(b *testing.B) {
 	}
 }
 
+// scalingSites is the network axis of the scaling curve: sites planned
+// jointly by SolveNetwork, 200 generated blocks per site.
+var scalingSites = []int{1, 5, 10}
+
+// scalingNetBoundMax is the largest network whose objective is compared
+// with NetworkBound (BenchmarkNetwork's limit: past it the bound costs
+// minutes).
+const scalingNetBoundMax = 5
+
+// BenchmarkScalingSites plans one night (2027-02-10) of generated networks
+// (genNetwork: invented sites on several continents, 200 blocks per site,
+// load 1.5) with SolveNetwork and the default search options, visibility at
+// every site included. It reports what BenchmarkScaling does (CPU time,
+// memory allocated and kept, per block and site-night too) and the
+// objective over NetworkBound up to scalingNetBoundMax sites.
+//
+//	go test -run '^$' -bench '^BenchmarkScalingSites$' -benchtime 1x ./scheduler/
+func BenchmarkScalingSites(b *testing.B) {
+	for _, nSites := range scalingSites {
+		b.Run(fmt.Sprintf("sites=%d/blocks=%d", nSites, 200*nSites), func(b *testing.B) {
+			in := genNetwork(b, 41, nSites, 200, 1, 1.5)
+			in.Options = Options{Seed: 1}
+			var pl *NetworkPlan
+			var kept, alloc uint64
+			var cpu time.Duration
+			for b.Loop() {
+				var before, after runtime.MemStats
+				b.StopTimer()
+				pl = nil
+				runtime.GC()
+				runtime.ReadMemStats(&before)
+				b.StartTimer()
+				cpu0 := processCPU()
+				var err error
+				pl, err = SolveNetwork(in)
+				if err != nil {
+					b.Fatal(err)
+				}
+				cpu += processCPU() - cpu0
+				b.StopTimer()
+				runtime.GC()
+				runtime.ReadMemStats(&after)
+				kept = after.HeapAlloc - before.HeapAlloc
+				alloc = after.TotalAlloc - before.TotalAlloc
+				b.StartTimer()
+			}
+			b.StopTimer()
+			sinkNetwork = pl
+			b.ReportMetric(float64(cpu.Milliseconds())/float64(b.N), "cpu-ms/op")
+			b.ReportMetric(float64(alloc)/1e6, "MB-alloc")
+			b.ReportMetric(float64(kept)/1e6, "MB-kept")
+			b.ReportMetric(float64(kept)/1e3/float64(200*nSites), "KB-kept/block-night")
+			b.ReportMetric(pl.Objective, "objective")
+			b.ReportMetric(pl.Objective/pl.Separate, "joint/separate")
+			if nSites <= scalingNetBoundMax {
+				bound, err := NetworkBound(in, pl.Objective, 0)
+				if err != nil {
+					b.Fatal(err)
+				}
+				b.ReportMetric(pl.Objective/bound, "bound-ratio")
+			}
+		})
+	}
+}
+
 // processCPU returns the user+system CPU time the process has used (on
 // a shared machine wall time also counts other processes' work).
 func processCPU() time.Duration {

@@ -118,6 +118,7 @@ func parseServe(args []string, stderr io.Writer) (*serveFlags, error) {
 	fs.IntVar(&f.cfg.MaxRecvBytes, "max-recv-bytes", server.DefaultMaxRecvBytes, "largest request message in bytes")
 	fs.DurationVar(&f.cfg.ShutdownTimeout, "shutdown-timeout", server.DefaultShutdownTimeout, "time calls in flight get to finish on SIGINT/SIGTERM")
 	fs.DurationVar(&f.cfg.DefaultTimeBudget, "default-time-budget", server.DefaultTimeBudget, "solver budget of a planning request that sets none (at most 60s)")
+	fs.DurationVar(&f.cfg.DefaultReplanBudget, "default-replan-budget", server.DefaultReplanBudget, "solver budget of a replan that sets none, and of automatic replans (at most 60s)")
 	fs.IntVar(&f.cfg.ReplanPriority, "replan-priority", server.DefaultReplanPriority, "queuing an open block of at least this priority replans the running plan (-1: never)")
 	fs.IntVar(&f.cfg.WatchBuffer, "watch-buffer", server.DefaultWatchBuffer, "plan versions a WatchPlans stream may fall behind before it is cut off")
 	fs.StringVar(&f.web.addr, "http-addr", "", "HTTP address of the read-only web pages, host:port (empty: off); same TLS rules as --listen")
@@ -140,6 +141,9 @@ func parseServe(args []string, stderr io.Writer) (*serveFlags, error) {
 	}
 	if f.cfg.DefaultTimeBudget <= 0 || f.cfg.DefaultTimeBudget > server.MaxTimeBudget {
 		return nil, &usageError{fmt.Sprintf("flag --default-time-budget: must be within (0, %v]", server.MaxTimeBudget)}
+	}
+	if f.cfg.DefaultReplanBudget <= 0 || f.cfg.DefaultReplanBudget > server.MaxTimeBudget {
+		return nil, &usageError{fmt.Sprintf("flag --default-replan-budget: must be within (0, %v]", server.MaxTimeBudget)}
 	}
 	if f.web.addr == "" && (f.web.public != "" || f.web.metrics) {
 		return nil, &usageError{"flags --web-public and --web-metrics need --http-addr"}

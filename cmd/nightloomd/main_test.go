@@ -92,6 +92,8 @@ func TestServeFlags(t *testing.T) {
 		{"--log-format", "xml"},
 		{"--log-level", "loud"},
 		{"--default-time-budget", "2m"},
+		{"--default-replan-budget", "0s"},
+		{"--default-replan-budget", "61s"},
 		{"--listen"},
 		{"extra-argument"},
 	} {

@@ -20,7 +20,7 @@ var (
 // BenchmarkMakePlan200 is MakePlan end to end over a loopback TCP
 // connection: 200 open blocks on five targets, one night, the default 60 s
 // grid, loading from the store, planning, storing the version and
-// returning it. Regimes: the daemon's default 1 s budget with the default
+// returning it. Regimes: the daemon's default budget (150 ms) with the default
 // 14-night urgency lookahead and without it, and a zero budget (the
 // constructive schedule only), which shows what the call costs besides the
 // search.
@@ -52,6 +52,77 @@ func BenchmarkMakePlan200(b *testing.B) {
 			b.ReportMetric(float64(assigned), "assignments")
 		})
 	}
+}
+
+// BenchmarkPlanDefaults is MakePlan and Replan end to end over loopback TCP
+// with every option at its default (the daemon's default budget, the 14-night
+// lookahead, the 60 s grid) for the 200-block night of
+// BenchmarkMakePlan200, against what a 5 s budget reaches: before the timed
+// calls one MakePlan with a 5 s budget and the same seed gives the
+// reference, and "objective/5s" reports the default call's objective over
+// it (issue 15 asks for at least 0.99). Replan replans a fresh version from
+// two hours after its start with a closure of 20 minutes ("objective/5s":
+// over the same replan with a 5 s budget), warm: the lookahead of the night is cached by the first
+// MakePlan, and the old plan is the search's first incumbent.
+func BenchmarkPlanDefaults(b *testing.B) {
+	// The daemon's default budgets (the test environment's are shorter).
+	e := newEnv(b, "", withTCP(), func(c *Config) {
+		c.DefaultTimeBudget, c.DefaultReplanBudget = DefaultTimeBudget, DefaultReplanBudget
+	})
+	f := e.seed(b, 200)
+	ctx := as(RoleOperator, e)
+	req := func(budget *durationpb.Duration) *nightloomv1.MakePlanRequest {
+		return &nightloomv1.MakePlanRequest{SiteId: f.site.GetId(), Span: &nightloomv1.MakePlanRequest_Night{Night: testNight},
+			Seed: 1, TimeBudget: budget}
+	}
+	ref, err := e.plans.MakePlan(ctx, req(dur(5*time.Second)))
+	if err != nil {
+		b.Fatal(err)
+	}
+	refObj := ref.GetPlans()[0].GetObjective().GetTotal()
+	b.Run("MakePlan", func(b *testing.B) {
+		b.ReportAllocs()
+		var obj float64
+		for b.Loop() {
+			resp, err := e.plans.MakePlan(ctx, req(nil))
+			if err != nil {
+				b.Fatal(err)
+			}
+			obj = resp.GetPlans()[0].GetObjective().GetTotal()
+		}
+		b.ReportMetric(obj/refObj, "objective/5s")
+	})
+	b.Run("Replan", func(b *testing.B) {
+		pl := ref.GetPlans()[0]
+		from := pl.GetInterval().GetStart().AsTime().Add(2 * time.Hour)
+		closure := &nightloomv1.Closure{Interval: &nightloomv1.TimeInterval{Start: ts(from.Add(30 * time.Minute)),
+			End: ts(from.Add(50 * time.Minute))}, Reason: "cloud"}
+		// Each Replan replans a fresh MakePlan's version (same seed, so the
+		// same old plan as far as the search is deterministic).
+		replan := func(budget *durationpb.Duration) float64 {
+			if _, err := e.plans.MakePlan(ctx, req(nil)); err != nil {
+				b.Fatal(err)
+			}
+			b.StartTimer()
+			resp, err := e.plans.Replan(ctx, &nightloomv1.ReplanRequest{SiteId: f.site.GetId(), From: ts(from),
+				Closures: []*nightloomv1.Closure{closure}, Seed: 1, TimeBudget: budget})
+			b.StopTimer()
+			if err != nil {
+				b.Fatal(err)
+			}
+			return resp.GetPlan().GetObjective().GetTotal()
+		}
+		b.StopTimer()
+		refReplan := replan(dur(5 * time.Second))
+		b.ResetTimer()
+		b.StopTimer()
+		b.ReportAllocs()
+		var obj float64
+		for i := 0; i < b.N; i++ {
+			obj = replan(nil)
+		}
+		b.ReportMetric(obj/refReplan, "objective/5s")
+	})
 }
 
 // BenchmarkReportProgress is ReportProgress over loopback gRPC with the

@@ -95,7 +95,7 @@ func newEnv(t testing.TB, dbPath string, opts ...envOpt) *env {
 	clk := &clock{t: time.Date(2031, 3, 10, 12, 0, 0, 0, time.UTC)}
 	lis := bufconn.Listen(1 << 20)
 	cfg := Config{Listener: lis, DBPath: dbPath, Logger: quietLogger(t), Now: clk.Now,
-		DefaultTimeBudget: 50 * time.Millisecond, ShutdownTimeout: 5 * time.Second}
+		DefaultTimeBudget: 50 * time.Millisecond, DefaultReplanBudget: 50 * time.Millisecond, ShutdownTimeout: 5 * time.Second}
 	for _, o := range opts {
 		o(&cfg)
 	}

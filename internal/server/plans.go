@@ -468,7 +468,7 @@ func (x *planService) Replan(ctx context.Context, req *nightloomv1.ReplanRequest
 	optionalID(&v, "plan_id", req.GetPlanId())
 	from := instant(&v, "from", req.GetFrom(), false)
 	closures(&v, "closures", req.GetClosures(), MaxClosuresPerCall)
-	budget := duration(&v, "time_budget", req.GetTimeBudget(), 0, MaxTimeBudget, s.cfg.DefaultTimeBudget, false)
+	budget := duration(&v, "time_budget", req.GetTimeBudget(), 0, MaxTimeBudget, s.cfg.DefaultReplanBudget, false)
 	if err := v.err(); err != nil {
 		return nil, err
 	}
@@ -1072,7 +1072,7 @@ func (s *Server) replanForQueued(ctx context.Context, siteID string) error {
 	if from.Before(rec.Start) {
 		from = rec.Start
 	}
-	args := planArgs{gridStep: DefaultGridStep, budget: s.cfg.DefaultTimeBudget, seed: old.GetSolver().GetSeed(), lookahead: DefaultLookaheadNights}
+	args := planArgs{gridStep: DefaultGridStep, budget: s.cfg.DefaultReplanBudget, seed: old.GetSolver().GetSeed(), lookahead: DefaultLookaheadNights}
 	if gs := old.GetSolver().GetGridStep(); gs != nil && gs.AsDuration() >= MinGridStep && gs.AsDuration() <= MaxGridStep {
 		args.gridStep = gs.AsDuration()
 	}

@@ -89,6 +89,9 @@ type Config struct {
 	// DefaultTimeBudget is the solver budget of a request that sets none.
 	// Default DefaultTimeBudget (plan.proto).
 	DefaultTimeBudget time.Duration
+	// DefaultReplanBudget is the solver budget of a Replan that sets none
+	// and of automatic replans. Default DefaultReplanBudget.
+	DefaultReplanBudget time.Duration
 	// ReplanPriority: queuing an open block of at least this priority
 	// replans the site's running plan. Default DefaultReplanPriority; a
 	// negative value turns it off.
@@ -135,6 +138,12 @@ func (c Config) withDefaults() Config {
 	}
 	if c.DefaultTimeBudget > MaxTimeBudget {
 		c.DefaultTimeBudget = MaxTimeBudget
+	}
+	if c.DefaultReplanBudget <= 0 {
+		c.DefaultReplanBudget = DefaultReplanBudget
+	}
+	if c.DefaultReplanBudget > MaxTimeBudget {
+		c.DefaultReplanBudget = MaxTimeBudget
 	}
 	if c.ReplanPriority == 0 {
 		c.ReplanPriority = DefaultReplanPriority
