@@ -3,6 +3,7 @@ package server
 import (
 	"context"
 	"testing"
+	"time"
 
 	"go.opentelemetry.io/otel/attribute"
 	sdktrace "go.opentelemetry.io/otel/sdk/trace"
@@ -22,10 +23,17 @@ func TestTracingSpans(t *testing.T) {
 		t.Fatal(err)
 	}
 	_, _ = e.sites.GetSite(e.admin(), &nightloomv1.GetSiteRequest{SiteId: "site-nonesuch"})
-	_ = tp.ForceFlush(context.Background())
+	// The server ends its span after the status is on the wire, so the
+	// client can see the reply first: wait (bounded) for both spans.
 	spans := map[string]sdktrace.ReadOnlySpan{}
-	for _, s := range rec.Ended() {
-		spans[s.Name()] = s
+	for deadline := time.Now().Add(5 * time.Second); ; time.Sleep(10 * time.Millisecond) {
+		_ = tp.ForceFlush(context.Background())
+		for _, s := range rec.Ended() {
+			spans[s.Name()] = s
+		}
+		if len(spans) >= 2 || time.Now().After(deadline) {
+			break
+		}
 	}
 	// Attribute names of otelgrpc v0.72.0 (the RPC semantic conventions it
 	// follows: rpc.system.name, rpc.method, rpc.response.status_code).
