@@ -34,7 +34,7 @@ type milpTable struct {
 	} `json:"instances"`
 }
 
-func readMILPTable(t *testing.T) *milpTable {
+func readMILPTable(t testing.TB) *milpTable {
 	t.Helper()
 	f, err := os.Open(filepath.Join("..", "testdata", "milp", "reference.json"))
 	if err != nil {
