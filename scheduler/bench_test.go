@@ -13,8 +13,9 @@ import (
 // by testdata/scheduler/gen). Reference values (exact optimum, upper
 // bound, greedy) are computed once per process, outside the timed loop.
 // Metrics: objective (the plan's Value), opt-ratio = objective / exact
-// optimum, bound-ratio = objective / UpperBound, greedy-ratio = objective /
-// greedy objective.
+// optimum, bound-ratio = objective / UpperBound, ref-ratio = objective /
+// the committed MILP reference bound (testdata/milp/reference.json, an
+// upper bound too), greedy-ratio = objective / greedy objective.
 
 var (
 	sinkPlan  *Plan
@@ -83,7 +84,7 @@ func BenchmarkInstances(b *testing.B) {
 	for _, c := range []struct {
 		name         string
 		exact, bound bool
-	}{{"small", true, false}, {"medium", false, true}, {"large", false, false}} {
+	}{{"small", true, false}, {"medium", false, true}, {"medium150", false, true}, {"large", false, false}} {
 		b.Run(c.name, func(b *testing.B) {
 			r := reference(b, c.name, c.exact, c.bound)
 			b.ReportAllocs()
@@ -101,6 +102,9 @@ func BenchmarkInstances(b *testing.B) {
 			}
 			if c.bound {
 				b.ReportMetric(v/r.bound, "bound-ratio")
+				if ref := milpReference(b, c.name); ref > 0 {
+					b.ReportMetric(v/ref, "ref-ratio")
+				}
 			}
 			b.ReportMetric(float64(len(r.p.Blocks)), "blocks")
 		})
@@ -250,4 +254,15 @@ func BenchmarkIntervals200(b *testing.B) {
 	}
 	b.ReportMetric(float64(n), "intervals")
 	b.ReportMetric(float64(cpu.Microseconds())/1e3/float64(b.N), "cpu-ms/op")
+}
+
+// milpReference is the MILP reference bound of an instance from
+// testdata/milp/reference.json (0 when the table has none).
+func milpReference(tb testing.TB, name string) float64 {
+	for _, r := range readMILPTable(tb).Instances {
+		if r.Name == name && r.Bound != nil {
+			return *r.Bound
+		}
+	}
+	return 0
 }

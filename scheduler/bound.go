@@ -38,6 +38,7 @@ type relaxation struct {
 	total  float64
 	use    [][]float64
 	c      [][]float64
+	qmax   [][]float64 // best quality within one frame of each slot
 	cap    []float64
 	a      [][]float64 // global row: setups, dithers and periodic focus
 	aw     [][]float64 // window rows: setups and dithers
@@ -124,6 +125,7 @@ func (p *Problem) relaxation(slotSteps int) *relaxation {
 		}
 		use := make([]float64, K)
 		c := make([]float64, K)
+		qm := make([]float64, K)
 		a := make([]float64, K)
 		aw := make([]float64, K)
 		capb := float64(d.rem) * d.frame
@@ -150,6 +152,7 @@ func (p *Problem) relaxation(slotSteps int) *relaxation {
 					qmax = math.Max(qmax, float64(d.q[i]))
 				}
 			}
+			qm[k] = qmax
 			c[k] = d.w * qmax / d.frame
 			if bonusOK {
 				c[k] += d.bonus / capb
@@ -158,6 +161,7 @@ func (p *Problem) relaxation(slotSteps int) *relaxation {
 		rx.blocks = append(rx.blocks, b)
 		rx.use = append(rx.use, use)
 		rx.c = append(rx.c, c)
+		rx.qmax = append(rx.qmax, qm)
 		rx.cap = append(rx.cap, capb)
 		rx.a = append(rx.a, a)
 		rx.aw = append(rx.aw, aw)

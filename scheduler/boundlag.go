@@ -13,10 +13,12 @@ import (
 // most one run shorter than MinRun per block (nu_b, only a remainder run
 // may be short), and for cadence blocks at most one run start in each
 // window of Every - Tolerance (two starts closer than that would break
-// the series' spacing):
+// the series' spacing) and at most seriesMax_b runs in all (kappa_b: the
+// starts Every - Tolerance apart that fit between the block's first and
+// last observable instants, and its frames' worth):
 //
-//	L = sum_b mu_b rem_b + sum_b nu_b + sum_windows rho_w
-//	    + max over sequences of runs of sum_runs (val + (bonus_b/rem_b - mu_b) n - nu_b [short] - rho_w(run)).
+//	L = sum_b mu_b rem_b + sum_b nu_b + sum_windows rho_w + sum_b kappa_b seriesMax_b
+//	    + max over sequences of runs of sum_runs (val + (bonus_b/rem_b - mu_b) n - nu_b [short] - rho_w(run) - kappa_b).
 //
 // The inner maximum is exact dynamic programming over (quantum, filter of
 // the last run):
@@ -63,8 +65,8 @@ func boundDP(p *Problem, lb float64, iters int) float64 {
 			g[A+a] = 1 - float64(shorts[a])
 		}
 		for j, n := range starts {
-			L += lam[2*A+j]
-			g[2*A+j] = 1 - float64(n)
+			L += lam[2*A+j] * x.cRHS[j]
+			g[2*A+j] = x.cRHS[j] - float64(n)
 		}
 		if math.IsInf(best, 1) || L < best-1e-9*math.Abs(best) {
 			best, stall = L, 0
@@ -122,6 +124,12 @@ type lagDP struct {
 	// the cadence part of lambda (cwq[a] = 0: not a cadence block).
 	cwq  []int
 	cOff []int
+	// sOff[a] is the multiplier of cadence block a's series cap (at most
+	// seriesMax runs tonight) in the cadence part of lambda; cRHS holds
+	// the right-hand side of every cadence constraint (1 run start per
+	// window, seriesMax per series).
+	sOff []int
+	cRHS []float64
 	nCad int
 }
 
@@ -145,12 +153,19 @@ func newLagDP(p *Problem) *lagDP {
 	x.bpf = make([]float64, len(x.active))
 	x.cwq = make([]int, len(x.active))
 	x.cOff = make([]int, len(x.active))
+	x.sOff = make([]int, len(x.active))
 	for a, b := range x.active {
 		d := &p.bd[b]
 		if d.every > 0 {
 			x.cwq[a] = max(1, int(math.Floor((d.every-d.tol)/p.quantum)))
 			x.cOff[a] = x.nCad
 			x.nCad += x.qN/x.cwq[a] + 1
+			for len(x.cRHS) < x.nCad {
+				x.cRHS = append(x.cRHS, 1)
+			}
+			x.sOff[a] = x.nCad
+			x.nCad++
+			x.cRHS = append(x.cRHS, float64(p.seriesMax(b)))
 		}
 		x.fil[a] = d.filter
 		if p.framesPossible(b) >= d.rem {
@@ -244,7 +259,7 @@ func (x *lagDP) solve(mu, nu, cad []float64) (float64, []int, []int, []int) {
 			best, arg := math.Inf(-1), int32(-1)
 			pen := 0.0
 			if x.cwq[a] > 0 {
-				pen = cad[x.cOff[a]+q/x.cwq[a]]
+				pen = cad[x.cOff[a]+q/x.cwq[a]] + cad[x.sOff[a]]
 			}
 			for r := off[q]; r < off[q+1]; r++ {
 				lr := &x.runs[r]
@@ -299,6 +314,7 @@ func (x *lagDP) solve(mu, nu, cad []float64) (float64, []int, []int, []int) {
 		qs := q + x.kq[f][a]
 		if x.cwq[a] > 0 {
 			starts[x.cOff[a]+qs/x.cwq[a]]++
+			starts[x.sOff[a]]++
 		}
 		q, f = int(x.runs[r].qe), x.fil[a]
 	}

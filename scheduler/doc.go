@@ -152,8 +152,13 @@
 //     dualised and the inner problem solved by dynamic programming over
 //     (quantum, filter); Bound, a slot-based linear relaxation solved as a
 //     transportation flow with Lagrangian prices, cross-checked by BoundLP
-//     with gonum's simplex; UpperBound takes the smaller. They exist to
-//     measure Solve.
+//     with gonum's simplex; UpperBound takes the smaller. BoundDP also
+//     dualises each cadence series' cap (the starts Every - Tolerance
+//     apart that fit its observable span). ReferenceMILP writes a
+//     time-indexed mixed-integer relaxation (integer frames, runs and
+//     completions, focus runs per focus period and filter) for an outside
+//     solver; its optimum, committed in testdata/milp, is another upper
+//     bound. They exist to measure Solve.
 //   - Replan re-plans from an instant keeping what is still good; Dispatch
 //     picks the next run consistent with the plan; Horizon plans nights in
 //     turn with frames carried over.

@@ -38,6 +38,10 @@ type GenSpec struct {
 	// only).
 	NoFocusEvery bool
 	NoSky        bool
+	// CloseAtH and CloseForH, when CloseForH > 0, add a closure (weather)
+	// starting CloseAtH hours after the first night's nautical dusk and
+	// lasting CloseForH hours (no random draw: the other values stay).
+	CloseAtH, CloseForH float64
 }
 
 var genSites = []InstanceSite{
@@ -153,6 +157,11 @@ func GenerateInstance(sp GenSpec) (*Instance, error) {
 		}
 		ib.Constraints = cs
 		in.Blocks = append(in.Blocks, ib)
+	}
+	if sp.CloseForH > 0 {
+		a := ds.Add(secs(sp.CloseAtH * 3600))
+		in.Closures = append(in.Closures, InstanceClosure{Start: a.UTC().Format(time.RFC3339),
+			End: a.Add(secs(sp.CloseForH * 3600)).UTC().Format(time.RFC3339), Note: "clouds (invented)"})
 	}
 	for c := 0; c < sp.Comets; c++ {
 		ib, err := genComet(rng, in, site, ds, de, fmt.Sprintf("%s-C%d", sp.Name, c+1))

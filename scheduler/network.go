@@ -857,8 +857,8 @@ func (nw *network) bound(lb float64, iters int) float64 {
 				gnu[k][a] = 1 - float64(shorts[a])
 			}
 			for j, n := range starts {
-				L += sd.cad[j]
-				gcad[k][j] = 1 - float64(n)
+				L += sd.cad[j] * sd.x.cRHS[j]
+				gcad[k][j] = sd.x.cRHS[j] - float64(n)
 			}
 		}
 		if math.IsInf(best, 1) || L < best-1e-9*math.Abs(best) {

@@ -24,6 +24,11 @@ var specs = []scheduler.GenSpec{
 	// medium: measured against the upper bound.
 	{Name: "medium", Seed: 202, Site: 0, Night: "2027-02-10", Blocks: 60, StepS: 60,
 		Load: 3, Cadence: 0.05, Comets: 1, Lookahead: 14},
+	// medium150: measured against the tightened bound and the MILP
+	// reference bound (testdata/milp): cadence, periodic focus, a comet
+	// and a 50-minute closure.
+	{Name: "medium150", Seed: 606, Site: 0, Night: "2027-02-10", Blocks: 150, StepS: 60,
+		Load: 3, Cadence: 0.06, Comets: 1, Lookahead: 14, CloseAtH: 4.5, CloseForH: 50.0 / 60},
 	// large: measured against greedy.
 	{Name: "large", Seed: 303, Site: 1, Night: "2027-05-06", Blocks: 400, StepS: 60,
 		Load: 3, Cadence: 0.05, Comets: 2, Lookahead: 14},
