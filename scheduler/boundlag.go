@@ -90,9 +90,10 @@ func boundDP(p *Problem, lb float64, iters int) float64 {
 	return best
 }
 
-// UpperBound is the smaller of BoundDP and Bound (both are valid).
+// UpperBound is the smallest of BoundDP, Bound and BoundPath (all are
+// valid; BoundPath is +Inf on instances too large for it).
 func UpperBound(p *Problem) float64 {
-	return math.Min(BoundDP(p), Bound(p, DefaultBoundSlot))
+	return math.Min(math.Min(BoundDP(p), Bound(p, DefaultBoundSlot)), BoundPath(p))
 }
 
 type lagRun struct {

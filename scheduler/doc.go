@@ -158,7 +158,15 @@
 //     time-indexed mixed-integer relaxation (integer frames, runs and
 //     completions, focus runs per focus period and filter) for an outside
 //     solver; its optimum, committed in testdata/milp, is another upper
-//     bound. They exist to measure Solve.
+//     bound. BoundPath keeps the last block in the DP's state, (quantum,
+//     last block), so that slews count: a state-space relaxation after
+//     Christofides, Mingozzi & Toth (1981, Networks 11, 145) whose
+//     setups are the model's own lower-bounded over a grid step and both
+//     pier sides of the previous target (the periodic focus dropped), with
+//     BoundDP's multipliers warm-started by a longer subgradient run; it
+//     is O(quanta x blocks^2) per iteration, skipped on instances beyond
+//     pathMaxWork, and UpperBound takes it too. They exist to measure
+//     Solve.
 //   - Replan re-plans from an instant keeping what is still good; Dispatch
 //     picks the next run consistent with the plan; Horizon plans nights in
 //     turn with frames carried over.
