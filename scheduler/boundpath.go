@@ -44,8 +44,10 @@ import (
 // start from BoundDP's best ones and follow the subgradient method (Polyak
 // steps toward the greedy plan's value, step halving after stalls; Held,
 // Wolfe & Crowder 1974, Math. Programming 6, 62); the least value seen is
-// returned, and it is never above BoundDP's (the path DP's setups are at
-// least the filter DP's).
+// returned, never above the warm start's own least value (the path DP's
+// setups are at least the filter DP's, so at equal multipliers its value
+// is no larger). UpperBound still takes BoundDP as well: the warm start is
+// a longer run of the same method from the same start, not the same run.
 //
 // It returns +Inf when the instance is too large for the path DP (see
 // pathMaxWork): callers take the minimum with the other bounds.

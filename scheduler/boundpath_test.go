@@ -194,3 +194,28 @@ func TestBoundPathMedium(t *testing.T) {
 			st.Total.Round(time.Millisecond), st.Setup.Round(time.Millisecond), ref, v/ref)
 	}
 }
+
+// BenchmarkBoundPath times BoundPath on the committed medium instances
+// (the problem prepared outside the loop) and reports the bound, its
+// iterations and the process CPU time per bound (the machine is shared).
+//
+//	go test -run '^$' -bench '^BenchmarkBoundPath$' -benchtime 1x ./scheduler/
+func BenchmarkBoundPath(b *testing.B) {
+	for _, name := range []string{"medium", "medium150"} {
+		b.Run(name, func(b *testing.B) {
+			r := reference(b, name, false, false)
+			b.ReportAllocs()
+			b.ResetTimer()
+			var st PathStats
+			c0 := processCPU()
+			for b.Loop() {
+				st = BoundPathStats(r.p)
+			}
+			b.ReportMetric(float64((processCPU()-c0).Microseconds())/1e3/float64(b.N), "cpu-ms/op")
+			b.ReportMetric(st.Bound, "bound")
+			b.ReportMetric(float64(st.WarmIterations), "warm-iterations")
+			b.ReportMetric(float64(st.Iterations), "path-iterations")
+			b.ReportMetric(st.Total.Seconds()-st.Setup.Seconds(), "path-s")
+		})
+	}
+}
