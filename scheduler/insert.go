@@ -3,7 +3,6 @@ package scheduler
 import (
 	"math"
 	"math/rand/v2"
-	"sort"
 )
 
 // cand is a candidate insertion: a new run at a gap, or a longer version
@@ -298,12 +297,16 @@ func (p *Problem) chain(prev prevState, b int, base, s float64, planned, nb int,
 // same as scoring every block in every gap, at a fraction of the
 // insertions tried.
 type repairState struct {
-	gaps  []gapHeap
-	cands []cand // evaluated candidates, indexed by gapEntry.ci
-	ver   int    // bumped by every change of the timeline
-	mode  int
-	noise float64
-	rng   *rand.Rand
+	gaps []gapHeap
+	// members of each gap: the blocks entered there, including those whose
+	// evaluation found no insertion (they are tried again in the gaps that
+	// an insertion splits it into, where another next run may let them fit).
+	members [][]int
+	cands   []cand // evaluated candidates, indexed by gapEntry.ci
+	ver     int    // bumped by every change of the timeline
+	mode    int
+	noise   float64
+	rng     *rand.Rand
 }
 
 // gapEntry is block b's entry in one gap: key is the (noisy) score of the
@@ -366,7 +369,8 @@ func (h *gapHeap) popTop() {
 // dirty marks the gaps whose neighbours changed (every block is tried
 // there); in the other gaps only the blocks in changed are tried.
 func (p *Problem) repair(sc *sched, dirty []bool, changed []int, mode int, noise float64, rng *rand.Rand) {
-	rs := &repairState{gaps: make([]gapHeap, len(sc.runs)+1), mode: mode, noise: noise, rng: rng}
+	rs := &repairState{gaps: make([]gapHeap, len(sc.runs)+1), members: make([][]int, len(sc.runs)+1),
+		mode: mode, noise: noise, rng: rng}
 	var all []int
 	for k := 0; k <= len(sc.runs); k++ {
 		if k < len(dirty) && dirty[k] {
@@ -376,9 +380,9 @@ func (p *Problem) repair(sc *sched, dirty []bool, changed []int, mode int, noise
 					all[i] = i
 				}
 			}
-			rs.gaps[k] = p.gapBounds(sc, k, all, rs)
+			p.gapBounds(sc, k, all, rs)
 		} else if len(changed) > 0 {
-			rs.gaps[k] = p.gapBounds(sc, k, changed, rs)
+			p.gapBounds(sc, k, changed, rs)
 		}
 	}
 	for guard := 0; guard < 1000000; guard++ {
@@ -414,11 +418,11 @@ func (p *Problem) repair(sc *sched, dirty []bool, changed []int, mode int, noise
 			// The same entry is still on top (its key did not drop).
 		}
 		fresh := rs.cands[rs.gaps[bk][0].ci]
-		parent := blocksOf(rs.gaps[bk])
+		parent := rs.members[bk]
 		rs.ver++
 		if fresh.extend {
 			p.replace(sc, bk-1, fresh.r)
-			rs.gaps[bk] = p.gapBounds(sc, bk, parent, rs)
+			p.gapBounds(sc, bk, parent, rs)
 			continue
 		}
 		all := append([]run{fresh.r}, fresh.more...)
@@ -429,8 +433,9 @@ func (p *Problem) repair(sc *sched, dirty []bool, changed []int, mode int, noise
 		// a chain are too short for anything.
 		add := make([]gapHeap, len(all))
 		rs.gaps = append(rs.gaps[:bk], append(add, rs.gaps[bk:]...)...)
-		rs.gaps[bk] = p.gapBounds(sc, bk, parent, rs)
-		rs.gaps[bk+len(all)] = p.gapBounds(sc, bk+len(all), parent, rs)
+		rs.members = append(rs.members[:bk], append(make([][]int, len(all)), rs.members[bk:]...)...)
+		p.gapBounds(sc, bk, parent, rs)
+		p.gapBounds(sc, bk+len(all), parent, rs)
 	}
 }
 
@@ -441,20 +446,12 @@ func (rs *repairState) noisy(s float64) float64 {
 	return s * (1 + rs.noise*(2*rs.rng.Float64()-1))
 }
 
-func blocksOf(h gapHeap) []int {
-	out := make([]int, len(h))
-	for i := range h {
-		out[i] = int(h[i].b)
-	}
-	sort.Ints(out)
-	return out
-}
-
-// gapBounds enters the given blocks in the gap before runs[k] with an
-// upper bound on their score (noise included), leaving out the blocks that
-// certainly have no insertion there.
-func (p *Problem) gapBounds(sc *sched, k int, blocks []int, rs *repairState) gapHeap {
+// gapBounds enters the given blocks in the gap before runs[k] (its heap
+// and members) with an upper bound on their score (noise included),
+// leaving out the blocks that certainly have no insertion there.
+func (p *Problem) gapBounds(sc *sched, k int, blocks []int, rs *repairState) {
 	var h gapHeap
+	var mem []int
 	for _, b := range blocks {
 		ub, ok := p.boundInGap(sc, k, b, rs.mode)
 		if !ok {
@@ -464,11 +461,12 @@ func (p *Problem) gapBounds(sc *sched, k int, blocks []int, rs *repairState) gap
 			ub *= 1 + rs.noise
 		}
 		h = append(h, gapEntry{key: ub, b: int32(b), ci: -1})
+		mem = append(mem, b)
 	}
 	for i := len(h)/2 - 1; i >= 0; i-- {
 		h.down(i)
 	}
-	return h
+	rs.gaps[k], rs.members[k] = h, mem
 }
 
 // boundInGap is an upper bound on the score (before noise) of any
@@ -496,15 +494,16 @@ func (p *Problem) boundInGap(sc *sched, k, b, mode int) (float64, bool) {
 	} else if ns-base < d.minSetup+float64(min(d.minRun, left))*d.frame {
 		return 0, false
 	}
+	// Blocks have few intervals: a scan touches less memory than ivFrom.
 	obs, qmax := 0.0, float32(0)
-	for j := p.ivFrom(d, from); j < len(d.iv)/2 && d.iv[2*j] < ns; j++ {
-		a, z := math.Max(d.iv[2*j], from), math.Min(d.iv[2*j+1], ns)
+	for j := 0; j < len(d.iv) && d.iv[j] < ns; j += 2 {
+		a, z := math.Max(d.iv[j], from), math.Min(d.iv[j+1], ns)
 		if z <= a {
 			continue
 		}
 		obs += z - a
-		for i, i1 := p.stepAt(a), p.stepAt(z); i <= i1; i++ {
-			qmax = max(qmax, d.q[i])
+		for c, c1 := p.stepAt(a)/qChunk, p.stepAt(z)/qChunk; c <= c1; c++ {
+			qmax = max(qmax, d.qc[c])
 		}
 	}
 	f := min(left, int(obs/d.frame+1e-6))
