@@ -419,10 +419,10 @@ func (c *certifier) taus(g *Grid, tr *Track, i int, t time.Time) taus {
 	curv(tauDark, c.darkThr-g.SunAlt[i], c.curvature(math.Abs(g.SunAlt[i]), 0, false))
 	// Horizon: altitude minus the profile at the azimuth; the azimuth's
 	// rate grows with the altitude (bounded over one grid step).
-	hmax := math.Min(math.Abs(alt)+c.altRate*c.h+ephem.Deg2Rad, 89*ephem.Deg2Rad)
-	azRate := omegaSidereal*(c.sinLat+c.cosLat*math.Tan(hmax)) + c.own/math.Cos(hmax)
+	azRate := c.azRate(math.Abs(alt), c.own)
 	s[tauHorizon] = (alt - g.Site.Horizon.AltitudeAt(float64(tr.Az[i])) - altSlack) / (c.altRate + c.slope*azRate)
-	kAlt := c.curvature(math.Abs(alt), c.own, true)
+	// curvature(|alt|, own, true), sharing the azimuth's rate bound.
+	kAlt := c.curvatureAz(azRate, c.own, true)
 	if c.slope == 0 { // a flat profile: the altitude's curvature
 		curv(tauHorizon, alt-g.Site.Horizon.AltitudeAt(float64(tr.Az[i]))-altSlack, kAlt)
 	}
@@ -486,8 +486,18 @@ func (c *certifier) taus(g *Grid, tr *Track, i int, t time.Time) taus {
 // curvature near the horizon (d2R/dh2 < 6 per radian, Saemundsson's
 // formula) times the squared rate; own is a moving target's rate bound.
 func (c *certifier) curvature(h, own float64, refracted bool) float64 {
+	return c.curvatureAz(c.azRate(h, own), own, refracted)
+}
+
+// azRate bounds the azimuth's rate (rad/s) over one grid step from
+// |altitude| h (see Intervals); own is a moving target's rate bound.
+func (c *certifier) azRate(h, own float64) float64 {
 	hmax := math.Min(h+c.altRate*c.h+ephem.Deg2Rad, 89*ephem.Deg2Rad)
-	azRate := omegaSidereal*(c.sinLat+c.cosLat*math.Tan(hmax)) + own/math.Cos(hmax)
+	return omegaSidereal*(c.sinLat+c.cosLat*math.Tan(hmax)) + own/math.Cos(hmax)
+}
+
+// curvatureAz is curvature with the azimuth's rate bound azRate given.
+func (c *certifier) curvatureAz(azRate, own float64, refracted bool) float64 {
 	k := omegaSidereal*c.cosLat*azRate + 3*omegaSidereal*own
 	if refracted {
 		rate := omegaSidereal*c.cosLat + own

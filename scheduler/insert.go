@@ -3,6 +3,7 @@ package scheduler
 import (
 	"math"
 	"math/rand/v2"
+	"sync"
 )
 
 // cand is a candidate insertion: a new run at a gap, or a longer version
@@ -307,6 +308,25 @@ type repairState struct {
 	mode    int
 	noise   float64
 	rng     *rand.Rand
+	// Buffers kept between repairs (repairPool): every block's index,
+	// and released heaps and member lists.
+	all   []int
+	freeH []gapHeap
+	freeM [][]int
+}
+
+// repairPool recycles repair states: a search repairs once per
+// iteration, and its heaps would otherwise be garbage every time.
+var repairPool = sync.Pool{New: func() any { return new(repairState) }}
+
+// release keeps a gap's heap and member list for reuse.
+func (rs *repairState) release(h gapHeap, m []int) {
+	if h != nil {
+		rs.freeH = append(rs.freeH, h[:0])
+	}
+	if m != nil {
+		rs.freeM = append(rs.freeM, m[:0])
+	}
 }
 
 // gapEntry is block b's entry in one gap: key is the (noisy) score of the
@@ -369,16 +389,29 @@ func (h *gapHeap) popTop() {
 // dirty marks the gaps whose neighbours changed (every block is tried
 // there); in the other gaps only the blocks in changed are tried.
 func (p *Problem) repair(sc *sched, dirty []bool, changed []int, mode int, noise float64, rng *rand.Rand) {
-	rs := &repairState{gaps: make([]gapHeap, len(sc.runs)+1), members: make([][]int, len(sc.runs)+1),
-		mode: mode, noise: noise, rng: rng}
+	rs := repairPool.Get().(*repairState)
+	rs.gaps = append(rs.gaps[:0], make([]gapHeap, len(sc.runs)+1)...)
+	rs.members = append(rs.members[:0], make([][]int, len(sc.runs)+1)...)
+	rs.cands, rs.ver, rs.mode, rs.noise, rs.rng = rs.cands[:0], 0, mode, noise, rng
+	defer func() {
+		for k := range rs.gaps {
+			rs.release(rs.gaps[k], rs.members[k])
+			rs.gaps[k], rs.members[k] = nil, nil
+		}
+		rs.rng = nil
+		repairPool.Put(rs)
+	}()
 	var all []int
 	for k := 0; k <= len(sc.runs); k++ {
 		if k < len(dirty) && dirty[k] {
 			if all == nil {
-				all = make([]int, len(p.Blocks))
-				for i := range all {
-					all[i] = i
+				if len(rs.all) != len(p.Blocks) {
+					rs.all = make([]int, len(p.Blocks))
+					for i := range rs.all {
+						rs.all[i] = i
+					}
 				}
+				all = rs.all
 			}
 			p.gapBounds(sc, k, all, rs)
 		} else if len(changed) > 0 {
@@ -418,11 +451,12 @@ func (p *Problem) repair(sc *sched, dirty []bool, changed []int, mode int, noise
 			// The same entry is still on top (its key did not drop).
 		}
 		fresh := rs.cands[rs.gaps[bk][0].ci]
-		parent := rs.members[bk]
+		parent, oldH := rs.members[bk], rs.gaps[bk]
 		rs.ver++
 		if fresh.extend {
 			p.replace(sc, bk-1, fresh.r)
 			p.gapBounds(sc, bk, parent, rs)
+			rs.release(oldH, parent)
 			continue
 		}
 		all := append([]run{fresh.r}, fresh.more...)
@@ -436,6 +470,7 @@ func (p *Problem) repair(sc *sched, dirty []bool, changed []int, mode int, noise
 		rs.members = append(rs.members[:bk], append(make([][]int, len(all)), rs.members[bk:]...)...)
 		p.gapBounds(sc, bk, parent, rs)
 		p.gapBounds(sc, bk+len(all), parent, rs)
+		rs.release(oldH, parent)
 	}
 }
 
@@ -452,6 +487,12 @@ func (rs *repairState) noisy(s float64) float64 {
 func (p *Problem) gapBounds(sc *sched, k int, blocks []int, rs *repairState) {
 	var h gapHeap
 	var mem []int
+	if n := len(rs.freeH); n > 0 {
+		h, rs.freeH = rs.freeH[n-1], rs.freeH[:n-1]
+	}
+	if n := len(rs.freeM); n > 0 {
+		mem, rs.freeM = rs.freeM[n-1], rs.freeM[:n-1]
+	}
 	for _, b := range blocks {
 		ub, ok := p.boundInGap(sc, k, b, rs.mode)
 		if !ok {
