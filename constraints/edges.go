@@ -581,6 +581,18 @@ type pointCache struct {
 	m  map[int64]*Grid
 }
 
+// ReleasePointCache drops the one-step grids that Intervals and CheckAt
+// cached (they are made again when needed): a caller that keeps the grids
+// of many nights, as a plan of a month does, then keeps their samples
+// without thousands of instants' sky each.
+func (g *Grid) ReleasePointCache() {
+	if pc := g.points; pc != nil {
+		pc.mu.Lock()
+		pc.m = nil
+		pc.mu.Unlock()
+	}
+}
+
 // pointGrid returns the one-step grid at t, from the cache when it has it.
 // A one-step grid is never modified after it is made. Between two of the
 // grid's samples at most ephem.MaxBetweenSpan apart, its snapshot comes

@@ -122,6 +122,10 @@ func Horizon(in HorizonInput) ([]NightPlan, error) {
 				}
 				nd.tracks, nd.vis = visibilities(nd.grid, bl, 1, o.Cancel)
 				nd.iv = blockIntervals(nd.grid, bl, nd.tracks, nd.vis, 1, o.Cancel)
+				// The edges' one-step grids are not needed again for this
+				// night's plan: keeping them for 30 nights would hold (and
+				// make the collector scan) about 12 KB per block-night.
+				nd.grid.ReleasePointCache()
 			}
 			results[k] <- nd
 		}()
