@@ -68,7 +68,7 @@ type Problem struct {
 	bd            []bdat
 	anchor        anchor
 	execStart     []float64       // start of each block's last executed run tonight (NaN if none)
-	ax            []float32       // mount axes per block and step (precomputeAxes)
+	ax            *axesTable      // mount axes per block and step, made on use
 	keep          map[runKey]bool // replanning: runs of the old plan, not to be extended
 	flip0, flip1  float64         // flip zone, radians of hour angle
 	oh            ohSec
