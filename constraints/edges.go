@@ -88,6 +88,16 @@ func (g *Grid) Intervals(tr *Track, req Request, v *Visibility) []Interval {
 			if x <= px || x >= b {
 				continue
 			}
+			// Far from every limit, the slack at px alone proves the next
+			// samples observable (Lipschitz, one-sided): skip them.
+			if j := i + skipSamples - 1; skipSamples > 1 && j < w.End {
+				if xj := float64(j) * h; xj < b && c.reaches(&pt, xj-px) {
+					xs = appendSpan(xs, px, xj)
+					px, pt = xj, c.sample(j)
+					i = j
+					continue
+				}
+			}
 			t := c.sample(i)
 			xs = c.segment(xs, px, pt, x, t)
 			px, pt = x, t
@@ -139,6 +149,9 @@ const (
 // bound on their second derivative the margin m and that bound k (0: none).
 type taus struct {
 	t, m, k [numTau]float64
+	// absAlt is |altitude| and hm the margin above the horizon profile
+	// (rad), for slack over more than one step (reaches).
+	absAlt, hm float64
 }
 
 // certifier holds one block's limits and rate bounds for Intervals.
@@ -329,6 +342,36 @@ func (c *certifier) bisect(ok float64, tok taus, bad float64, tbad *taus) (float
 	return ok, tok
 }
 
+// skipSamples is how many grid steps Intervals tries to certify at once
+// from one checkpoint's slack (reaches).
+var skipSamples = 8 // a variable for the test that compares with 1
+
+// reaches reports whether the slack ts at an instant x proves [x, x+d]
+// observable by the Lipschitz bounds alone (tau_c(x) >= d for every c): the
+// rate bounds of Intervals hold over any span, except the azimuth's, which
+// is bounded here from the altitude reachable in d rather than in one step,
+// and the estimated rates (sky brightness, magnitude, trailing), for which
+// it never answers yes.
+func (c *certifier) reaches(ts *taus, d float64) bool {
+	for k, v := range ts.t {
+		switch k {
+		case tauSky, tauMag, tauTrail:
+			if !math.IsInf(v, 1) {
+				return false
+			}
+			continue
+		case tauHorizon:
+			hmax := math.Min(ts.absAlt+c.altRate*d+ephem.Deg2Rad, 89*ephem.Deg2Rad)
+			az := omegaSidereal*(c.sinLat+c.cosLat*math.Tan(hmax)) + c.own/math.Cos(hmax)
+			v = ts.hm / (c.altRate + c.slope*az)
+		}
+		if !(v >= d) { // NaN fails
+			return false
+		}
+	}
+	return true
+}
+
 // certified reports whether the slack at a and b proves [a, b] observable:
 // for every constraint, the Lipschitz certificate or the curvature one.
 func certified(ta, tb *taus, d float64) bool {
@@ -419,10 +462,11 @@ func (c *certifier) taus(g *Grid, tr *Track, i int, t time.Time) taus {
 	curv(tauDark, c.darkThr-g.SunAlt[i], c.curvature(math.Abs(g.SunAlt[i]), 0, false))
 	// Horizon: altitude minus the profile at the azimuth; the azimuth's
 	// rate grows with the altitude (bounded over one grid step).
-	hmax := math.Min(math.Abs(alt)+c.altRate*c.h+ephem.Deg2Rad, 89*ephem.Deg2Rad)
-	azRate := omegaSidereal*(c.sinLat+c.cosLat*math.Tan(hmax)) + c.own/math.Cos(hmax)
-	s[tauHorizon] = (alt - g.Site.Horizon.AltitudeAt(float64(tr.Az[i])) - altSlack) / (c.altRate + c.slope*azRate)
-	kAlt := c.curvature(math.Abs(alt), c.own, true)
+	azRate := c.azRate(math.Abs(alt), c.own)
+	sl.absAlt, sl.hm = math.Abs(alt), alt-g.Site.Horizon.AltitudeAt(float64(tr.Az[i]))-altSlack
+	s[tauHorizon] = sl.hm / (c.altRate + c.slope*azRate)
+	// curvature(|alt|, own, true), sharing the azimuth's rate bound.
+	kAlt := c.curvatureAz(azRate, c.own, true)
 	if c.slope == 0 { // a flat profile: the altitude's curvature
 		curv(tauHorizon, alt-g.Site.Horizon.AltitudeAt(float64(tr.Az[i]))-altSlack, kAlt)
 	}
@@ -486,8 +530,18 @@ func (c *certifier) taus(g *Grid, tr *Track, i int, t time.Time) taus {
 // curvature near the horizon (d2R/dh2 < 6 per radian, Saemundsson's
 // formula) times the squared rate; own is a moving target's rate bound.
 func (c *certifier) curvature(h, own float64, refracted bool) float64 {
+	return c.curvatureAz(c.azRate(h, own), own, refracted)
+}
+
+// azRate bounds the azimuth's rate (rad/s) over one grid step from
+// |altitude| h (see Intervals); own is a moving target's rate bound.
+func (c *certifier) azRate(h, own float64) float64 {
 	hmax := math.Min(h+c.altRate*c.h+ephem.Deg2Rad, 89*ephem.Deg2Rad)
-	azRate := omegaSidereal*(c.sinLat+c.cosLat*math.Tan(hmax)) + own/math.Cos(hmax)
+	return omegaSidereal*(c.sinLat+c.cosLat*math.Tan(hmax)) + own/math.Cos(hmax)
+}
+
+// curvatureAz is curvature with the azimuth's rate bound azRate given.
+func (c *certifier) curvatureAz(azRate, own float64, refracted bool) float64 {
 	k := omegaSidereal*c.cosLat*azRate + 3*omegaSidereal*own
 	if refracted {
 		rate := omegaSidereal*c.cosLat + own
@@ -525,6 +579,18 @@ const maxPointGrids = 8192
 type pointCache struct {
 	mu sync.Mutex
 	m  map[int64]*Grid
+}
+
+// ReleasePointCache drops the one-step grids that Intervals and CheckAt
+// cached (they are made again when needed): a caller that keeps the grids
+// of many nights, as a plan of a month does, then keeps their samples
+// without thousands of instants' sky each.
+func (g *Grid) ReleasePointCache() {
+	if pc := g.points; pc != nil {
+		pc.mu.Lock()
+		pc.m = nil
+		pc.mu.Unlock()
+	}
 }
 
 // pointGrid returns the one-step grid at t, from the cache when it has it.

@@ -117,3 +117,59 @@ func TestIntervalsFindNarrowObstacle(t *testing.T) {
 		t.Errorf("no interval ends at the spike (between %v and %v): %v", g2.Time(k), mid, iv)
 	}
 }
+
+// Skipping samples far from every limit (reaches) changes no interval:
+// 300 stars spread over the sky, under constraint sets with and without
+// the sky-brightness limit (whose estimated rate never lets a sample be
+// skipped), on a night with a Moon, give exactly the intervals that
+// certifying every step gives.
+func TestIntervalsSkipChangesNothing(t *testing.T) {
+	site := benchSite(t)
+	start := time.Date(2026, 12, 24, 17, 0, 0, 0, time.UTC)
+	g, err := NewGrid(site, start, start.Add(14*time.Hour), 2*time.Minute, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	sets := []*Set{
+		{MaxAirmass: 2, MinAltDeg: 25, MinMoonSepDeg: 40, Darkness: DarkAstronomical},
+		{MinAltDeg: 10, Darkness: DarkNautical, MaxHourAngleDeg: 60, AvoidFlipZone: true},
+		{MaxAirmass: 1.6, MaxMoonIllum: 0.5, MoonIllumWhenUp: true, Darkness: DarkCivil, LocalStart: 19 * time.Hour, LocalEnd: 5 * time.Hour},
+		fullSet(),
+	}
+	skipped := skipSamples
+	defer func() { skipSamples = skipped }()
+	same, n := 0, 0
+	for k := 0; k < 300; k++ {
+		ra, dec := float64(k)*137.508, -30+float64(k%90)
+		st, err := ephem.NewStar(ra-360*float64(int(ra/360)), dec, 0, 0)
+		if err != nil {
+			t.Fatal(err)
+		}
+		tr, err := g.Track(&Target{Name: "star", Star: &st})
+		if err != nil {
+			t.Fatal(err)
+		}
+		req := Request{Set: sets[k%len(sets)], Exposure: time.Minute}
+		v := g.Evaluate(tr, req)
+		skipSamples = skipped
+		a := g.Intervals(tr, req, v)
+		skipSamples = 1
+		b := g.Intervals(tr, req, v)
+		n += len(b)
+		if len(a) != len(b) {
+			t.Fatalf("star %d: %d intervals with skips, %d without: %v, %v", k, len(a), len(b), a, b)
+		}
+		for i := range a {
+			if !a[i].Start.Equal(b[i].Start) || !a[i].End.Equal(b[i].End) {
+				t.Fatalf("star %d: interval %d is %v with skips, %v without", k, i, a[i], b[i])
+			}
+		}
+		if len(b) > 0 {
+			same++
+		}
+	}
+	if same < 100 {
+		t.Errorf("only %d of 300 stars observable: the check compares too little", same)
+	}
+	t.Logf("%d intervals of %d observable stars identical", n, same)
+}

@@ -1,9 +1,11 @@
 package scheduler
 
 import (
+	"fmt"
 	"github.com/nightloom/nightloom/constraints"
 	"os"
 	"path/filepath"
+	"runtime"
 	"sync"
 	"testing"
 	"time"
@@ -159,6 +161,10 @@ func BenchmarkReplan200(b *testing.B) {
 
 // BenchmarkHorizon2000x30 plans 30 nights of 2000 blocks, grids, tracks
 // and visibility included (computed concurrently, GOMAXPROCS workers).
+// Besides wall time it reports the process's CPU time (getrusage: the
+// machine may be shared), the 1-minute load average when the run began
+// (Linux /proc/loadavg; -1 elsewhere), and the heap the plans keep per
+// block and night (after a GC, as BenchmarkScaling).
 func BenchmarkHorizon2000x30(b *testing.B) {
 	in := loadInstance(b, "horizon2000")
 	site, err := in.SiteOf()
@@ -173,12 +179,28 @@ func BenchmarkHorizon2000x30(b *testing.B) {
 	b.ReportAllocs()
 	b.ResetTimer()
 	var out []NightPlan
+	var cpu time.Duration
+	var kept uint64
+	load := loadAverage()
 	for b.Loop() {
+		var before, after runtime.MemStats
+		b.StopTimer()
+		out = nil
+		runtime.GC()
+		runtime.ReadMemStats(&before)
+		b.StartTimer()
+		c0 := processCPU()
 		out, err = Horizon(HorizonInput{Site: site, Blocks: blocks, First: day, Nights: in.Nights,
 			Step: secs(in.StepS), NoSky: in.NoSky, Options: Options{Seed: 1}})
 		if err != nil {
 			b.Fatal(err)
 		}
+		cpu += processCPU() - c0
+		b.StopTimer()
+		runtime.GC()
+		runtime.ReadMemStats(&after)
+		kept = after.HeapAlloc - before.HeapAlloc
+		b.StartTimer()
 	}
 	sinkPlans = out
 	total, runs := 0.0, 0
@@ -190,6 +212,22 @@ func BenchmarkHorizon2000x30(b *testing.B) {
 	}
 	b.ReportMetric(total, "objective")
 	b.ReportMetric(float64(runs), "runs")
+	b.ReportMetric(float64(cpu.Microseconds())/1e3/float64(b.N), "cpu-ms/op")
+	b.ReportMetric(float64(kept)/1e3/float64(len(blocks)*in.Nights), "KB-kept/block-night")
+	b.ReportMetric(load, "load1")
+}
+
+// loadAverage is the 1-minute load average (Linux), -1 when unknown.
+func loadAverage() float64 {
+	buf, err := os.ReadFile("/proc/loadavg")
+	if err != nil {
+		return -1
+	}
+	var l float64
+	if _, err := fmt.Sscan(string(buf), &l); err != nil {
+		return -1
+	}
+	return l
 }
 
 // BenchmarkPrepare200 prepares the 200-block night: tracks, visibility

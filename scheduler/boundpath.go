@@ -308,8 +308,9 @@ func (y *pathDP) axisEnds(b int, side int8, prev bool, i int) (u1, u2, v1, v2 fl
 		u1, u2 = p.axesOf(b, i, side, prev)
 		w1, w2 = p.axesOf(b, j, side, prev)
 	} else {
-		k, m := 4*(b*p.n+i)+2*int(side), 4*(b*p.n+j)+2*int(side)
-		u1, u2, w1, w2 = float64(p.ax[k]), float64(p.ax[k+1]), float64(p.ax[m]), float64(p.ax[m+1])
+		row := p.axesRow(b)
+		k, m := 4*i+2*int(side), 4*j+2*int(side)
+		u1, u2, w1, w2 = float64(row[k]), float64(row[k+1]), float64(row[m]), float64(row[m+1])
 	}
 	d := w1 - u1
 	if d > 180 {

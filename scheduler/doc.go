@@ -118,7 +118,9 @@
 //     valuable run into any gap, repeatedly; each candidate is the longest
 //     run as early as possible in one of the gap's windows, as late as
 //     possible, or centred on the block's best quality, plus chains of
-//     back-to-back runs that complete a block) improved by adaptive
+//     back-to-back runs that complete a block; candidates are evaluated
+//     lazily, a block only when an upper bound on its score tops every
+//     other, after Minoux 1978) improved by adaptive
 //     large-neighbourhood search: destroy operators (random runs, a
 //     stretch of time, Shaw's related removal by time, sky distance and
 //     filter, worst value per second, all runs of one block) and repair

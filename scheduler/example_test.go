@@ -35,10 +35,10 @@ func Example() {
 		fmt.Printf("%s: %v\n", u.ID, u.Why)
 	}
 	// Output:
-	// 9 runs, 3 blocks completed, 43% better than greedy
+	// 10 runs, 4 blocks completed, 44% better than greedy
 	// ex-0008 02:09-03:36 UTC, 17 frames
 	// ex-0008 03:39-04:45 UTC, 13 frames
-	// ex-0002 04:47-06:44 UTC, 23 frames
+	// ex-0002 04:48-05:29 UTC, 8 frames
 	// ex-0001: lost to higher-value blocks
 	// ex-0005: never observable
 }

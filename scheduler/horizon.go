@@ -19,10 +19,23 @@ type HorizonInput struct {
 	Step     time.Duration
 	Closures []Closure
 	NoSky    bool
-	// Options for every night. Zero Iterations and Budget default to 400
-	// and 150 ms per night here.
+	// Options for every night. Zero Iterations, ConvergeIterations and
+	// Budget default to HorizonIterations, HorizonConvergeIterations and
+	// 150 ms per night here: a night's search is cut by iterations, so its
+	// time follows the night's size, and ends early once it stops gaining
+	// (the budget is a ceiling that a loaded machine may reach).
 	Options Options
 }
+
+// Per-night search of a horizon. Profiled on testdata/scheduler's
+// horizon2000 (2000 blocks x 30 nights): the constructive plans reach 99.7
+// % of what 100 iterations per night reach, 200 add another 0.3 % at twice
+// the search's time; a plan of many nights is refined night by night by
+// Replan anyway.
+const (
+	HorizonIterations         = 100
+	HorizonConvergeIterations = 30
+)
 
 // NightPlan is one night of a horizon: its problem (the blocks with
 // frames left that night; Assignment.Block indexes Problem.Blocks) and
@@ -42,7 +55,10 @@ type NightPlan struct {
 func Horizon(in HorizonInput) ([]NightPlan, error) {
 	o := in.Options
 	if o.Iterations == 0 {
-		o.Iterations = 400
+		o.Iterations = HorizonIterations
+	}
+	if o.ConvergeIterations == 0 {
+		o.ConvergeIterations = HorizonConvergeIterations
 	}
 	if o.Budget == 0 {
 		o.Budget = 150 * time.Millisecond
@@ -106,6 +122,10 @@ func Horizon(in HorizonInput) ([]NightPlan, error) {
 				}
 				nd.tracks, nd.vis = visibilities(nd.grid, bl, 1, o.Cancel)
 				nd.iv = blockIntervals(nd.grid, bl, nd.tracks, nd.vis, 1, o.Cancel)
+				// The edges' one-step grids are not needed again for this
+				// night's plan: keeping them for 30 nights would hold (and
+				// make the collector scan) about 12 KB per block-night.
+				nd.grid.ReleasePointCache()
 			}
 			results[k] <- nd
 		}()

@@ -3,7 +3,7 @@ package scheduler
 import (
 	"math"
 	"math/rand/v2"
-	"sort"
+	"sync"
 )
 
 // cand is a candidate insertion: a new run at a gap, or a longer version
@@ -290,59 +290,173 @@ func (p *Problem) chain(prev prevState, b int, base, s float64, planned, nb int,
 }
 
 // repairState holds the candidate insertions of every gap during one
-// repair.
+// repair: per gap a max-heap of entries, each either an evaluated
+// candidate (its score) or an unevaluated block (an upper bound on its
+// score, boundInGap). Evaluating a block only when its bound reaches the
+// top of every gap is the lazy greedy of Minoux (1978, "Accelerated greedy
+// algorithms for maximizing submodular set functions"): the pick is the
+// same as scoring every block in every gap, at a fraction of the
+// insertions tried.
 type repairState struct {
-	gaps  [][]cand
-	mode  int
-	noise float64
-	rng   *rand.Rand
+	gaps []gapHeap
+	// members of each gap: the blocks entered there, including those whose
+	// evaluation found no insertion (they are tried again in the gaps that
+	// an insertion splits it into, where another next run may let them fit).
+	members [][]int
+	cands   []cand // evaluated candidates, indexed by gapEntry.ci
+	ver     int    // bumped by every change of the timeline
+	mode    int
+	noise   float64
+	rng     *rand.Rand
+	// Buffers kept between repairs (repairPool): every block's index,
+	// and released heaps and member lists.
+	all   []int
+	freeH []gapHeap
+	freeM [][]int
+}
+
+// repairPool recycles repair states: a search repairs once per
+// iteration, and its heaps would otherwise be garbage every time.
+var repairPool = sync.Pool{New: func() any { return new(repairState) }}
+
+// release keeps a gap's heap and member list for reuse.
+func (rs *repairState) release(h gapHeap, m []int) {
+	if h != nil {
+		rs.freeH = append(rs.freeH, h[:0])
+	}
+	if m != nil {
+		rs.freeM = append(rs.freeM, m[:0])
+	}
+}
+
+// gapEntry is block b's entry in one gap: key is the (noisy) score of the
+// candidate cands[ci] evaluated at timeline version ver, or, with ci < 0,
+// an upper bound on the score.
+type gapEntry struct {
+	key float64
+	b   int32
+	ci  int32
+	ver int
+}
+
+// gapHeap is a max-heap of entries by key.
+type gapHeap []gapEntry
+
+func (h gapHeap) up(i int) {
+	for i > 0 {
+		j := (i - 1) / 2
+		if !(h[i].key > h[j].key) {
+			return
+		}
+		h[i], h[j] = h[j], h[i]
+		i = j
+	}
+}
+
+func (h gapHeap) down(i int) {
+	n := len(h)
+	for {
+		l := 2*i + 1
+		if l >= n {
+			return
+		}
+		m := l
+		if r := l + 1; r < n && h[r].key > h[l].key {
+			m = r
+		}
+		if !(h[m].key > h[i].key) {
+			return
+		}
+		h[i], h[m] = h[m], h[i]
+		i = m
+	}
+}
+
+func (h *gapHeap) push(e gapEntry) {
+	*h = append(*h, e)
+	h.up(len(*h) - 1)
+}
+
+func (h *gapHeap) popTop() {
+	old := *h
+	n := len(old) - 1
+	old[0] = old[n]
+	*h = old[:n]
+	h.down(0)
 }
 
 // repair inserts runs greedily (best score first) until nothing fits.
 // dirty marks the gaps whose neighbours changed (every block is tried
 // there); in the other gaps only the blocks in changed are tried.
 func (p *Problem) repair(sc *sched, dirty []bool, changed []int, mode int, noise float64, rng *rand.Rand) {
-	rs := &repairState{gaps: make([][]cand, len(sc.runs)+1), mode: mode, noise: noise, rng: rng}
-	all := make([]int, len(p.Blocks))
-	for i := range all {
-		all[i] = i
-	}
+	rs := repairPool.Get().(*repairState)
+	rs.gaps = append(rs.gaps[:0], make([]gapHeap, len(sc.runs)+1)...)
+	rs.members = append(rs.members[:0], make([][]int, len(sc.runs)+1)...)
+	rs.cands, rs.ver, rs.mode, rs.noise, rs.rng = rs.cands[:0], 0, mode, noise, rng
+	defer func() {
+		for k := range rs.gaps {
+			rs.release(rs.gaps[k], rs.members[k])
+			rs.gaps[k], rs.members[k] = nil, nil
+		}
+		rs.rng = nil
+		repairPool.Put(rs)
+	}()
+	var all []int
 	for k := 0; k <= len(sc.runs); k++ {
 		if k < len(dirty) && dirty[k] {
-			rs.gaps[k] = p.gapCands(sc, k, all, rs)
+			if all == nil {
+				if len(rs.all) != len(p.Blocks) {
+					rs.all = make([]int, len(p.Blocks))
+					for i := range rs.all {
+						rs.all[i] = i
+					}
+				}
+				all = rs.all
+			}
+			p.gapBounds(sc, k, all, rs)
 		} else if len(changed) > 0 {
-			rs.gaps[k] = p.gapCands(sc, k, changed, rs)
+			p.gapBounds(sc, k, changed, rs)
 		}
 	}
-	for guard := 0; guard < 100000; guard++ {
-		bk, bi := -1, -1
-		for k, cs := range rs.gaps {
-			for i := range cs {
-				if bk < 0 || cs[i].score > rs.gaps[bk][bi].score {
-					bk, bi = k, i
-				}
+	for guard := 0; guard < 1000000; guard++ {
+		bk := -1
+		for k, h := range rs.gaps {
+			if len(h) > 0 && (bk < 0 || h[0].key > rs.gaps[bk][0].key) {
+				bk = k
 			}
 		}
 		if bk < 0 {
 			return
 		}
-		c := rs.gaps[bk][bi]
-		fresh := p.bestInGap(sc, bk, c.r.b, mode)
-		if !fresh.ok {
-			rs.gaps[bk] = append(rs.gaps[bk][:bi], rs.gaps[bk][bi+1:]...)
-			continue
-		}
-		fresh.score = rs.noisy(fresh.score)
-		if fresh.score < c.score-1e-9 || fresh.r != c.r || len(fresh.more) != len(c.more) {
-			rs.gaps[bk][bi] = fresh
-			if fresh.score < c.score-1e-9 {
+		e := &rs.gaps[bk][0]
+		if e.ci < 0 || e.ver != rs.ver {
+			// A bound, or a candidate of an older timeline: (re)evaluate.
+			// A candidate whose score did not drop is still the best,
+			// scores elsewhere being at most their keys (for a candidate
+			// of an older timeline, as when every gap was scored eagerly).
+			c := p.bestInGap(sc, bk, int(e.b), mode)
+			if !c.ok || e.ci < 0 && !(c.delta > 0) {
+				rs.gaps[bk].popTop()
 				continue
 			}
+			c.score = rs.noisy(c.score)
+			wasExact, old := e.ci >= 0, e.key
+			e.ci, e.ver = int32(len(rs.cands)), rs.ver
+			rs.cands = append(rs.cands, c)
+			e.key = c.score
+			rs.gaps[bk].down(0)
+			if !wasExact || c.score < old-1e-9 {
+				continue
+			}
+			// The same entry is still on top (its key did not drop).
 		}
-		parent := blocksOf(rs.gaps[bk])
+		fresh := rs.cands[rs.gaps[bk][0].ci]
+		parent, oldH := rs.members[bk], rs.gaps[bk]
+		rs.ver++
 		if fresh.extend {
 			p.replace(sc, bk-1, fresh.r)
-			rs.gaps[bk] = p.gapCands(sc, bk, parent, rs)
+			p.gapBounds(sc, bk, parent, rs)
+			rs.release(oldH, parent)
 			continue
 		}
 		all := append([]run{fresh.r}, fresh.more...)
@@ -351,10 +465,12 @@ func (p *Problem) repair(sc *sched, dirty []bool, changed []int, mode int, noise
 		}
 		// The gap splits into len(all)+1 gaps; the ones between the runs of
 		// a chain are too short for anything.
-		add := make([][]cand, len(all))
+		add := make([]gapHeap, len(all))
 		rs.gaps = append(rs.gaps[:bk], append(add, rs.gaps[bk:]...)...)
-		rs.gaps[bk] = p.gapCands(sc, bk, parent, rs)
-		rs.gaps[bk+len(all)] = p.gapCands(sc, bk+len(all), parent, rs)
+		rs.members = append(rs.members[:bk], append(make([][]int, len(all)), rs.members[bk:]...)...)
+		p.gapBounds(sc, bk, parent, rs)
+		p.gapBounds(sc, bk+len(all), parent, rs)
+		rs.release(oldH, parent)
 	}
 }
 
@@ -365,24 +481,94 @@ func (rs *repairState) noisy(s float64) float64 {
 	return s * (1 + rs.noise*(2*rs.rng.Float64()-1))
 }
 
-func blocksOf(cs []cand) []int {
-	out := make([]int, len(cs))
-	for i := range cs {
-		out[i] = cs[i].r.b
+// gapBounds enters the given blocks in the gap before runs[k] (its heap
+// and members) with an upper bound on their score (noise included),
+// leaving out the blocks that certainly have no insertion there.
+func (p *Problem) gapBounds(sc *sched, k int, blocks []int, rs *repairState) {
+	var h gapHeap
+	var mem []int
+	if n := len(rs.freeH); n > 0 {
+		h, rs.freeH = rs.freeH[n-1], rs.freeH[:n-1]
 	}
-	sort.Ints(out)
-	return out
+	if n := len(rs.freeM); n > 0 {
+		mem, rs.freeM = rs.freeM[n-1], rs.freeM[:n-1]
+	}
+	for _, b := range blocks {
+		ub, ok := p.boundInGap(sc, k, b, rs.mode)
+		if !ok {
+			continue
+		}
+		if rs.noise > 0 && rs.rng != nil {
+			ub *= 1 + rs.noise
+		}
+		h = append(h, gapEntry{key: ub, b: int32(b), ci: -1})
+		mem = append(mem, b)
+	}
+	for i := len(h)/2 - 1; i >= 0; i-- {
+		h.down(i)
+	}
+	rs.gaps[k], rs.members[k] = h, mem
 }
 
-// gapCands evaluates the given blocks in the gap before runs[k].
-func (p *Problem) gapCands(sc *sched, k int, blocks []int, rs *repairState) []cand {
-	var out []cand
-	for _, b := range blocks {
-		c := p.bestInGap(sc, k, b, rs.mode)
-		if c.ok && c.delta > 0 {
-			c.score = rs.noisy(c.score)
-			out = append(out, c)
+// boundInGap is an upper bound on the score (before noise) of any
+// candidate with a positive delta that bestInGap(sc, k, b, mode) may
+// return, and false when there is certainly none. Every frame of an
+// insertion in the gap (a new run, a chain, or the frames that extend
+// the run before the gap) lies inside one of the block's observable
+// intervals and inside the gap, so at most f frames fit, each worth at
+// most w times the best quality of those stretches; a cadence point and
+// the completion bonus come on top. By mode: the density divides by the
+// time used (at least f' frames for f' frames' value), the tightness
+// factor is at most 1, and progress adds at most the prorated bonus.
+func (p *Problem) boundInGap(sc *sched, k, b, mode int) (float64, bool) {
+	d := &p.bd[b]
+	left := d.rem - sc.planned[b]
+	if left <= 0 || !(d.frame > 0) {
+		return 0, false
+	}
+	base := p.baseOf(sc, k)
+	_, ns := p.nextOf(sc, k)
+	from := base
+	ext := k > 0 && sc.runs[k-1].b == b && !p.keep[keyOf(&sc.runs[k-1])]
+	if ext {
+		from = sc.runs[k-1].e
+	} else if ns-base < d.minSetup+float64(min(d.minRun, left))*d.frame {
+		return 0, false
+	}
+	// Blocks have few intervals: a scan touches less memory than ivFrom.
+	obs, qmax := 0.0, float32(0)
+	for j := 0; j < len(d.iv) && d.iv[j] < ns; j += 2 {
+		a, z := math.Max(d.iv[j], from), math.Min(d.iv[j+1], ns)
+		if z <= a {
+			continue
+		}
+		obs += z - a
+		for c, c1 := p.stepAt(a)/qChunk, p.stepAt(z)/qChunk; c <= c1; c++ {
+			qmax = max(qmax, d.qc[c])
 		}
 	}
-	return out
+	f := min(left, int(obs/d.frame+1e-6))
+	if f <= 0 || !ext && f < min(d.minRun, left) {
+		return 0, false
+	}
+	extra := 0.0 // cadence point (of a new run) and bonus
+	if d.every > 0 {
+		extra += d.point
+	}
+	if d.rem > 0 && left <= f {
+		extra += d.bonus
+	}
+	v := d.w*float64(qmax)*float64(f) + extra
+	if !(v > 0) {
+		return 0, false
+	}
+	switch mode {
+	case byDensity:
+		return d.w*float64(qmax)/d.frame + extra/math.Max(d.frame, 1), true
+	case byProgress:
+		if d.rem > 0 {
+			v += d.bonus * float64(f) / float64(d.rem)
+		}
+	}
+	return v, true
 }

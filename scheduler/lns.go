@@ -492,19 +492,41 @@ func keyOf(r *run) runKey { return runKey{b: r.b, n: r.n, ms: int64(math.Round(r
 // highest-ranked block (priority * urgency, then quality) that can start
 // right after its setup, with as many frames as fit; when none can, wait
 // one grid step.
+//
+// The blocks are tried in decreasing order of priority * urgency, and the
+// search at one instant stops at the first block whose rank cannot beat
+// the best so far (quality is at most 1); a block not observable before
+// the longest possible setup has elapsed is skipped without computing its
+// setup. Both leave the choice unchanged (ties go to the lower index, as
+// in a scan of every block).
 func (p *Problem) greedy() *sched {
 	sc := p.emptySched()
+	order := make([]int, len(p.Blocks))
+	pu := make([]float64, len(p.Blocks))
+	for b := range order {
+		order[b] = b
+		pu[b] = p.Blocks[b].Priority * p.Urgency[b]
+	}
+	sort.SliceStable(order, func(i, j int) bool { return pu[order[i]] > pu[order[j]] })
+	reach := p.setupCeiling()
 	t := p.ceilQ(p.anchor.free)
 	for t < p.tEnd {
 		k := len(sc.runs)
 		prev := p.prevOf(sc, k)
 		var best run
-		bestRank := -1.0
-		for b := range p.Blocks {
+		bestRank, bestB := -1.0, -1
+		for _, b := range order {
+			if bestRank >= 0 && pu[b]*(1+1e-3) < bestRank {
+				break
+			}
 			d := &p.bd[b]
 			planned := sc.planned[b]
 			nmax := p.maxFrames(b, planned)
 			if nmax <= 0 {
+				continue
+			}
+			// Every start tried below lies within reach of t.
+			if p.ivNext(b, t) > t+reach {
 				continue
 			}
 			lo, hi, ok := p.cadenceRange(sc, b, k, t)
@@ -534,9 +556,9 @@ func (p *Problem) greedy() *sched {
 			if it.r.n < p.minFrames(b, planned) {
 				continue
 			}
-			rank := p.Blocks[b].Priority * p.Urgency[b] * (1 + 1e-3*float64(d.q[p.stepAt(s)]))
-			if rank > bestRank {
-				bestRank, best = rank, it.r
+			rank := pu[b] * (1 + 1e-3*float64(d.q[p.stepAt(s)]))
+			if rank > bestRank || rank == bestRank && b < bestB {
+				bestRank, best, bestB = rank, it.r, b
 			}
 		}
 		if bestRank < 0 {
@@ -547,6 +569,17 @@ func (p *Problem) greedy() *sched {
 		t = p.ceilQ(best.e)
 	}
 	return sc
+}
+
+// setupCeiling bounds every setup (setup's total) from above, plus one
+// quantum of rounding: a slew of 720 deg on axis 1 (more than it travels:
+// a german mount's two pier sides span at most 600 deg with the flip zone
+// within +-30 deg of the meridian) and 360 deg on axis 2, settling, a
+// filter change, focus and acquisition.
+func (p *Problem) setupCeiling() float64 {
+	o := &p.Site.Overheads
+	slew := math.Max(AxisSeconds(720, o.Axis1RateDegS, o.Axis1AccelDegS2), AxisSeconds(360, o.Axis2RateDegS, o.Axis2AccelDegS2))
+	return slew + p.oh.settle + p.oh.filter + p.oh.focus + p.oh.acq + p.quantum
 }
 
 // Greedy returns the baseline plan (see greedy).

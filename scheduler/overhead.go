@@ -2,6 +2,7 @@ package scheduler
 
 import (
 	"math"
+	"sync/atomic"
 	"time"
 
 	"github.com/nightloom/nightloom/constraints"
@@ -99,8 +100,9 @@ func (p *Problem) axes(b int, x float64, side int8, prev bool) (a1, a2 float64) 
 		u1, u2 = p.axesOf(b, i, side, prev)
 		v1, v2 = p.axesOf(b, j, side, prev)
 	} else {
-		k, l := 4*(b*p.n+i)+2*int(side), 4*(b*p.n+j)+2*int(side)
-		u1, u2, v1, v2 = float64(p.ax[k]), float64(p.ax[k+1]), float64(p.ax[l]), float64(p.ax[l+1])
+		row := p.axesRow(b)
+		k, l := 4*i+2*int(side), 4*j+2*int(side)
+		u1, u2, v1, v2 = float64(row[k]), float64(row[k+1]), float64(row[l]), float64(row[l+1])
 	}
 	if f == 0 {
 		return u1, u2
@@ -164,19 +166,35 @@ func mountAxes(site *constraints.Site, ha, dec, az, alt float64, side int8, prev
 	return ha - 90, 180 - dec
 }
 
-// precomputeAxes fills p.ax: for every block and step the axes on both
-// sides (a1 east, a2 east, a1 west, a2 west), as float32.
+// axesTable holds the mount axes of every block at every step (a1 east,
+// a2 east, a1 west, a2 west, as float32), a block's row made on its first
+// use: most blocks of a large night are never slewed to or from. Rows are
+// published atomically (two goroutines may compute the same row; both get
+// the same values), so the solver's concurrent starts may share it, and
+// so may the copies of a Problem (WithState: the same tracks).
+type axesTable struct {
+	rows []atomic.Pointer[[]float32]
+}
+
+// precomputeAxes makes p.ax, empty.
 func (p *Problem) precomputeAxes() {
-	p.ax = make([]float32, 4*len(p.Blocks)*p.n)
-	for b := range p.Blocks {
-		for i := 0; i < p.n; i++ {
-			k := 4 * (b*p.n + i)
-			a1, a2 := p.axesOf(b, i, sideEast, false)
-			p.ax[k], p.ax[k+1] = float32(a1), float32(a2)
-			a1, a2 = p.axesOf(b, i, sideWest, false)
-			p.ax[k+2], p.ax[k+3] = float32(a1), float32(a2)
-		}
+	p.ax = &axesTable{rows: make([]atomic.Pointer[[]float32], len(p.Blocks))}
+}
+
+// axesRow is block b's row of p.ax.
+func (p *Problem) axesRow(b int) []float32 {
+	if r := p.ax.rows[b].Load(); r != nil {
+		return *r
 	}
+	row := make([]float32, 4*p.n)
+	for i := 0; i < p.n; i++ {
+		a1, a2 := p.axesOf(b, i, sideEast, false)
+		row[4*i], row[4*i+1] = float32(a1), float32(a2)
+		a1, a2 = p.axesOf(b, i, sideWest, false)
+		row[4*i+2], row[4*i+3] = float32(a1), float32(a2)
+	}
+	p.ax.rows[b].CompareAndSwap(nil, &row)
+	return *p.ax.rows[b].Load()
 }
 
 // slewTo is the time (s) to move from the previous pointing, where it is

@@ -68,7 +68,7 @@ type Problem struct {
 	bd            []bdat
 	anchor        anchor
 	execStart     []float64       // start of each block's last executed run tonight (NaN if none)
-	ax            []float32       // mount axes per block and step (precomputeAxes)
+	ax            *axesTable      // mount axes per block and step, made on use
 	keep          map[runKey]bool // replanning: runs of the old plan, not to be extended
 	flip0, flip1  float64         // flip zone, radians of hour angle
 	oh            ohSec
@@ -103,8 +103,11 @@ type bdat struct {
 	// bad and good describe the steps for the bounds: a step is good when
 	// an interval overlaps it. bad[i] is the first step at or after i that
 	// is not good, good[i] the first good one (n if none).
-	bad        []int32
-	good       []int32
+	bad  []int32
+	good []int32
+	// qc[c] is the best quality of steps c*qChunk .. (c+1)*qChunk-1
+	// (upper bounds in repair's lazy evaluation).
+	qc         []float32
 	every, tol float64 // cadence, seconds (every = 0: none)
 	point      float64 // value of one cadence point (run), 0 without cadence
 	avoidFlip  bool    // the block avoids the flip zone: no flip inside a run
@@ -544,6 +547,10 @@ func (p *Problem) blockIntervals(b int) {
 			}
 		}
 	}
+	d.qc = make([]float32, (p.n+qChunk-1)/qChunk)
+	for s, q := range d.q {
+		d.qc[s/qChunk] = max(d.qc[s/qChunk], q)
+	}
 	d.peak = 0
 	for s := range d.q {
 		if goodStep[s] && (!goodStep[d.peak] || d.q[s] > d.q[d.peak]) {
@@ -551,6 +558,9 @@ func (p *Problem) blockIntervals(b int) {
 		}
 	}
 }
+
+// qChunk is the number of grid steps per entry of bdat.qc.
+const qChunk = 8
 
 // subtractClosures appends [a, b) less the merged closures cl to xs.
 func subtractClosures(xs []float64, a, b float64, cl []float64) []float64 {

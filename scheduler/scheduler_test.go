@@ -997,8 +997,11 @@ func TestCancelAndStopReason(t *testing.T) {
 
 // A search with no iteration or time limit to speak of stops when it has
 // converged (Plan.Stopped = StopConverged), deterministically for a seed,
-// and is as good as the default-length search it outlasts; a budget that
-// the pace shows to be binding clocks the annealing by time.
+// and is as good as the default-length search it outlasts: over twelve
+// seeds on average, and never more than 1 % below it for any one seed. (One
+// seed alone is a coin flip: the search with the eager repair of commit
+// d94b904 was below its 300-iteration run for 7 of these 12 seeds, up to
+// 1.7 % below, and 0.06 % above it on average.)
 func TestSearchConverges(t *testing.T) {
 	p := testProblem(t, GenSpec{Name: "cv", Seed: 5, Site: 0, Night: "2027-02-10", Blocks: 30, StepS: 60, Load: 2},
 		Options{Seed: 1, Iterations: 1 << 20, Budget: -1, ConvergeIterations: 300})
@@ -1010,12 +1013,28 @@ func TestSearchConverges(t *testing.T) {
 		t.Errorf("not deterministic: %d iterations %v, then %d %v", a.Iterations, a.Objective.Value, b.Iterations, b.Objective.Value)
 	}
 	mustValidate(t, "converged", a, p)
-	q := *p
-	q.Options.Iterations = 300
-	if short := Solve(&q); a.Objective.Value < short.Objective.Value*(1-1e-9) {
-		t.Errorf("converged search %v below a 300-iteration one %v", a.Objective.Value, short.Objective.Value)
+	const seeds = 12
+	sumConv, sumShort := 0.0, 0.0
+	for seed := uint64(1); seed <= seeds; seed++ {
+		q := *p
+		q.Options.Seed = seed
+		conv := Solve(&q)
+		if conv.Stopped != StopConverged {
+			t.Errorf("seed %d: stopped %q after %d iterations, want %q", seed, conv.Stopped, conv.Iterations, StopConverged)
+		}
+		q.Options.Iterations = 300
+		short := Solve(&q)
+		if conv.Objective.Value < 0.99*short.Objective.Value {
+			t.Errorf("seed %d: converged search %v more than 1 %% below a 300-iteration one %v", seed, conv.Objective.Value, short.Objective.Value)
+		}
+		sumConv += conv.Objective.Value
+		sumShort += short.Objective.Value
 	}
-	t.Logf("converged after %d iterations, objective %.0f", a.Iterations, a.Objective.Value)
+	if sumConv < sumShort*(1-1e-9) {
+		t.Errorf("converged searches average %v, below the 300-iteration ones' %v", sumConv/seeds, sumShort/seeds)
+	}
+	t.Logf("converged after %d iterations, objective %.0f; over %d seeds %.0f against %.0f", a.Iterations, a.Objective.Value,
+		seeds, sumConv/seeds, sumShort/seeds)
 }
 
 // Cadence points are valued above their exposure (Options.CadenceWeight):
