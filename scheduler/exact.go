@@ -3,6 +3,7 @@ package scheduler
 import (
 	"fmt"
 	"math"
+	"os"
 	"sort"
 	"time"
 )
@@ -102,7 +103,9 @@ func ExactWithStats(p *Problem, lim ExactLimits) (*Plan, ExactStats, error) {
 	if !ok {
 		return nil, x.st, fmt.Errorf("%w: the executed runs leave an incomplete short run", ErrInput)
 	}
+	x.debug = os.Getenv("EXDEBUG") != ""
 	x.st.RootBound = x.bound(x.unkeyVec(root))
+	x.debug = false
 	x.st.Passes = 1
 	need := inc - 1e-9*math.Max(1, math.Abs(inc))
 	x.value(root, need)
@@ -171,8 +174,33 @@ type exact struct {
 	lim      ExactLimits
 	st       ExactStats
 	overflow bool
+	debug    bool
 	items    []knapItem
 	items2   []knapItem
+	capS     []float64
+	// The Lagrangian bounds (lagrange): per active block and step the
+	// value per second a frame there can earn (-1 where the block is not
+	// observable), per quantum the open seconds left in its step, and the
+	// bounds' multipliers and suffix sums.
+	dens     []float64
+	openRest []float64
+	// vtab[a][j*(kmax_a+1)+k] is the most block a's best k frames' worth
+	// of seconds from step j on can earn (dens over open seconds), with
+	// kmax_a = vk[a].
+	vtab [][]float64
+	vk   []int
+
+	lags []lagBound
+}
+
+// lagBound is one Lagrangian bound of the time-indexed relaxation: the
+// multiplier (value per second) of each active block's frame budget and,
+// per step, the open seconds times the best reduced density, summed from
+// the step to the end of the night.
+type lagBound struct {
+	lam []float64
+	m   []float64 // per step: max over blocks of (dens - lam)+
+	suf []float64 // per step j: sum over steps from j of open seconds * m
 }
 
 // Key layout: quantum (16 bits), last active block + 1 (6), side (1),
@@ -235,7 +263,9 @@ func newExact(p *Problem, lim ExactLimits) (*exact, error) {
 	}
 	x.runs = make([][]exactRun, A*x.qN)
 	x.runsDone = make([]bool, A*x.qN)
+	x.capS = make([]float64, A)
 	x.tables()
+	x.lagrange()
 	return x, nil
 }
 
@@ -277,9 +307,17 @@ func (x *exact) tables() {
 					n += int(math.Floor(l/d.frame + 1e-9))
 				}
 			}
+			fo := p.ivNext(b, t)
+			if d.every > 0 && n > 0 {
+				// A cadence block's runs start at least Every - Tolerance
+				// apart, from its first observable instant to the end of its
+				// last interval: so many runs of at most MaxRun frames.
+				runs := int(math.Floor((x.lastObs[a]-fo)/(d.every-d.tol)+1e-9)) + 1
+				n = min(n, runs*d.maxRun)
+			}
 			x.maxF[a*Q+q] = int32(n)
 			x.qmax[a*Q+q] = best[min(p.n, int(math.Floor(t/p.step)))]
-			x.firstObs[a*Q+q] = p.ivNext(b, t)
+			x.firstObs[a*Q+q] = fo
 		}
 	}
 	// The union of the active blocks' intervals.
@@ -498,13 +536,22 @@ type choice struct {
 	a    int
 	qs   int
 	n    int
-	next uint64
+	// The next state: quantum, last block, side, period and canonical
+	// vector (valid during the callback only).
+	nq, nl, nperiod int
+	nside           int8
+	vec             []byte
+}
+
+// next is the key of a choice's next state.
+func (x *exact) next(c *choice) uint64 {
+	return x.key(c.nq, c.nl, c.nside, c.nperiod, x.intern(c.vec))
 }
 
 // options calls f with every option of a state (key k) whose next state
 // is alive, and its immediate value; it returns early when f returns
 // false.
-func (x *exact) options(k uint64, f func(c choice, imm float64) bool) {
+func (x *exact) options(k uint64, f func(c *choice, imm float64) bool) {
 	p := x.p
 	q, l, side, period, vid := x.unkey(k)
 	vec := x.vecs[vid]
@@ -512,8 +559,7 @@ func (x *exact) options(k uint64, f func(c choice, imm float64) bool) {
 	if q+1 <= x.qN {
 		copy(buf, vec)
 		if x.canon(buf, q+1) {
-			nk := x.key(q+1, l, side, x.stalePeriod(q+1, period), x.intern(buf))
-			if !f(choice{wait: true, next: nk}, 0) {
+			if !f(&choice{wait: true, nq: q + 1, nl: l, nside: side, nperiod: x.stalePeriod(q+1, period), vec: buf}, 0) {
 				return
 			}
 		}
@@ -587,8 +633,8 @@ func (x *exact) options(k uint64, f func(c choice, imm float64) bool) {
 				if !x.canon(buf, qe) {
 					continue
 				}
-				nk := x.key(qe, a, er.side, x.stalePeriod(qe, p.focusPeriod(s)), x.intern(buf))
-				if !f(choice{a: a, qs: qs, n: n, next: nk}, imm) {
+				c := choice{a: a, qs: qs, n: n, nq: qe, nl: a, nside: er.side, nperiod: x.stalePeriod(qe, p.focusPeriod(s)), vec: buf}
+				if !f(&c, imm) {
 					return
 				}
 			}
@@ -637,9 +683,11 @@ func (x *exact) bound(q int, v []byte) float64 {
 	Q := x.qN + 1
 	x.items = x.items[:0]
 	minSetup := p.oh.settle + p.oh.acq
-	points, pointSetup := 0.0, 0.0
+	points, pointSetup, bonus := 0.0, 0.0, 0.0
 	frames2 := x.items2[:0]
+	capS := x.capS[:len(x.active)]
 	for a, b := range x.active {
+		capS[a] = 0
 		left, _ := x.left(v, a)
 		m := int(x.maxF[a*Q+q])
 		if left == 0 || m == 0 {
@@ -647,24 +695,24 @@ func (x *exact) bound(q int, v []byte) float64 {
 		}
 		d := &p.bd[b]
 		nf := min(left, m)
+		if d.every > 0 {
+			// A series: its points and frames are bounded together.
+			points += x.slotTerm(a, q, getU16(v, x.cadOff[a]), nf)
+			pointSetup += float64((nf-1)/d.minRun+1) * minSetup
+			if left <= m && d.rem > 0 {
+				points += d.bonus
+			}
+			continue
+		}
+		capS[a] = float64(nf) * d.frame
 		per := d.w * x.qmax[a*Q+q]
 		if left <= m && d.rem > 0 {
 			per += d.bonus / float64(left)
+			bonus += d.bonus
 		}
 		x.items = append(x.items, knapItem{dens: per / d.frame, capS: float64(nf) * d.frame})
 		share := 0.0
-		if d.every > 0 {
-			// Runs: at most one per slot from the first observable
-			// instant, at least MinRun frames each but one.
-			runs := (nf-1)/d.minRun + 1
-			if fo := x.firstObs[a*Q+q]; fo < x.lastObs[a] {
-				runs = min(runs, int(math.Floor((x.lastObs[a]-fo)/(d.every-d.tol)+1e-9))+1)
-			} else {
-				runs = 0
-			}
-			points += float64(runs) * d.point
-			pointSetup += float64(runs) * minSetup
-		} else if d.maxRun < math.MaxInt32 {
+		if d.maxRun < math.MaxInt32 {
 			share = minSetup / float64(min(d.maxRun, nf))
 		}
 		cost := d.frame + share
@@ -677,8 +725,278 @@ func (x *exact) bound(q int, v []byte) float64 {
 		b2 = b1
 	}
 	x.items2 = frames2
-	ub := points + math.Min(b1, b2)
+	fr := math.Min(b1, b2)
+	if len(x.lags) > 0 {
+		j := min(p.n-1, int(math.Floor(float64(q)*p.quantum/p.step)))
+		open := x.openRest[q]
+		for k := range x.lags {
+			lb := &x.lags[k]
+			v := lb.m[j]*open + lb.suf[j+1] + bonus
+			for a := range x.active {
+				if capS[a] > 0 {
+					v += lb.lam[a] * capS[a]
+				}
+			}
+			fr = math.Min(fr, v)
+		}
+	}
+	if x.vtab != nil {
+		j := min(p.n-1, int(math.Floor(float64(q)*p.quantum/p.step)))
+		v := bonus
+		for a := range x.active {
+			if capS[a] > 0 {
+				K := x.vk[a]
+				k := min(K, int(math.Round(capS[a]/p.bd[x.active[a]].frame)))
+				v += x.vtab[a][j*(K+1)+k]
+			}
+		}
+		fr = math.Min(fr, v)
+	}
+	ub := points + fr
+	if x.debug {
+		fmt.Printf("bound q %d: points %.0f bonus %.0f kn1 %.0f kn2 %.0f fr %.0f\n", q, points, bonus, b1, b2, fr)
+		for a := range x.active {
+			left, _ := x.left(v, a)
+			fmt.Printf("  block %d left %d M %d\n", a, left, x.maxF[a*Q+q])
+		}
+		for k := range x.lags {
+			lb := &x.lags[k]
+			j := min(p.n-1, int(math.Floor(float64(q)*p.quantum/p.step)))
+			v := lb.m[j]*x.openRest[q] + lb.suf[j+1] + bonus
+			for a := range x.active {
+				v += lb.lam[a] * capS[a]
+			}
+			fmt.Printf("  lag %d: %.0f lam %v\n", k, v, lb.lam)
+		}
+	}
 	return ub*(1+1e-9) + 1e-9
+}
+
+// slotTerm bounds what the runs of cadence block a can still earn from
+// quantum q (last start code c): consecutive runs start at least Every -
+// Tolerance apart, the next one not before the first slot of the last
+// start that ends at or after q (or the first observable instant), all
+// before the end of the block's last interval, at most as many as its
+// frames left allow (one run may be short); the i-th is worth at most its
+// point plus min(MaxRun, frames) frames at the best quality from its
+// earliest start on.
+func (x *exact) slotTerm(a, q, c, nf int) float64 {
+	p := x.p
+	b := x.active[a]
+	d := &p.bd[b]
+	Q := x.qN + 1
+	tq := float64(q) * p.quantum
+	s1 := x.firstObs[a*Q+q]
+	if c != 0 {
+		last := p.execStart[b]
+		if c >= 2 {
+			last = float64(c-2) * p.quantum
+		}
+		m := math.Max(1, math.Ceil((tq-d.tol-last)/d.every-1e-9))
+		s1 = math.Max(s1, last+m*d.every-d.tol)
+	}
+	f := float64(min(d.maxRun, nf))
+	sum := 0.0
+	for i := 0; i < (nf-1)/d.minRun+1; i++ {
+		t := s1 + float64(i)*(d.every-d.tol)
+		if t >= x.lastObs[a] || t >= p.tEnd {
+			break
+		}
+		qq := min(x.qN, int(math.Floor(t/p.quantum+1e-9)))
+		sum += d.point + f*d.w*x.qmax[a*Q+qq]
+	}
+	return sum
+}
+
+// lagrange builds the Lagrangian bounds of the time-indexed relaxation:
+// every second of the open night holds at most one frame, a frame of
+// block a covering step j earns at most dens[a][j] per second (its
+// weight at the best quality within a frame of step j, over its length),
+// and block a's frames take at most capS_a seconds; dualising the
+// budgets with multipliers lam >= 0,
+//
+//	value <= sum over steps j of open_j * max_a (dens[a][j] - lam_a)+ + sum_a lam_a capS_a
+//
+// for any lam (weak duality; the relaxation is the time-indexed
+// formulation of Sousa & Wolsey 1992, Mathematical Programming 54, 353).
+// The multipliers are fitted by subgradient descent (Held, Wolfe &
+// Crowder 1974, Mathematical Programming 6, 62) at the plan's start and
+// at later anchors with the frame budgets of the start; lam = 0 is kept
+// as well. Each state takes the smallest of the bounds with its own
+// budgets.
+func (x *exact) lagrange() {
+	p := x.p
+	A, n := len(x.active), p.n
+	if A == 0 {
+		return
+	}
+	x.dens = make([]float64, A*n)
+	for a, b := range x.active {
+		d := &p.bd[b]
+		r := int(math.Ceil(d.frame / p.step))
+		for j := 0; j < n; j++ {
+			x.dens[a*n+j] = -1
+			if d.bad[j] == int32(j) {
+				continue // not observable in step j
+			}
+			qm := 0.0
+			for i := max(0, j-r); i <= min(n-1, j+r); i++ {
+				if d.bad[i] != int32(i) && float64(d.q[i]) > qm {
+					qm = float64(d.q[i])
+				}
+			}
+			x.dens[a*n+j] = d.w * qm / d.frame
+		}
+	}
+	open := func(a, b float64) float64 { // open seconds of [a, b)
+		if b <= a {
+			return 0
+		}
+		o := b - a
+		for i := 0; i+1 < len(p.cl); i += 2 {
+			o -= math.Max(0, math.Min(b, p.cl[i+1])-math.Max(a, p.cl[i]))
+		}
+		return o
+	}
+	capJ := make([]float64, n)
+	for j := range capJ {
+		capJ[j] = open(float64(j)*p.step, math.Min(p.tEnd, float64(j+1)*p.step))
+	}
+	x.openRest = make([]float64, x.qN+1)
+	for q := range x.openRest {
+		t := float64(q) * p.quantum
+		j := min(n-1, int(math.Floor(t/p.step)))
+		x.openRest[q] = open(t, math.Min(p.tEnd, float64(j+1)*p.step))
+	}
+	mk := func(lam []float64) lagBound {
+		lb := lagBound{lam: lam, m: make([]float64, n), suf: make([]float64, n+1)}
+		for j := 0; j < n; j++ {
+			for a := 0; a < A; a++ {
+				if d := x.dens[a*n+j]; d >= 0 && d-lam[a] > lb.m[j] {
+					lb.m[j] = d - lam[a]
+				}
+			}
+		}
+		for j := n - 1; j >= 0; j-- {
+			lb.suf[j] = lb.suf[j+1] + capJ[j]*lb.m[j]
+		}
+		return lb
+	}
+	x.blockTables(capJ)
+	x.lags = append(x.lags, mk(make([]float64, A)))
+	Q := x.qN + 1
+	for q := x.q0; q < x.qN; q += int(math.Ceil(5400 / p.quantum)) {
+		c := make([]float64, A)
+		for a, b := range x.active {
+			c[a] = float64(min(p.bd[b].rem, int(x.maxF[a*Q+q]))) * p.bd[b].frame
+		}
+		x.lags = append(x.lags, mk(x.subgradient(q, c, capJ)))
+	}
+}
+
+// blockTables fills vtab: for every active block and step, the value of
+// its best k frames' worth of seconds of the rest of the night, each
+// second at the block's density there (the relaxation of lagrange for
+// one block alone, exact for it: the best seconds first).
+func (x *exact) blockTables(capJ []float64) {
+	p := x.p
+	n := p.n
+	x.vtab = make([][]float64, len(x.active))
+	x.vk = make([]int, len(x.active))
+	type piece struct{ dens, capS float64 }
+	for a, b := range x.active {
+		d := &p.bd[b]
+		K := min(d.rem, int(x.maxF[a*(x.qN+1)]))
+		x.vk[a] = K
+		tab := make([]float64, (n+1)*(K+1))
+		var sorted []piece // steps from j on, best first
+		for j := n - 1; j >= 0; j-- {
+			if dj := x.dens[a*n+j]; dj >= 0 && capJ[j] > 0 {
+				i := sort.Search(len(sorted), func(i int) bool { return sorted[i].dens < dj })
+				sorted = append(sorted, piece{})
+				copy(sorted[i+1:], sorted[i:])
+				sorted[i] = piece{dj, capJ[j]}
+			}
+			row := tab[j*(K+1) : (j+1)*(K+1)]
+			v, used, k := 0.0, 0.0, 1
+			for i := 0; i < len(sorted) && k <= K; i++ {
+				c := sorted[i].capS
+				for c > 0 && k <= K {
+					want := float64(k)*d.frame - used
+					t := math.Min(c, want)
+					v += t * sorted[i].dens
+					used += t
+					c -= t
+					if used >= float64(k)*d.frame-1e-9 {
+						row[k] = v
+						k++
+					}
+				}
+			}
+			for ; k <= K; k++ {
+				row[k] = v
+			}
+		}
+		x.vtab[a] = tab
+	}
+}
+
+// subgradient fits multipliers that make the Lagrangian bound from
+// quantum q small for the frame budgets c (seconds).
+func (x *exact) subgradient(q int, c, capJ []float64) []float64 {
+	p := x.p
+	A, n := len(x.active), p.n
+	j0 := min(n-1, int(math.Floor(float64(q)*p.quantum/p.step)))
+	scale := 0.0
+	for _, d := range x.dens {
+		scale = math.Max(scale, d)
+	}
+	lam := make([]float64, A)
+	best := append([]float64(nil), lam...)
+	bestL := math.Inf(1)
+	g := make([]float64, A)
+	for it := 0; it < 200; it++ {
+		L := 0.0
+		copy(g, c)
+		for a := range lam {
+			L += lam[a] * c[a]
+		}
+		for j := j0; j < n; j++ {
+			cj := capJ[j]
+			if j == j0 {
+				cj = x.openRest[q]
+			}
+			bv, ba := 0.0, -1
+			for a := 0; a < A; a++ {
+				if d := x.dens[a*n+j]; d >= 0 && d-lam[a] > bv {
+					bv, ba = d-lam[a], a
+				}
+			}
+			L += cj * bv
+			if ba >= 0 {
+				g[ba] -= cj
+			}
+		}
+		if L < bestL {
+			bestL = L
+			copy(best, lam)
+		}
+		norm := 0.0
+		for a := range g {
+			if g[a] < 0 || lam[a] > 0 {
+				norm += g[a] * g[a]
+			}
+		}
+		if norm == 0 {
+			break
+		}
+		norm = math.Sqrt(norm)
+		step := scale * 0.3 / (1 + float64(it)/10)
+		for a := range lam {
+			lam[a] = math.Max(0, lam[a]-step*g[a]/norm)
+		}
+	}
+	return best
 }
 
 // fillKnapsack is the fractional knapsack: items by value per second,
@@ -705,6 +1023,12 @@ func fillKnapsack(items []knapItem, capacity float64) float64 {
 // state's value when that exceeds need, and otherwise an upper bound on
 // it that is at most need.
 func (x *exact) value(k uint64, need float64) float64 {
+	q, vec := x.unkeyVec(k)
+	return x.valueB(k, need, x.bound(q, vec))
+}
+
+// valueB is value with the state's bound ub computed.
+func (x *exact) valueB(k uint64, need, ub float64) float64 {
 	x.st.Visited++
 	if e, ok := x.memo[k]; ok && (e.exact || e.v <= need) {
 		return e.v
@@ -712,8 +1036,7 @@ func (x *exact) value(k uint64, need float64) float64 {
 	if x.overflow {
 		return 0
 	}
-	q, vec := x.unkeyVec(k)
-	ub := x.bound(q, vec)
+	_, vec := x.unkeyVec(k)
 	if e, ok := x.memo[k]; ok {
 		ub = math.Min(ub, e.v)
 	}
@@ -729,12 +1052,53 @@ func (x *exact) value(k uint64, need float64) float64 {
 	if x.committed(vec) {
 		best = math.Inf(-1) // a short run was taken: stopping is not allowed
 	}
-	x.options(k, func(c choice, imm float64) bool {
-		if v := imm + x.value(c.next, math.Max(need, best)-imm); v > best {
+	// The children's bounds first: most are cut before their vector is
+	// interned; the others are searched best bound first, so that the
+	// best value found early cuts their siblings.
+	type kid struct {
+		c       choice
+		imm, ub float64
+	}
+	var kids []kid
+	var arena []byte
+	x.options(k, func(c *choice, imm float64) bool {
+		ub := x.bound(c.nq, c.vec)
+		if imm+ub <= math.Max(need, best) {
+			x.st.Pruned++
+			x.st.Visited++
+			if imm+ub > best {
+				best = imm + ub // an upper bound, at most need
+			}
+			return true
+		}
+		cc := *c
+		off := len(arena)
+		arena = append(arena, c.vec...)
+		cc.vec = arena[off:len(arena):len(arena)]
+		kids = append(kids, kid{cc, imm, ub})
+		return true
+	})
+	// The arena may have moved while growing: re-slice the vectors.
+	off := 0
+	for i := range kids {
+		kids[i].c.vec = arena[off : off+x.vlen]
+		off += x.vlen
+	}
+	sort.Slice(kids, func(i, j int) bool { return kids[i].imm+kids[i].ub > kids[j].imm+kids[j].ub })
+	for i := range kids {
+		kd := &kids[i]
+		th := math.Max(need, best) - kd.imm
+		if kd.ub <= th {
+			x.st.Pruned++
+			continue
+		}
+		if v := kd.imm + x.valueB(x.next(&kd.c), th, kd.ub); v > best {
 			best = v
 		}
-		return !x.overflow
-	})
+		if x.overflow {
+			break
+		}
+	}
 	x.memo[k] = memoEntry{v: best, exact: best > need || math.IsInf(best, -1)}
 	return best
 }
@@ -749,10 +1113,12 @@ func (x *exact) reconstruct(k uint64) *sched {
 			return sc
 		}
 		var pick *choice
-		x.options(k, func(c choice, imm float64) bool {
-			if e, ok := x.memo[c.next]; ok && e.exact && math.Abs(imm+e.v-v) <= 1e-9*math.Max(1, math.Abs(v)) {
-				cc := c
-				pick = &cc
+		var nk uint64
+		x.options(k, func(c *choice, imm float64) bool {
+			k2 := x.next(c)
+			if e, ok := x.memo[k2]; ok && e.exact && math.Abs(imm+e.v-v) <= 1e-9*math.Max(1, math.Abs(v)) {
+				cc := *c
+				pick, nk = &cc, k2
 				return false
 			}
 			return true
@@ -767,6 +1133,6 @@ func (x *exact) reconstruct(k uint64) *sched {
 			}
 			p.insert(sc, len(sc.runs), it.r)
 		}
-		k = pick.next
+		k = nk
 	}
 }
