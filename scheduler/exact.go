@@ -3,7 +3,6 @@ package scheduler
 import (
 	"fmt"
 	"math"
-	"os"
 	"sort"
 	"time"
 )
@@ -103,9 +102,7 @@ func ExactWithStats(p *Problem, lim ExactLimits) (*Plan, ExactStats, error) {
 	if !ok {
 		return nil, x.st, fmt.Errorf("%w: the executed runs leave an incomplete short run", ErrInput)
 	}
-	x.debug = os.Getenv("EXDEBUG") != ""
 	x.st.RootBound = x.bound(x.unkeyVec(root))
-	x.debug = false
 	x.st.Passes = 1
 	need := inc - 1e-9*math.Max(1, math.Abs(inc))
 	x.value(root, need)
@@ -174,9 +171,10 @@ type exact struct {
 	lim      ExactLimits
 	st       ExactStats
 	overflow bool
-	debug    bool
 	items    []knapItem
 	items2   []knapItem
+	items3   []knapItem
+	runItems []knapItem // cadence runs of one bound: value in dens until priced
 	capS     []float64
 	// The Lagrangian bounds (lagrange): per active block and step the
 	// value per second a frame there can earn (-1 where the block is not
@@ -683,7 +681,8 @@ func (x *exact) bound(q int, v []byte) float64 {
 	Q := x.qN + 1
 	x.items = x.items[:0]
 	minSetup := p.oh.settle + p.oh.acq
-	points, pointSetup, bonus := 0.0, 0.0, 0.0
+	points, pointSetup, bonus, cadBonus, discount := 0.0, 0.0, 0.0, 0.0, 0.0
+	x.runItems = x.runItems[:0]
 	frames2 := x.items2[:0]
 	capS := x.capS[:len(x.active)]
 	for a, b := range x.active {
@@ -696,11 +695,20 @@ func (x *exact) bound(q int, v []byte) float64 {
 		d := &p.bd[b]
 		nf := min(left, m)
 		if d.every > 0 {
-			// A series: its points and frames are bounded together.
+			// A series: its points and frames are bounded together, run
+			// by run; each run takes at least a shortest setup and MinRun
+			// frames (one short run per block: its saving is added to the
+			// capacity of the third knapsack).
+			n0 := len(x.runItems)
 			points += x.slotTerm(a, q, getU16(v, x.cadOff[a]), nf)
-			pointSetup += float64((nf-1)/d.minRun+1) * minSetup
+			pointSetup += float64(len(x.runItems)-n0) * minSetup
+			cost := minSetup + float64(min(d.minRun, nf))*d.frame
+			for i := n0; i < len(x.runItems); i++ {
+				x.runItems[i] = knapItem{dens: x.runItems[i].dens / cost, capS: cost}
+			}
+			discount += float64(min(d.minRun, nf)-1) * d.frame
 			if left <= m && d.rem > 0 {
-				points += d.bonus
+				cadBonus += d.bonus
 			}
 			continue
 		}
@@ -752,23 +760,12 @@ func (x *exact) bound(q int, v []byte) float64 {
 		}
 		fr = math.Min(fr, v)
 	}
-	ub := points + fr
-	if x.debug {
-		fmt.Printf("bound q %d: points %.0f bonus %.0f kn1 %.0f kn2 %.0f fr %.0f\n", q, points, bonus, b1, b2, fr)
-		for a := range x.active {
-			left, _ := x.left(v, a)
-			fmt.Printf("  block %d left %d M %d\n", a, left, x.maxF[a*Q+q])
-		}
-		for k := range x.lags {
-			lb := &x.lags[k]
-			j := min(p.n-1, int(math.Floor(float64(q)*p.quantum/p.step)))
-			v := lb.m[j]*x.openRest[q] + lb.suf[j+1] + bonus
-			for a := range x.active {
-				v += lb.lam[a] * capS[a]
-			}
-			fmt.Printf("  lag %d: %.0f lam %v\n", k, v, lb.lam)
-		}
-	}
+	ub := points + cadBonus + fr
+	// The third form: cadence runs and the other frames share the time
+	// left without closures.
+	x.items3 = append(append(x.items3[:0], frames2...), x.runItems...)
+	ub = math.Min(ub, cadBonus+fillKnapsack(x.items3, x.free[q]+discount))
+
 	return ub*(1+1e-9) + 1e-9
 }
 
@@ -803,7 +800,9 @@ func (x *exact) slotTerm(a, q, c, nf int) float64 {
 			break
 		}
 		qq := min(x.qN, int(math.Floor(t/p.quantum+1e-9)))
-		sum += d.point + f*d.w*x.qmax[a*Q+qq]
+		r := d.point + f*d.w*x.qmax[a*Q+qq]
+		sum += r
+		x.runItems = append(x.runItems, knapItem{dens: r})
 	}
 	return sum
 }
