@@ -145,10 +145,24 @@
 //     Options.Seed when the iteration count or convergence (not the time
 //     budget) ends it and the budget does not clock the annealing.
 //   - Exact: dynamic programming over (quantum, last block, pier side,
-//     focus period, frames per block and whether its one short run is
-//     taken) with memoised recursion; exact for the model above (a short
-//     run anywhere commits the plan to completing its block, as Validate
-//     has it), refused for cadence blocks and large state spaces.
+//     focus period, and per block the frames still wanted, whether its one
+//     short run is taken and, for a cadence block, the start of its last
+//     run) with memoised recursion and branch and bound; exact for the
+//     model above with starts on the quantum grid (the setup tabulated for
+//     both focus decisions, a short run anywhere committing the plan to
+//     completing its block as Validate has it, cadence runs only in the
+//     slots of the last one, flips, closures). States are canonical:
+//     frames beyond what a block can still hold count alike, blocks that
+//     can no longer be observed drop out, passed cadence slots and stale
+//     focus periods are forgotten. A state is cut when its admissible
+//     upper bound (the smallest of fractional knapsacks of the frames,
+//     points and bonuses left, Lagrangian bounds of the time-indexed
+//     relaxation after Sousa & Wolsey 1992 with subgradient multipliers,
+//     each block's best seconds alone, and the cadence series' chains of
+//     runs) cannot beat what its caller needs (the incumbent, e.g. Solve's
+//     value via ExactLimits.Incumbent). It proves nights of a few hours at
+//     a 10 s quantum (the exact suite, in seconds); full nights with
+//     several cadence series exceed its state limit.
 //   - Bounds: BoundDP, the Lagrangian dual of the run-indexed time
 //     formulation (Sousa & Wolsey 1992) with the per-block frame budgets
 //     dualised and the inner problem solved by dynamic programming over

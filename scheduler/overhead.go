@@ -270,17 +270,28 @@ func (p *Problem) focusPeriod(x float64) int {
 // setup returns the overheads before a run of block b starting at x after
 // prev (see Overheads).
 func (p *Problem) setup(prev prevState, b int, x float64) setupParts {
+	return p.setupFocus(prev, b, x, p.focusDue(prev, b, x))
+}
+
+// focusDue reports whether a run of block b starting at x after prev
+// begins with a focus run (see Overheads.Focus).
+func (p *Problem) focusDue(prev prevState, b int, x float64) bool {
+	return p.oh.focus > 0 && (!prev.focused || prev.filter != p.bd[b].filter && p.oh.focusOnFilter ||
+		p.oh.focusEvery > 0 && p.focusPeriod(prev.start) != p.focusPeriod(x))
+}
+
+// setupFocus is setup with the focus decision given (focusDue's): the
+// exact solver tabulates the setup for both decisions.
+func (p *Problem) setupFocus(prev prevState, b int, x float64, focus bool) setupParts {
 	d := &p.bd[b]
 	side := p.startSide(b, x)
 	c1, c2 := p.axes(b, x, side, false)
 	a1, a2 := p.axes(prev.block, x, prev.side, true)
 	s := setupParts{slew: p.Site.Overheads.slewSeconds(p.Site.Mount, a1, a2, c1, c2), settle: p.oh.settle, acq: p.oh.acq}
-	changed := prev.filter != d.filter
-	if changed {
+	if prev.filter != d.filter {
 		s.filter = p.oh.filter
 	}
-	if p.oh.focus > 0 && (!prev.focused || changed && p.oh.focusOnFilter ||
-		p.oh.focusEvery > 0 && p.focusPeriod(prev.start) != p.focusPeriod(x)) {
+	if focus {
 		s.doFocus = true
 		s.focus = p.oh.focus
 	}

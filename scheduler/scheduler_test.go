@@ -641,6 +641,53 @@ func TestExactAgainstBruteForceAndBounds(t *testing.T) {
 	}
 	t.Logf("micro: exact = brute force = %.1f (%d runs)", bf, len(x.Assignments))
 
+	// A second micro night with a cadence block (a run every 10 min +- 2
+	// min, a point each) and a periodic focus every 15 min, over 40
+	// minutes: the exact solver against brute force again.
+	in.Site.FocusEveryS, in.Site.FocusS = 900, 75
+	for i := range in.Blocks {
+		ib := &in.Blocks[i]
+		switch i {
+		case 0:
+			ib.ExposureS, ib.FramesWanted, ib.MinRun, ib.MaxRun = 60, 3, 1, 1
+			ib.CadenceEveryS, ib.CadenceTolS, ib.Priority = 600, 120, 6
+		case 1:
+			ib.ExposureS, ib.FramesWanted, ib.MinRun, ib.MaxRun = 300, 2, 2, 2
+		case 2:
+			ib.ExposureS, ib.FramesWanted, ib.MinRun, ib.MaxRun = 240, 2, 1, 2
+		}
+	}
+	p, err = in.Problem(Options{Seed: 1, Iterations: 200, Budget: -1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	q, err = p.WithState([]Closure{{Start: p.Grid.Start, End: start}, {Start: start.Add(40 * time.Minute), End: p.Grid.End()}}, nil, start)
+	if err != nil {
+		t.Fatal(err)
+	}
+	x, err = Exact(q, ExactLimits{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	mustValidate(t, "exact", x, q)
+	bf = bruteForce(q)
+	if math.Abs(bf-x.Objective.Value) > 1e-6*math.Max(1, bf) {
+		t.Fatalf("cadence and focus: exact %v, brute force %v", x.Objective.Value, bf)
+	}
+	points, focus := 0, 0
+	for _, a := range x.Assignments {
+		if a.Block == 0 {
+			points++
+		}
+		if a.Spent.Focus > 0 {
+			focus++
+		}
+	}
+	if points < 2 || focus < 2 {
+		t.Fatalf("cadence and focus micro night: %d points, %d focus runs (want >= 2 each to test them)", points, focus)
+	}
+	t.Logf("cadence and focus: exact = brute force = %.1f (%d runs, %d points, %d focus runs)", bf, len(x.Assignments), points, focus)
+
 	// Seed 101 (13.8 million states once short runs may stand anywhere,
 	// two minutes) is left to the benchmarks.
 	for _, seed := range []uint64{3} {
@@ -688,6 +735,21 @@ func bruteForce(p *Problem) float64 {
 		valid := true
 		for b, n := range short {
 			valid = valid && (n == 0 || n == 1 && sc.planned[b] == p.bd[b].rem)
+		}
+		// Validate's cadence rule: consecutive runs of a series a whole
+		// number of Every apart, within Tolerance (checked by Validate
+		// itself on the best plan below).
+		last := make([]float64, len(p.Blocks))
+		for b := range last {
+			last[b] = math.NaN()
+		}
+		for _, r := range sc.runs {
+			if d := &p.bd[r.b]; d.every > 0 {
+				if !math.IsNaN(last[r.b]) && !onSlot(r.s-last[r.b], d.every, d.tol, 1e-9) {
+					valid = false
+				}
+				last[r.b] = r.s
+			}
 		}
 		if valid {
 			best = math.Max(best, sc.val)
