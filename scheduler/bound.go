@@ -254,18 +254,8 @@ func Bound(p *Problem, slotSteps int) float64 {
 		} else if stall++; stall >= 5 {
 			theta, stall = theta/2, 0
 		}
-		norm := 0.0
-		for i := range g {
-			if lambda[i] > 0 || g[i] < 0 {
-				norm += g[i] * g[i]
-			}
-		}
-		if norm == 0 || theta < 1e-4 {
+		if !polyakStep(lambda, g, theta, 1e-4, L, lb) {
 			break
-		}
-		step := theta * math.Max(L-lb, 1e-6*L) / norm
-		for i := range lambda {
-			lambda[i] = math.Max(0, lambda[i]-step*g[i])
 		}
 	}
 	return best + p.pointsBound()

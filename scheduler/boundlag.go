@@ -73,18 +73,8 @@ func boundDP(p *Problem, lb float64, iters int) float64 {
 		} else if stall++; stall >= 6 {
 			theta, stall = theta/2, 0
 		}
-		norm := 0.0
-		for i := range g {
-			if lam[i] > 0 || g[i] < 0 {
-				norm += g[i] * g[i]
-			}
-		}
-		if norm == 0 || theta < 1e-3 {
+		if !polyakStep(lam, g, theta, 1e-3, L, lb) {
 			break
-		}
-		step := theta * math.Max(L-lb, 1e-6*L) / norm
-		for i := range lam {
-			lam[i] = math.Max(0, lam[i]-step*g[i])
 		}
 	}
 	return best
@@ -340,4 +330,27 @@ func (p *Problem) framesPossible(b int) int {
 		i = j
 	}
 	return n
+}
+
+// polyakStep moves the multipliers lam (kept >= 0) against the
+// subgradient g of the dual value L by the Polyak step theta (L - lb) /
+// |g|^2, lb a lower bound on the optimum (Polyak 1969; Held, Wolfe &
+// Crowder 1974). Components at 0 whose subgradient would push them below
+// do not count in |g|. It reports false, changing nothing, when there is
+// no direction left or theta has fallen below minTheta.
+func polyakStep(lam, g []float64, theta, minTheta, L, lb float64) bool {
+	norm := 0.0
+	for i := range g {
+		if lam[i] > 0 || g[i] < 0 {
+			norm += g[i] * g[i]
+		}
+	}
+	if norm == 0 || theta < minTheta {
+		return false
+	}
+	step := theta * math.Max(L-lb, 1e-6*L) / norm
+	for i := range lam {
+		lam[i] = math.Max(0, lam[i]-step*g[i])
+	}
+	return true
 }

@@ -149,18 +149,8 @@ func subgradient(x *lagDP, lam []float64, lb float64, iters int, theta float64, 
 		} else if stall++; stall >= patience {
 			theta, stall = theta/2, 0
 		}
-		norm := 0.0
-		for i := range g {
-			if cur[i] > 0 || g[i] < 0 {
-				norm += g[i] * g[i]
-			}
-		}
-		if norm == 0 || theta < 1e-3 {
+		if !polyakStep(cur, g, theta, 1e-3, L, lb) {
 			break
-		}
-		step := theta * math.Max(L-lb, 1e-6*L) / norm
-		for i := range cur {
-			cur[i] = math.Max(0, cur[i]-step*g[i])
 		}
 	}
 	return best, it, theta
