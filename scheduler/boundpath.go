@@ -303,6 +303,12 @@ func (y *pathDP) axisEnds(b int, side int8, prev bool, i int) (u1, u2, v1, v2 fl
 		u1, u2, w1, w2 = float64(row[k]), float64(row[k+1]), float64(row[m]), float64(row[m+1])
 	}
 	d := w1 - u1
+	if p.gem() && math.Abs(d) > 180 {
+		// Axis 1 of a german mount jumps inside this step (the hour angle
+		// crosses the side's cut, see Problem.axes): no least distance is
+		// claimed for it (NaN counts as none).
+		return u1, u2, math.NaN(), w2
+	}
 	if d > 180 {
 		d -= 360
 	} else if d < -180 {

@@ -107,7 +107,21 @@ func (p *Problem) axes(b int, x float64, side int8, prev bool) (a1, a2 float64) 
 	if f == 0 {
 		return u1, u2
 	}
-	d := v1 - u1 // across the wrap of axis 1: neighbouring samples are close
+	d := v1 - u1
+	if p.gem() && math.Abs(d) > 180 {
+		// A german mount's axis 1 does not wrap: the samples lie on both
+		// sides of the cut of this pier side (the hour angle crossed the
+		// flip zone's start or end), so the axes are taken from the hour
+		// angle and declination interpolated to x (hour angle is
+		// continuous modulo 360), not from the axes' samples.
+		tr := p.Tracks[b]
+		h0, h1 := float64(tr.HA[i])*ephem.Rad2Deg, float64(tr.HA[j])*ephem.Rad2Deg
+		d0, d1 := float64(tr.Dec[i])*ephem.Rad2Deg, float64(tr.Dec[j])*ephem.Rad2Deg
+		dh := math.Remainder(h1-h0, 360)
+		return mountAxes(p.Site.Site, h0+f*dh, d0+f*(d1-d0), 0, 0, side, prev)
+	}
+	// Across the wrap of axis 1 (azimuth; a fork's hour angle):
+	// neighbouring samples are close.
 	if d > 180 {
 		d -= 360
 	} else if d < -180 {

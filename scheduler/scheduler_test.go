@@ -1282,3 +1282,41 @@ func TestAnnealingEndsCold(t *testing.T) {
 		t.Errorf("iteration-ended search: stopped %q, timed %v", pl.Stopped, timed)
 	}
 }
+
+// TestAxesAcrossTheFlipCut: a german mount's axis 1 does not wrap, so
+// within a grid step in which a target's hour angle crosses a pier side's
+// cut (the flip zone's start on the west side, its end on the east side)
+// the axes come from the interpolated hour angle, as mountAxes maps it,
+// never from the two samples' axes joined across 360 deg (which put the
+// target up to a whole step's worth of hour angle on the wrong side of
+// the cut, and shortened a slew by seconds: a property-test breach).
+func TestAxesAcrossTheFlipCut(t *testing.T) {
+	p := testProblem(t, GenSpec{Name: "cut", Seed: 7, Site: 0, Night: "2027-02-10", Blocks: 40, StepS: 300}, testOpts(1))
+	checked := 0
+	for b := range p.Blocks {
+		tr := p.Tracks[b]
+		for i := 0; i+1 < p.n; i++ {
+			for _, side := range []int8{sideEast, sideWest} {
+				u1, _ := p.axesOf(b, i, side, false)
+				v1, _ := p.axesOf(b, i+1, side, false)
+				if math.IsNaN(u1) || math.IsNaN(v1) || math.Abs(v1-u1) <= 180 {
+					continue
+				}
+				x := (float64(i) + 0.5) * p.step
+				h0, h1 := float64(tr.HA[i])*ephem.Rad2Deg, float64(tr.HA[i+1])*ephem.Rad2Deg
+				ha := h0 + 0.5*math.Remainder(h1-h0, 360)
+				dec := 0.5 * float64(tr.Dec[i]+tr.Dec[i+1]) * ephem.Rad2Deg
+				w1, w2 := mountAxes(p.Site.Site, ha, dec, 0, 0, side, false)
+				a1, a2 := p.axes(b, x, side, false)
+				if math.Abs(a1-w1) > 1e-6 || math.Abs(a2-w2) > 1e-6 {
+					t.Errorf("block %d step %d side %d: axes %.4f %.4f, want %.4f %.4f (samples %.2f, %.2f)", b, i, side, a1, a2, w1, w2, u1, v1)
+				}
+				checked++
+			}
+		}
+	}
+	if checked == 0 {
+		t.Fatal("no step crosses a flip cut: choose another night")
+	}
+	t.Logf("%d steps across a pier side's cut checked", checked)
+}
