@@ -130,7 +130,10 @@
 //     annealing, as in Ropke & Pisinger (2006, Transportation Science 40,
 //     455), with related removal after Shaw (1998, CP-98, LNCS 1520,
 //     417). Every new best solution and the final one are polished by
-//     local search (shift a run within its slack, swap adjacent runs).
+//     local search (shift a run within its slack, swap adjacent runs);
+//     the final one also by push moves (a run later and/or longer, the
+//     runs after it moved as far as that needs), which trade one run's
+//     loss for another's gain.
 //     The annealing cools in three cycles; its clock is the iteration
 //     count (a cycle is a third of Options.Iterations, at most
 //     Options.ConvergeIterations), or, when the pace of the first 32

@@ -36,9 +36,9 @@ func Example() {
 	}
 	// Output:
 	// 10 runs, 4 blocks completed, 44% better than greedy
-	// ex-0008 02:09-03:36 UTC, 17 frames
-	// ex-0008 03:39-04:45 UTC, 13 frames
-	// ex-0002 04:48-05:29 UTC, 8 frames
+	// ex-0008 02:20-03:47 UTC, 17 frames
+	// ex-0008 03:50-04:56 UTC, 13 frames
+	// ex-0002 04:58-05:39 UTC, 8 frames
 	// ex-0001: lost to higher-value blocks
 	// ex-0005: never observable
 }

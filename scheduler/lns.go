@@ -270,6 +270,9 @@ func (p *Problem) solve(start *sched, keepBonus float64, keep ...map[runKey]bool
 	}
 	if stop != StopCancelled {
 		p.polish(best, km, keepBonus)
+		if p.pushRuns(best, keepCost(km, keepBonus)) {
+			p.polish(best, km, keepBonus)
+		}
 	}
 	p.recompute(best)
 	return best, it, stop
