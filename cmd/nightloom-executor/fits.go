@@ -59,7 +59,12 @@ func (c card) format() (string, error) {
 		if math.IsNaN(x) || math.IsInf(x, 0) {
 			return "", fmt.Errorf("fits: %s: value %v is not a finite number", c.Key, x)
 		}
-		s := strconv.FormatFloat(x, 'G', 15, 64)
+		// The shortest text that reads back as the same float64 when it
+		// fits the fixed-format field (20 characters), else 15 digits.
+		s := strconv.FormatFloat(x, 'G', -1, 64)
+		if len(s) > 20 {
+			s = strconv.FormatFloat(x, 'G', 15, 64)
+		}
 		if !strings.ContainsAny(s, ".E") {
 			s += "."
 		}

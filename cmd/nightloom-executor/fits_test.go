@@ -6,6 +6,7 @@ import (
 	"os"
 	"os/exec"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"testing"
 
@@ -38,6 +39,18 @@ func TestCardFormat(t *testing.T) {
 		}
 		if strings.TrimRight(got, " ") != tc.want {
 			t.Errorf("card\n got %q\nwant %q", strings.TrimRight(got, " "), tc.want)
+		}
+	}
+	// Floats read back as the same float64 (a longitude computed from the
+	// clock, -127.24999999999999, once came back as -127.25 with 15 digits).
+	for _, x := range []float64{(0.5 - (8 + 59.0/60)) * 15, 0.1 + 0.2, -1.0 / 3, 6.02214076e23, -2.5e-300} {
+		got, err := card{"X", x, ""}.format()
+		if err != nil {
+			t.Fatal(err)
+		}
+		v, err := strconv.ParseFloat(strings.TrimSpace(got[10:30]), 64)
+		if err != nil || v != x {
+			t.Errorf("%v written as %q, reads back as %v (%v)", x, got[10:30], v, err)
 		}
 	}
 	for _, bad := range []card{{"lower", 1, ""}, {"TOOLONGKEY", 1, ""}, {"X", "tab\there", ""}, {"X", struct{}{}, ""}} {
