@@ -52,31 +52,9 @@ func boundDP(p *Problem, lb float64, iters int) float64 {
 	// Multipliers: mu (frame budgets), nu (one short run per block), then
 	// one per cadence window (one run start each).
 	lam := make([]float64, 2*A+x.nCad)
-	g := make([]float64, len(lam))
-	best := math.Inf(1)
-	theta, stall := 1.0, 0
-	for it := 0; it < iters; it++ {
-		val, frames, shorts, starts := x.solve(lam[:A], lam[A:2*A], lam[2*A:])
-		L := val
-		for a := 0; a < A; a++ {
-			rem := float64(p.bd[x.active[a]].rem)
-			L += lam[a]*rem + lam[A+a]
-			g[a] = rem - float64(frames[a])
-			g[A+a] = 1 - float64(shorts[a])
-		}
-		for j, n := range starts {
-			L += lam[2*A+j] * x.cRHS[j]
-			g[2*A+j] = x.cRHS[j] - float64(n)
-		}
-		if math.IsInf(best, 1) || L < best-1e-9*math.Abs(best) {
-			best, stall = L, 0
-		} else if stall++; stall >= 6 {
-			theta, stall = theta/2, 0
-		}
-		if !polyakStep(lam, g, theta, 1e-3, L, lb) {
-			break
-		}
-	}
+	best, _, _ := subgradient(x, lam, lb, iters, 1, 6, func(l []float64) (float64, []int, []int, []int) {
+		return x.solve(l[:A], l[A:2*A], l[2*A:])
+	})
 	return best
 }
 

@@ -293,15 +293,7 @@ func (y *pathDP) axisEnds(b int, side int8, prev bool, i int) (u1, u2, v1, v2 fl
 	if j >= p.n {
 		j = i
 	}
-	var w1, w2 float64
-	if p.ax == nil || prev && side == sideEast && p.gem() {
-		u1, u2 = p.axesOf(b, i, side, prev)
-		w1, w2 = p.axesOf(b, j, side, prev)
-	} else {
-		row := p.axesRow(b)
-		k, m := 4*i+2*int(side), 4*j+2*int(side)
-		u1, u2, w1, w2 = float64(row[k]), float64(row[k+1]), float64(row[m]), float64(row[m+1])
-	}
+	u1, u2, w1, w2 := p.axesSamples(b, i, j, side, prev)
 	d := w1 - u1
 	if p.gem() && math.Abs(d) > 180 {
 		// Axis 1 of a german mount jumps inside this step (the hour angle

@@ -94,16 +94,7 @@ func (p *Problem) axes(b int, x float64, side int8, prev bool) (a1, a2 float64) 
 	if j >= p.n || f <= 0 {
 		j, f = i, 0
 	}
-	var u1, u2, v1, v2 float64
-	if p.ax == nil || prev && side == sideEast && p.gem() {
-		// The previous target may have passed the flip limit.
-		u1, u2 = p.axesOf(b, i, side, prev)
-		v1, v2 = p.axesOf(b, j, side, prev)
-	} else {
-		row := p.axesRow(b)
-		k, l := 4*i+2*int(side), 4*j+2*int(side)
-		u1, u2, v1, v2 = float64(row[k]), float64(row[k+1]), float64(row[l]), float64(row[l+1])
-	}
+	u1, u2, v1, v2 := p.axesSamples(b, i, j, side, prev)
 	if f == 0 {
 		return u1, u2
 	}
@@ -128,6 +119,20 @@ func (p *Problem) axes(b int, x float64, side int8, prev bool) (a1, a2 float64) 
 		d += 360
 	}
 	return u1 + f*d, u2 + f*(v2-u2)
+}
+
+// axesSamples returns block b's axes at grid steps i and j on the given
+// side, from the table where it holds them (a tracked previous target on
+// the east side is computed: it may have passed the flip limit).
+func (p *Problem) axesSamples(b, i, j int, side int8, prev bool) (u1, u2, v1, v2 float64) {
+	if p.ax == nil || prev && side == sideEast && p.gem() {
+		u1, u2 = p.axesOf(b, i, side, prev)
+		v1, v2 = p.axesOf(b, j, side, prev)
+		return
+	}
+	row := p.axesRow(b)
+	k, l := 4*i+2*int(side), 4*j+2*int(side)
+	return float64(row[k]), float64(row[k+1]), float64(row[l]), float64(row[l+1])
 }
 
 // axesOf computes axes for block b at step i (b = -1: park).
