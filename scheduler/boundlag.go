@@ -312,8 +312,8 @@ func (p *Problem) framesPossible(b int) int {
 
 // polyakStep moves the multipliers lam (kept >= 0) against the
 // subgradient g of the dual value L by the Polyak step theta (L - lb) /
-// |g|^2, lb a lower bound on the optimum (Polyak 1969; Held, Wolfe &
-// Crowder 1974). Components at 0 whose subgradient would push them below
+// |g|^2, lb a lower bound on the optimum (Polyak 1969, from memory; Held,
+// Wolfe & Crowder 1974). Components at 0 whose subgradient would push them below
 // do not count in |g|. It reports false, changing nothing, when there is
 // no direction left or theta has fallen below minTheta.
 func polyakStep(lam, g []float64, theta, minTheta, L, lb float64) bool {

@@ -294,7 +294,8 @@ func (p *Problem) chain(prev prevState, b int, base, s float64, planned, nb int,
 // candidate (its score) or an unevaluated block (an upper bound on its
 // score, boundInGap). Evaluating a block only when its bound reaches the
 // top of every gap is the lazy greedy of Minoux (1978, "Accelerated greedy
-// algorithms for maximizing submodular set functions"): the pick is the
+// algorithms for maximizing submodular set functions"; citation from
+// memory): the pick is the
 // same as scoring every block in every gap, at a fraction of the
 // insertions tried.
 type repairState struct {
