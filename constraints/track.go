@@ -163,12 +163,12 @@ func (g *Grid) trackStar(tr *Track, st *ephem.Star, refresh int) {
 	sinSkip := math.Sin(belowHorizonSkip)
 	for i0 := 0; i0 < n; i0 += refresh {
 		i1 := min(i0+refresh, n)
-		ra, dec, _ := ephem.VecToSpherical(g.Local[i0].StarOfDate(u))
-		sinDec, cosDec := math.Sincos(dec)
-		sr, cr := math.Sincos(ra)
+		// The unit vector of date is (cos d cos ra, cos d sin ra, sin d):
 		// cos d cos H = cL*a + sL*b and cos d sin H = sL*a - cL*b with
-		// H = LAST - ra, L = LAST.
-		a, b := cosDec*cr, cosDec*sr
+		// H = LAST - ra, L = LAST, and no trigonometry for a, b, sin d.
+		v := g.Local[i0].StarOfDate(u)
+		a, b, sinDec := v[0], v[1], v[2]
+		ra, dec := math.Atan2(b, a), math.Asin(clamp(sinDec, -1, 1))
 		zc, zs := cosLat*sinDec, sinLat*sinDec // the declination's share of h[0], h[2]
 		d32 := float32(dec)
 		for j0 := i0; j0 < i1; j0 += win {
