@@ -16,8 +16,8 @@ const batchChunk = 16
 // are cut into one range per worker, and the fixed targets of a range share
 // one allocation, made (and so zeroed) by the first worker to reach the
 // range: a night's tracks are tens of megabytes, and zeroing them in one
-// allocation before the workers start held two cores to one for a fifth
-// of the grid's time (smaller allocations per chunk fault fresh pages in
+// allocation before the workers start held two cores to one for a few
+// milliseconds (smaller allocations per chunk fault fresh pages in
 // instead, which costs more). Workers take batchChunk targets at a time,
 // from their own range first and then from the others', so that a range
 // of cheap targets (below the horizon all night) does not leave a core
@@ -100,15 +100,8 @@ func (g *Grid) TrackAll(targets []*Target, workers int) ([]*Track, error) {
 			}
 		}
 	}
-	if workers == 1 {
-		work(0)
-		return tracks, first
-	}
-	var wg sync.WaitGroup
-	for w := range workers {
-		wg.Go(func() { work(w) })
-	}
-	wg.Wait()
+	// One goroutine per range (a single one runs on the caller's).
+	forBlocks(workers, 1, workers, func(w, _ int) { work(w) })
 	return tracks, first
 }
 
