@@ -114,22 +114,25 @@ func (g *Grid) EvaluateAll(tracks []*Track, reqs []Request, workers int) []*Visi
 		panic("constraints: EvaluateAll needs one request per track")
 	}
 	vis := make([]*Visibility, len(tracks))
-	forChunks(len(tracks), workers, func(i int) {
-		if tracks[i] != nil {
-			vis[i] = g.Evaluate(tracks[i], reqs[i])
+	n := g.N
+	// One allocation per chunk for its visibilities, reasons and
+	// qualities, instead of three per track.
+	forBlocks(len(tracks), batchChunk, workers, func(i0, i1 int) {
+		vs := make([]Visibility, i1-i0)
+		rs := make([]Reason, (i1-i0)*n)
+		qs := make([]float32, (i1-i0)*n)
+		for i := i0; i < i1; i++ {
+			if tracks[i] == nil {
+				continue
+			}
+			k := i - i0
+			v := &vs[k]
+			v.Reason, v.Quality = rs[k*n:(k+1)*n:(k+1)*n], qs[k*n:(k+1)*n:(k+1)*n]
+			g.evaluate(v, tracks[i], reqs[i])
+			vis[i] = v
 		}
 	})
 	return vis
-}
-
-// forChunks calls f(0..n-1) on at most workers goroutines, each taking
-// batchChunk consecutive indices at a time.
-func forChunks(n, workers int, f func(int)) {
-	forBlocks(n, batchChunk, workers, func(i0, i1 int) {
-		for i := i0; i < i1; i++ {
-			f(i)
-		}
-	})
 }
 
 // gridBlock is how many steps of a grid a worker fills at a time (an

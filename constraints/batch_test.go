@@ -4,6 +4,7 @@ import (
 	"errors"
 	"math"
 	"math/rand/v2"
+	"reflect"
 	"testing"
 	"time"
 
@@ -64,6 +65,53 @@ func TestTrackAllMatchesTrack(t *testing.T) {
 					}
 				}
 			}
+		}
+	}
+}
+
+// TestEvaluateAllMatchesEvaluate: EvaluateAll's visibilities (one
+// allocation per chunk) equal Evaluate's one by one, for several worker
+// counts, mixed requests and a nil track; and each visibility's steps are
+// its own (writing one does not change a neighbour's).
+func TestEvaluateAllMatchesEvaluate(t *testing.T) {
+	site := benchSite(t)
+	start := time.Date(2026, 12, 24, 17, 0, 0, 0, time.UTC)
+	g, err := NewGrid(site, start, start.Add(6*time.Hour), time.Minute, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	rng := rand.New(rand.NewPCG(5, 6))
+	targets := make([]*Target, 53)
+	reqs := make([]Request, len(targets))
+	loose := &Set{MaxAirmass: 3, Darkness: DarkCivil}
+	for i := range targets {
+		st, _ := ephem.NewStar(rng.Float64()*360, -30+rng.Float64()*120, 0, 0)
+		targets[i] = &Target{Star: &st}
+		reqs[i] = Request{Set: fullSet(), Exposure: 300 * time.Second}
+		if i%3 == 0 {
+			reqs[i].Set = loose
+		}
+	}
+	tracks, _ := g.TrackAll(targets, 0)
+	tracks[17] = nil
+	for _, workers := range []int{1, 2, 3} {
+		vis := g.EvaluateAll(tracks, reqs, workers)
+		for i := range tracks {
+			if tracks[i] == nil {
+				if vis[i] != nil {
+					t.Errorf("workers %d: a visibility for the nil track", workers)
+				}
+				continue
+			}
+			if want := g.Evaluate(tracks[i], reqs[i]); !reflect.DeepEqual(vis[i], want) {
+				t.Fatalf("workers %d: visibility %d differs from Evaluate's", workers, i)
+			}
+		}
+		v := vis[4]
+		before := append([]Reason(nil), vis[5].Reason...)
+		v.Reason = append(v.Reason, ReasonClosure) // full: must not write into vis[5]
+		if !reflect.DeepEqual(vis[5].Reason, before) {
+			t.Fatalf("workers %d: writing one visibility changed its neighbour", workers)
 		}
 	}
 }

@@ -37,8 +37,15 @@ func (v *Visibility) Feasible(i int) bool { return v.Reason[i] == OK }
 // Evaluate checks every step of a track against a block's request. The
 // site's solar-avoidance floor applies whatever the set asks.
 func (g *Grid) Evaluate(tr *Track, req Request) *Visibility {
+	v := &Visibility{Reason: make([]Reason, g.N), Quality: make([]float32, g.N)}
+	g.evaluate(v, tr, req)
+	return v
+}
+
+// evaluate is Evaluate into v, whose Reason and Quality hold g.N zeroed
+// steps.
+func (g *Grid) evaluate(v *Visibility, tr *Track, req Request) {
 	n := g.N
-	v := &Visibility{Reason: make([]Reason, n), Quality: make([]float32, n)}
 	l := newLimits(g, tr, req)
 	c, site := l.set, g.Site
 	floor, minElong, minAlt, maxAlt, maxX, maxHA, minMoon := l.floor, l.minElong, l.minAlt, l.maxAlt, l.maxX, l.maxHA, l.minMoon
@@ -120,7 +127,6 @@ func (g *Grid) Evaluate(tr *Track, req Request) *Visibility {
 		qual[i] = float32(quality(float64(xs[i]), float64(skies[i]), k, dark, useSky))
 	}
 	v.Windows = windows(v.Reason)
-	return v
 }
 
 // quality is the package doc's formula, as one exp and one log:

@@ -2,7 +2,7 @@
 # Run constraints.BenchmarkNightGrid and testdata/bench/astropy_grid.py in one job and print the
 # ratios (astropy time / nightloom time), CPU time and wall time, for each mode.
 #
-#   bash testdata/bench/compare_grid.sh            # installs Debian's python3-astropy if missing
+#   bash testdata/bench/compare_grid.sh            # installs Debian's python3-astropy and python3-ephem if missing
 #   REPEAT=5 bash testdata/bench/compare_grid.sh
 #
 # The astropy reference is the vectorised alt/az + airmass grid ("no-sky"), the same one the
@@ -14,11 +14,12 @@ set -euo pipefail
 here="$(cd "$(dirname "${BASH_SOURCE[0]}")" && pwd)"
 root="$(cd "$here/../.." && pwd)"
 py=/usr/bin/python3
-if ! "$py" -c 'import astropy' 2>/dev/null; then
+# astropy_grid.py shares testdata/ephem/ref_common.py, which imports PyEphem too.
+if ! "$py" -c 'import astropy, ephem' 2>/dev/null; then
 	if [ "$(id -u)" = "0" ]; then
-		DEBIAN_FRONTEND=noninteractive apt-get install -y python3-astropy
+		DEBIAN_FRONTEND=noninteractive apt-get install -y python3-astropy python3-ephem
 	else
-		sudo DEBIAN_FRONTEND=noninteractive apt-get install -y python3-astropy
+		sudo DEBIAN_FRONTEND=noninteractive apt-get install -y python3-astropy python3-ephem
 	fi
 fi
 out="$(mktemp)"
