@@ -246,14 +246,17 @@ func visibilities(g *constraints.Grid, blocks []Block, workers int, cancel <-cha
 	for i := range blocks {
 		tracks[i] = tracks[first[blocks[i].Target]]
 	}
-	parallel(len(blocks), workers, func(i int) {
-		if tracks[i] == nil || cancelled(cancel) {
-			return
-		}
+	if cancelled(cancel) {
+		return tracks, vis
+	}
+	// One call too: a night's blocks take a few milliseconds here, and
+	// visibilities come in one allocation per chunk of blocks.
+	reqs := make([]constraints.Request, len(blocks))
+	for i := range blocks {
 		b := &blocks[i]
-		vis[i] = g.Evaluate(tracks[i], constraints.Request{Set: b.Set, Exposure: b.Exposure, NonSidereal: b.NonSidereal})
-	})
-	return tracks, vis
+		reqs[i] = constraints.Request{Set: b.Set, Exposure: b.Exposure, NonSidereal: b.NonSidereal}
+	}
+	return tracks, g.EvaluateAll(tracks, reqs, workers)
 }
 
 // parallel runs f(0..n-1) on at most workers goroutines.
